@@ -1,0 +1,153 @@
+"""The one units registry, and quantity parsing at the edge.
+
+Case files write quantities as strings with units (``"100 mm"``,
+``"0.035 W/(m*K)"``, ``"20 degC"``) or as bare numbers in SI, except
+temperatures, whose bare numbers are degrees Celsius.  Everything is parsed
+here, once, into floats in SI (temperatures in degC); the core never sees a
+unit string.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from typing import Any
+
+import pint
+
+from layers.errors import CaseError
+
+_POWER = re.compile(r"(?<=[A-Za-z\)])([23])(?![\d.])")
+
+
+def _powers(text: str) -> str:
+    """Read ``m2`` and ``m3`` as ``m**2`` and ``m**3`` (the trade writes them so)."""
+    return _POWER.sub(r"**\1", text.replace("²", "2").replace("³", "3"))
+
+
+ureg = pint.UnitRegistry(
+    autoconvert_offset_to_baseunit=True, preprocessors=[_powers], cache_folder=None
+)
+ureg.define("percent_rh = 0.01 = pct")
+
+#: Kinds of quantity the case file uses: name -> (SI unit written for pint, unit shown to users).
+KINDS: dict[str, tuple[str, str]] = {
+    "length": ("m", "m"),
+    "conductivity": ("W/(m*K)", "W/(m*K)"),
+    "density": ("kg/m**3", "kg/m3"),
+    "specific_heat": ("J/(kg*K)", "J/(kg*K)"),
+    "areal_resistance": ("m**2*K/W", "m2*K/W"),
+    "film_coefficient": ("W/(m**2*K)", "W/(m2*K)"),
+    "heat_flux": ("W/m**2", "W/m2"),
+    "linear_heat_flow": ("W/m", "W/m"),
+    "speed": ("m/s", "m/s"),
+    "duration": ("s", "s"),
+    "temperature_difference": ("K", "K"),
+    "fraction": ("dimensionless", "1"),
+    "irradiance": ("W/m**2", "W/m2"),
+    "latent_heat": ("J/kg", "J/kg"),
+    "angle": ("degree", "deg"),
+}
+
+
+def _fail(file: str, key: str, reason: str) -> None:
+    raise CaseError(file, key, reason)
+
+
+def parse_quantity(value: Any, kind: str, *, file: str = "<case>", key: str = "?") -> float:
+    """Parse a number or a string with units into SI.
+
+    Parameters
+    ----------
+    value : str or float
+        ``"100 mm"`` or a bare number already in SI.
+    kind : str
+        A key of :data:`KINDS`, e.g. ``"length"``.
+    file, key : str
+        Where the value came from, for the error message.
+
+    Returns
+    -------
+    float
+        The value in the SI unit of ``kind``.
+    """
+    unit, shown = KINDS[kind]
+    if isinstance(value, bool):
+        _fail(file, key, f"expected a quantity in {shown}, got {value!r}")
+    if isinstance(value, (int, float)):
+        number = float(value)
+    elif isinstance(value, str):
+        text = value.strip()
+        try:
+            number = float(text)  # a bare number written as a string: SI
+        except ValueError:
+            try:
+                q = ureg.Quantity(text)
+            except Exception as exc:  # pint raises several unrelated types
+                _fail(file, key, f"cannot read {value!r} as a quantity ({exc})")
+            if not isinstance(q, pint.Quantity) or (q.dimensionless and kind != "fraction" and str(q.units) == "dimensionless"):
+                _fail(file, key, f"{value!r} has no unit; write it in {shown}")
+            try:
+                number = float(q.to(unit).magnitude)
+            except pint.DimensionalityError:
+                _fail(file, key, f"{value!r} is not a {kind.replace('_', ' ')} (expected a unit like {shown})")
+    else:
+        _fail(file, key, f"expected a quantity in {shown}, got {type(value).__name__} {value!r}")
+    if not math.isfinite(number):
+        _fail(file, key, f"{value!r} is not a finite number")
+    return number
+
+
+def parse_temperature(value: Any, *, file: str = "<case>", key: str = "?") -> float:
+    """Parse a temperature into degC.
+
+    Bare numbers are degrees Celsius; strings may carry ``degC``, ``degF`` or ``K``.
+
+    Returns
+    -------
+    float
+        Temperature [degC].
+    """
+    if isinstance(value, bool):
+        _fail(file, key, f"expected a temperature, got {value!r}")
+    if isinstance(value, (int, float)):
+        number = float(value)
+    elif isinstance(value, str):
+        try:
+            q = ureg.Quantity(value.strip())
+        except Exception as exc:
+            _fail(file, key, f"cannot read {value!r} as a temperature ({exc})")
+        if not isinstance(q, pint.Quantity) or q.dimensionless:
+            magnitude = q.magnitude if isinstance(q, pint.Quantity) else q
+            number = float(magnitude)
+        else:
+            try:
+                number = float(q.to(ureg.degC).magnitude)
+            except pint.DimensionalityError:
+                _fail(file, key, f"{value!r} is not a temperature (use degC, degF or K)")
+    else:
+        _fail(file, key, f"expected a temperature, got {type(value).__name__} {value!r}")
+    if not math.isfinite(number):
+        _fail(file, key, f"{value!r} is not a finite temperature")
+    if number < -273.15:
+        _fail(file, key, f"{value!r} is below absolute zero")
+    return number
+
+
+def unit_factor(unit: str, kind: str, *, file: str, key: str) -> tuple[float, float]:
+    """Scale and offset that convert numbers in ``unit`` to SI: ``si = a * v + b``.
+
+    Used for series columns, which are converted once as whole arrays.
+    ``kind`` may be ``"temperature"`` (result in degC) or a key of :data:`KINDS`.
+    """
+    try:
+        if kind == "temperature":
+            q0 = ureg.Quantity(0.0, unit).to(ureg.degC).magnitude
+            q1 = ureg.Quantity(1.0, unit).to(ureg.degC).magnitude
+        else:
+            target = KINDS[kind][0]
+            q0 = ureg.Quantity(0.0, unit).to(target).magnitude
+            q1 = ureg.Quantity(1.0, unit).to(target).magnitude
+    except (pint.DimensionalityError, pint.UndefinedUnitError, AttributeError, ValueError) as exc:
+        _fail(file, key, f"unit {unit!r} does not fit a {kind.replace('_', ' ')} ({exc})")
+    return float(q1 - q0), float(q0)
