@@ -1,0 +1,748 @@
+"""Case file (TOML) to a validated case in SI units.
+
+Every check that the user can act on raises :class:`~layers.errors.CaseError`
+with the file, the dotted key and the reason.  Quantities are parsed once,
+here; the objects returned hold plain floats in SI (temperatures in degC) and
+forcing functions of time.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import hashlib
+import math
+import tomllib
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from layers.errors import CaseError
+from layers.materials import Material, material_from_table, resolve
+from layers.mesh import GEOMETRIES, LayerSpec, MeshRule
+from layers.series import ColumnSpec, Forcing, Series, daily_cycle, read_series
+from layers.units import parse_quantity, parse_temperature
+
+BOUNDARY_TYPES = ("film", "temperature", "flux", "adiabatic", "contents")
+INITIAL_WORDS = ("steady", "periodic")
+SCHEMES = ("backward-euler", "crank-nicolson", "tr-bdf2")
+#: ISO 6946:2017 Table 7 conventional surface resistances [m2 K W-1] (horizontal heat flow).
+ISO6946_RSI_HORIZONTAL = 0.13
+ISO6946_RSE = 0.04
+DEFAULT_START = "2026-01-01T00:00"
+
+
+class _Table:
+    """A TOML table being read: remembers which keys were used, refuses the others."""
+
+    def __init__(self, data: Any, file: str, where: str) -> None:
+        if not isinstance(data, dict):
+            raise CaseError(file, where or "(top level)", f"expected a table, got {type(data).__name__}")
+        self.data = data
+        self.file = file
+        self.where = where
+        self.used: set[str] = set()
+
+    def key(self, name: str) -> str:
+        return f"{self.where}.{name}" if self.where else name
+
+    def has(self, name: str) -> bool:
+        return name in self.data
+
+    def get(self, name: str, default: Any = None, required: bool = False) -> Any:
+        self.used.add(name)
+        if name not in self.data:
+            if required:
+                raise CaseError(self.file, self.key(name), "is required")
+            return default
+        return self.data[name]
+
+    def error(self, name: str, reason: str) -> CaseError:
+        return CaseError(self.file, self.key(name), reason)
+
+    def finish(self, allowed_extra: tuple[str, ...] = ()) -> None:
+        unknown = [k for k in self.data if k not in self.used and k not in allowed_extra]
+        if unknown:
+            import difflib
+
+            name = unknown[0]
+            close = difflib.get_close_matches(name, sorted(self.used), n=1)
+            hint = f" (did you mean {close[0]!r}?)" if close else ""
+            raise CaseError(self.file, self.key(name), f"unknown key{hint}")
+
+
+@dataclass(frozen=True)
+class BoundarySpec:
+    """One boundary of the construction, in SI.
+
+    Forcings are functions of UTC ``datetime64`` times returning SI values.
+    """
+
+    side: str
+    kind: str
+    air_temperature: Forcing | None = None          # [degC]
+    surface_resistance: float | None = None         # [m2 K W-1] of the film; None with auto
+    auto_film: bool = False
+    surface_temperature: Forcing | None = None      # [degC]
+    heat_flux: Forcing | None = None                # [W m-2] into the construction
+    emissivity: float = 0.9                         # [-]
+    solar_absorptance: float | None = None          # [-]
+    solar_irradiance: Forcing | None = None         # [W m-2] on the surface plane
+    relative_humidity: Forcing | None = None        # [-] fraction
+    wind_speed: Forcing | None = None               # [m s-1]
+    radiant_temperature: Forcing | None = None      # [degC] surroundings for radiation (auto film)
+    sky_temperature: Forcing | None = None          # [degC]
+    heat_flow_direction: str = "horizontal"         # ISO 6946: up | horizontal | down
+    tilt: float = 90.0                              # [deg] 90 = vertical wall, 0 = flat roof
+    orientation: str = "horizontal"                 # pipes: horizontal | vertical
+    jacket: str | None = None
+    contents: str | None = None
+    initial_temperature: float | None = None        # [degC] of the contents
+    values: dict[str, Any] = field(default_factory=dict, repr=False)
+
+
+@dataclass(frozen=True)
+class TimePlan:
+    """When and how to march.
+
+    Attributes
+    ----------
+    start : numpy.datetime64
+        UTC start of the run.
+    duration, step, output_every, period : float
+        [s]
+    initial : float or str
+        Initial temperature [degC], ``"steady"`` or ``"periodic"``.
+    scheme : str
+    """
+
+    start: np.datetime64
+    duration: float
+    step: float
+    output_every: float
+    initial: float | str
+    scheme: str
+    period: float = 86400.0
+
+    @property
+    def n_steps(self) -> int:
+        return int(round(self.duration / self.step))
+
+    @property
+    def output_stride(self) -> int:
+        return int(round(self.output_every / self.step))
+
+
+@dataclass(frozen=True)
+class SizingSpec:
+    """The ``[sizing]`` table, in SI."""
+
+    layer: int                                   # 1-based
+    thicknesses: tuple[float, ...]               # [m]
+    max_surface_temperature: float | None = None  # [degC]
+    dew_point_margin: float | None = None        # [K]
+    max_heat_loss: float | None = None           # [W m-2 | W m-1 | W]
+    min_freeze_time: float | None = None         # [s]
+    max_ice_fraction: float = 0.25               # [-]
+
+
+@dataclass
+class Case:
+    """A validated case: geometry, layers, boundaries, forcing and time plan."""
+
+    path: str
+    text: str
+    sha256: str
+    title: str
+    geometry: str
+    inner_radius: float
+    layers: tuple[LayerSpec, ...]
+    mesh_rule: MeshRule
+    inside: BoundarySpec
+    outside: BoundarySpec
+    time: TimePlan
+    series: Series | None = None
+    sizing: SizingSpec | None = None
+    materials: dict[str, Material] = field(default_factory=dict)
+    label: str = ""
+
+    @property
+    def stem(self) -> str:
+        return Path(self.path).stem
+
+    @property
+    def reference_unit(self) -> str:
+        """What the per-unit quantities refer to: m2 of wall, m of pipe, whole sphere."""
+        return {"planar": "m2", "cylinder": "m", "sphere": "sphere"}[self.geometry]
+
+    def seconds(self, times: np.ndarray) -> np.ndarray:
+        return (np.asarray(times) - self.time.start) / np.timedelta64(1, "s")
+
+    def datetimes(self, seconds: np.ndarray) -> np.ndarray:
+        return self.time.start + (np.asarray(seconds) * 1e6).astype("timedelta64[us]")
+
+
+# --------------------------------------------------------------------------- #
+# reading
+
+
+def load_case(path: str | Path) -> Case:
+    """Read and validate a case file.
+
+    Parameters
+    ----------
+    path : str or Path
+        The TOML case file.
+
+    Raises
+    ------
+    CaseError
+        For any input the user must correct.
+    """
+    path = Path(path)
+    file = str(path)
+    try:
+        raw = path.read_bytes()
+    except OSError as exc:
+        raise CaseError(file, "(file)", f"cannot read the case file ({exc.strerror})") from None
+    try:
+        text = raw.decode("utf-8")
+        data = tomllib.loads(text)
+    except UnicodeDecodeError:
+        raise CaseError(file, "(file)", "is not UTF-8 text") from None
+    except tomllib.TOMLDecodeError as exc:
+        raise CaseError(file, "(syntax)", f"malformed TOML: {exc}") from None
+    return parse_case(data, file=file, text=text, base_dir=path.parent)
+
+
+def parse_case(data: dict, *, file: str = "<case>", text: str = "", base_dir: Path | None = None) -> Case:
+    """Validate an already-parsed TOML document (see :func:`load_case`)."""
+    base_dir = base_dir or Path(".")
+    top = _Table(data, file, "")
+    title = top.get("title", "")
+    if not isinstance(title, str):
+        raise top.error("title", "must be a string")
+    label = top.get("label", "")
+
+    # geometry
+    geo = _Table(top.get("geometry", {}), file, "geometry")
+    geometry = geo.get("kind", "planar")
+    if geometry not in GEOMETRIES:
+        raise geo.error("kind", f"unknown geometry {geometry!r}; use one of {', '.join(GEOMETRIES)}")
+    inner_radius = 0.0
+    if geometry != "planar":
+        value = geo.get("inner_radius", required=True)
+        inner_radius = parse_quantity(value, "length", file=file, key=geo.key("inner_radius"))
+        if inner_radius <= 0:
+            raise geo.error("inner_radius", "must be positive")
+    elif geo.has("inner_radius"):
+        raise geo.error("inner_radius", "applies to cylinder and sphere geometry only")
+    geo.get("orientation")  # for pipes, read with the boundaries
+    geo.finish()
+    pipe_orientation = geo.data.get("orientation", "horizontal")
+
+    # materials defined in the case
+    materials: dict[str, Material] = {}
+    mats = _Table(top.get("materials", {}), file, "materials")
+    for name in list(mats.data):
+        mats.get(name)
+        materials[name] = material_from_table(
+            name, mats.data[name], file=file, key=f"materials.{name}", library=True
+        )
+
+    layers = _parse_layers(top.get("layers", required=True), materials, file)
+    rule = _parse_mesh(_Table(top.get("mesh", {}), file, "mesh"))
+
+    # series and cycles
+    series, cycles, columns_kind, timezone = _parse_series(top.get("series"), file, base_dir)
+
+    forcing_ctx = _ForcingContext(file, series, cycles, columns_kind, timezone)
+    inside = _parse_boundary(top.get("inside", required=True), "inside", geometry, forcing_ctx, pipe_orientation)
+    outside = _parse_boundary(top.get("outside", required=True), "outside", geometry, forcing_ctx, pipe_orientation)
+    if outside.kind == "contents":
+        raise CaseError(file, "outside.type", "a contents boundary fills the bore: use it on the inside")
+    if inside.kind == "contents" and geometry == "planar":
+        raise CaseError(file, "inside.type", "a contents boundary needs cylinder or sphere geometry")
+
+    time = _parse_time(_Table(top.get("time", {}), file, "time"), series, timezone)
+    for spec in (inside, outside):
+        for name, forcing in spec.values.items():
+            span = forcing.span() if isinstance(forcing, Forcing) else None
+            if span is not None:
+                end = time.start + np.timedelta64(int(round(time.duration)), "s")
+                if time.start < span[0] or end > span[1]:
+                    raise CaseError(
+                        file,
+                        f"{spec.side}.{name}",
+                        f"the run ({_iso(time.start)} to {_iso(end)}) reaches outside the series "
+                        f"{series.file if series else ''} ({_iso(span[0])} to {_iso(span[1])})",
+                    )
+    if time.initial == "steady" and inside.kind in ("flux", "adiabatic") and outside.kind in ("flux", "adiabatic"):
+        raise CaseError(
+            file, "time.initial", "'steady' needs a boundary that fixes a temperature (film or temperature)"
+        )
+
+    sizing = None
+    if top.has("sizing"):
+        sizing = _parse_sizing(_Table(top.get("sizing"), file, "sizing"), layers, geometry, inside, outside)
+    top.finish()
+    return Case(
+        path=file,
+        text=text,
+        sha256=hashlib.sha256(text.encode("utf-8")).hexdigest(),
+        title=title or Path(file).stem,
+        geometry=geometry,
+        inner_radius=inner_radius,
+        layers=layers,
+        mesh_rule=rule,
+        inside=inside,
+        outside=outside,
+        time=time,
+        series=series,
+        sizing=sizing,
+        materials=materials,
+        label=str(label),
+    )
+
+
+def _iso(t: np.datetime64) -> str:
+    return str(np.datetime_as_string(t, unit="m"))
+
+
+def _positive(value: Any, kind: str, table: _Table, name: str, allow_zero: bool = False) -> float:
+    number = parse_quantity(value, kind, file=table.file, key=table.key(name))
+    if number < 0 or (number == 0 and not allow_zero):
+        raise table.error(name, f"must be {'non-negative' if allow_zero else 'positive'}, got {value!r}")
+    return number
+
+
+def _parse_layers(items: Any, materials: dict[str, Material], file: str) -> tuple[LayerSpec, ...]:
+    if not isinstance(items, list) or not items:
+        raise CaseError(file, "layers", "give at least one [[layers]] table")
+    out = []
+    for number, item in enumerate(items, start=1):
+        t = _Table(item, file, f"layers[{number}]")
+        kind = t.get("kind", "solid")
+        if kind == "air-gap":
+            resistance = _positive(t.get("resistance", required=True), "areal_resistance", t, "resistance")
+            thickness = 0.0
+            if t.has("thickness"):
+                thickness = _positive(t.get("thickness"), "length", t, "thickness", allow_zero=True)
+            contact = 0.0
+            if t.has("contact_resistance"):
+                raise t.error("contact_resistance", "an air gap is itself a resistance; add to its resistance instead")
+            t.get("name")
+            t.finish()
+            out.append(LayerSpec(thickness, None, resistance=resistance, name=str(t.data.get("name", "air gap"))))
+            continue
+        if kind != "solid":
+            raise t.error("kind", f"unknown layer kind {kind!r}; use 'solid' (the default) or 'air-gap'")
+        name = t.get("material", required=True)
+        if not isinstance(name, str):
+            raise t.error("material", "must be a material name")
+        material = resolve(name, materials, file=file, key=t.key("material"))
+        thickness = _positive(t.get("thickness", required=True), "length", t, "thickness")
+        contact = 0.0
+        if t.has("contact_resistance"):
+            contact = _positive(t.get("contact_resistance"), "areal_resistance", t, "contact_resistance", allow_zero=True)
+            if number == len(items):
+                raise t.error("contact_resistance", "the outermost layer has no next layer to contact")
+        cells = t.get("cells")
+        if cells is not None and (isinstance(cells, bool) or not isinstance(cells, int) or cells < 1):
+            raise t.error("cells", f"must be a whole number >= 1, got {cells!r}")
+        t.get("name")
+        t.finish()
+        out.append(LayerSpec(thickness, material, contact_resistance=contact, cells=cells, name=str(t.data.get("name", name))))
+    if all(spec.is_gap for spec in out):
+        raise CaseError(file, "layers", "needs at least one solid layer")
+    return tuple(out)
+
+
+def _parse_mesh(t: _Table) -> MeshRule:
+    max_cell = _positive(t.get("max_cell", "5 mm"), "length", t, "max_cell")
+    growth = t.get("growth", 1.25)
+    if isinstance(growth, bool) or not isinstance(growth, (int, float)) or not 1.0 <= growth <= 3.0:
+        raise t.error("growth", f"must be a number from 1 to 3, got {growth!r}")
+    min_cells = t.get("min_cells", 3)
+    if isinstance(min_cells, bool) or not isinstance(min_cells, int) or min_cells < 1:
+        raise t.error("min_cells", f"must be a whole number >= 1, got {min_cells!r}")
+    first = None
+    if t.has("first_cell"):
+        first = _positive(t.get("first_cell"), "length", t, "first_cell")
+    t.finish()
+    return MeshRule(max_cell=max_cell, growth=float(growth), min_cells=min_cells, first_cell=first)
+
+
+_KIND_BY_DIMENSION = {
+    "temperature": ("degC", "K", "degF", "kelvin", "degree_Celsius", "degree_Fahrenheit"),
+}
+
+
+def _column_kind(unit: str) -> str:
+    from layers.units import KINDS, ureg
+
+    try:
+        q = ureg.Quantity(1.0, unit)
+    except Exception:
+        return "unknown"
+    if q.check("[temperature]"):
+        return "temperature"
+    for kind in ("irradiance", "speed", "fraction", "film_coefficient", "linear_heat_flow"):
+        try:
+            q.to(KINDS[kind][0])
+            return kind
+        except Exception:
+            continue
+    return "unknown"
+
+
+def _parse_series(value: Any, file: str, base_dir: Path):
+    if value is None:
+        return None, {}, {}, "UTC"
+    t = _Table(value, file, "series")
+    timezone = t.get("timezone", "UTC")
+    cycles: dict[str, Callable] = {}
+    cyc = _Table(t.get("cycles", {}), file, "series.cycles")
+    for name in list(cyc.data):
+        cyc.get(name)
+        c = _Table(cyc.data[name], file, f"series.cycles.{name}")
+        mean = parse_temperature(c.get("mean", required=True), file=file, key=c.key("mean"))
+        amplitude = parse_quantity(c.get("amplitude", required=True), "temperature_difference", file=file, key=c.key("amplitude"))
+        if amplitude < 0:
+            raise c.error("amplitude", "must be non-negative")
+        peak = c.get("peak_hour", 15)
+        if isinstance(peak, bool) or not isinstance(peak, (int, float)) or not 0 <= peak < 24:
+            raise c.error("peak_hour", f"must be an hour from 0 to 24, got {peak!r}")
+        period = _positive(c.get("period", "24 h"), "duration", c, "period")
+        c.finish()
+        cycles[name] = (daily_cycle(mean, amplitude, float(peak), period), period)
+    columns_kind: dict[str, str] = {}
+    series = None
+    if t.has("file"):
+        fname = t.get("file")
+        if not isinstance(fname, str):
+            raise t.error("file", "must be a file name")
+        cols = _Table(t.get("columns", required=True), file, "series.columns")
+        specs = []
+        for name in list(cols.data):
+            cols.get(name)
+            c = _Table(cols.data[name], file, f"series.columns.{name}")
+            column = c.get("column", name)
+            unit = c.get("unit", required=True)
+            if not isinstance(unit, str):
+                raise c.error("unit", "must be a unit string such as 'degC' or 'W/m2'")
+            kind = _column_kind(unit)
+            if kind == "unknown":
+                raise c.error("unit", f"unit {unit!r} is not a temperature, irradiance, speed or fraction")
+            c.finish()
+            specs.append(ColumnSpec(name=name, column=str(column), unit=unit, kind=kind))
+            columns_kind[name] = kind
+        fill = t.get("fill_gaps")
+        fill_s = _positive(fill, "duration", t, "fill_gaps") if fill is not None else None
+        max_interval = t.get("max_interval")
+        max_s = _positive(max_interval, "duration", t, "max_interval") if max_interval is not None else None
+        time_col = t.get("time", "time")
+        path = Path(fname)
+        if not path.is_absolute():
+            path = base_dir / path
+        series = read_series(
+            path, specs, time=time_col, timezone=timezone, fill_gaps=fill_s, max_interval=max_s, case_file=file
+        )
+    else:
+        for name in ("columns", "time", "fill_gaps", "max_interval"):
+            if t.has(name):
+                raise t.error(name, "needs series.file")
+    t.finish()
+    for name in cycles:
+        columns_kind[name] = "temperature"
+    return series, cycles, columns_kind, timezone
+
+
+@dataclass
+class _ForcingContext:
+    file: str
+    series: Series | None
+    cycles: dict
+    kinds: dict[str, str]
+    timezone: str
+
+    def forcing(self, value: Any, kind: str, key: str) -> Forcing:
+        """A constant or a ``"series:NAME"`` reference -> Forcing in SI."""
+        if isinstance(value, str) and value.strip().startswith("series:"):
+            name = value.strip()[len("series:"):].strip()
+            known = sorted(self.kinds)
+            if name not in self.kinds:
+                raise CaseError(
+                    self.file, key, f"no series named {name!r} (defined: {', '.join(known) or 'none'})"
+                )
+            have = self.kinds[name]
+            want = "irradiance" if kind == "heat_flux" and have == "irradiance" else kind
+            if have != want and not (kind == "heat_flux" and have in ("irradiance",)):
+                raise CaseError(self.file, key, f"series {name!r} is a {have.replace('_', ' ')}, not a {kind.replace('_', ' ')}")
+            if name in self.cycles:
+                return Forcing.from_cycle(self.cycles[name][0])
+            return Forcing.from_series(self.series, name, case_file=self.file, key=key)
+        if kind == "temperature":
+            return Forcing.constant(parse_temperature(value, file=self.file, key=key))
+        number = parse_quantity(value, kind, file=self.file, key=key)
+        return Forcing.constant(number)
+
+
+_BOUNDARY_KEYS = {
+    "film": {"air_temperature"},
+    "temperature": {"surface_temperature"},
+    "flux": {"heat_flux"},
+    "adiabatic": set(),
+    "contents": {"contents", "initial_temperature"},
+}
+
+
+def _parse_boundary(value: Any, side: str, geometry: str, ctx: _ForcingContext, orientation: str) -> BoundarySpec:
+    file = ctx.file
+    t = _Table(value, file, side)
+    kind = t.get("type", required=True)
+    if kind not in BOUNDARY_TYPES:
+        raise t.error("type", f"unknown boundary type {kind!r}; use one of {', '.join(BOUNDARY_TYPES)}")
+    values: dict[str, Forcing] = {}
+    args: dict[str, Any] = {"side": side, "kind": kind, "orientation": orientation}
+
+    def forcing(name: str, qkind: str, required: bool = False) -> Forcing | None:
+        raw = t.get(name, required=required)
+        if raw is None:
+            return None
+        f = ctx.forcing(raw, qkind, t.key(name))
+        values[name] = f
+        return f
+
+    if kind == "film":
+        args["air_temperature"] = forcing("air_temperature", "temperature", required=True)
+        has_h = t.has("film_coefficient")
+        has_r = t.has("surface_resistance")
+        if has_h and has_r:
+            raise t.error("surface_resistance", "give film_coefficient or surface_resistance, not both")
+        h = t.get("film_coefficient")
+        r = t.get("surface_resistance")
+        if isinstance(h, str) and h.strip() == "auto":
+            args["auto_film"] = True
+        elif h is not None:
+            h_value = _positive(h, "film_coefficient", t, "film_coefficient")
+            args["surface_resistance"] = 1.0 / h_value
+        elif r is not None:
+            args["surface_resistance"] = _positive(r, "areal_resistance", t, "surface_resistance", allow_zero=True)
+        elif geometry == "planar":
+            # ISO 6946:2017 Table 7 conventional values for a vertical wall
+            args["surface_resistance"] = ISO6946_RSI_HORIZONTAL if side == "inside" else ISO6946_RSE
+        else:
+            raise t.error("film_coefficient", "is required for a cylinder or sphere (a value, or \"auto\")")
+        eps = t.get("emissivity", 0.9)
+        if isinstance(eps, bool) or not isinstance(eps, (int, float)) or not 0 <= eps <= 1:
+            raise t.error("emissivity", f"must be a number from 0 to 1, got {eps!r}")
+        args["emissivity"] = float(eps)
+        if t.has("solar_absorptance") or t.has("solar_irradiance"):
+            a = t.get("solar_absorptance", required=True)
+            if isinstance(a, bool) or not isinstance(a, (int, float)) or not 0 <= a <= 1:
+                raise t.error("solar_absorptance", f"must be a number from 0 to 1, got {a!r}")
+            args["solar_absorptance"] = float(a)
+            args["solar_irradiance"] = forcing("solar_irradiance", "irradiance", required=True)
+        args["wind_speed"] = forcing("wind_speed", "speed")
+        args["radiant_temperature"] = forcing("radiant_temperature", "temperature")
+        args["sky_temperature"] = forcing("sky_temperature", "temperature")
+        direction = t.get("heat_flow_direction", "horizontal")
+        if direction not in ("up", "horizontal", "down"):
+            raise t.error("heat_flow_direction", f"must be up, horizontal or down, got {direction!r}")
+        args["heat_flow_direction"] = direction
+        tilt = t.get("tilt", 90.0)
+        if isinstance(tilt, str):
+            tilt = parse_quantity(tilt, "angle", file=file, key=t.key("tilt"))
+        if isinstance(tilt, bool) or not isinstance(tilt, (int, float)) or not 0 <= tilt <= 180:
+            raise t.error("tilt", f"must be an angle from 0 to 180 degrees, got {tilt!r}")
+        args["tilt"] = float(tilt)
+        jacket = t.get("jacket")
+        if jacket is not None:
+            args["jacket"] = str(jacket)
+    elif kind == "temperature":
+        args["surface_temperature"] = forcing("surface_temperature", "temperature", required=True)
+    elif kind == "flux":
+        args["heat_flux"] = forcing("heat_flux", "heat_flux", required=True)
+    elif kind == "contents":
+        contents = t.get("contents", "water")
+        if contents != "water":
+            raise t.error("contents", f"only 'water' is modelled, got {contents!r}")
+        args["contents"] = contents
+        args["initial_temperature"] = parse_temperature(
+            t.get("initial_temperature", required=True), file=file, key=t.key("initial_temperature")
+        )
+    rh = t.get("relative_humidity")
+    if rh is not None:
+        args["relative_humidity"] = forcing("relative_humidity", "fraction")
+        if isinstance(rh, (int, float, str)) and not str(rh).startswith("series:"):
+            v = parse_quantity(rh, "fraction", file=file, key=t.key("relative_humidity"))
+            if not 0 < v <= 1:
+                raise t.error("relative_humidity", f"must be between 0 and 100 %, got {rh!r}")
+    for other_kind, keys in _BOUNDARY_KEYS.items():
+        if other_kind == kind:
+            continue
+        for key in keys - _BOUNDARY_KEYS[kind]:
+            if t.has(key):
+                raise t.error(key, f"does not apply to a boundary of type {kind!r}")
+    t.finish()
+    args["values"] = values
+    return BoundarySpec(**args)
+
+
+def _parse_datetime(value: Any, file: str, key: str, timezone: str) -> np.datetime64:
+    if isinstance(value, dt.datetime):
+        stamp = value
+    elif isinstance(value, dt.date):
+        stamp = dt.datetime(value.year, value.month, value.day)
+    elif isinstance(value, str):
+        try:
+            stamp = dt.datetime.fromisoformat(value.strip())
+        except ValueError:
+            raise CaseError(file, key, f"cannot read {value!r} as an ISO 8601 date and time") from None
+    else:
+        raise CaseError(file, key, f"expected an ISO 8601 date and time, got {value!r}")
+    if stamp.tzinfo is None:
+        stamp = stamp.replace(tzinfo=_tzinfo(timezone, file))
+    utc = stamp.astimezone(dt.timezone.utc).replace(tzinfo=None)
+    return np.datetime64(utc.isoformat(timespec="seconds"), "s")
+
+
+def _tzinfo(name: str, file: str) -> dt.tzinfo:
+    if name in ("UTC", "Z", "utc"):
+        return dt.timezone.utc
+    if name[:1] in "+-":
+        try:
+            hours, minutes = name[1:].split(":")
+            delta = dt.timedelta(hours=int(hours), minutes=int(minutes))
+        except ValueError:
+            raise CaseError(file, "series.timezone", f"cannot read offset {name!r} (use +HH:MM)") from None
+        return dt.timezone(delta if name[0] == "+" else -delta)
+    from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
+
+    try:
+        return ZoneInfo(name)
+    except (ZoneInfoNotFoundError, ValueError):
+        raise CaseError(file, "series.timezone", f"unknown time zone {name!r}") from None
+
+
+def _parse_time(t: _Table, series: Series | None, timezone: str) -> TimePlan:
+    file = t.file
+    if t.has("start"):
+        start = _parse_datetime(t.get("start"), file, t.key("start"), timezone)
+    elif series is not None:
+        start = series.time[0].astype("datetime64[s]")
+    else:
+        start = _parse_datetime(DEFAULT_START, file, t.key("start"), "UTC")
+    if t.has("duration") and t.has("end"):
+        raise t.error("end", "give duration or end, not both")
+    if t.has("end"):
+        end = _parse_datetime(t.get("end"), file, t.key("end"), timezone)
+        duration = float((end - start) / np.timedelta64(1, "s"))
+        if duration <= 0:
+            raise t.error("end", "must be after the start")
+    elif t.has("duration"):
+        duration = _positive(t.get("duration"), "duration", t, "duration")
+    elif series is not None:
+        duration = float((series.time[-1] - start) / np.timedelta64(1, "s"))
+        if duration <= 0:
+            raise t.error("start", "is at or after the end of the series")
+    else:
+        raise t.error("duration", "is required (or end, or a series file to run through)")
+    step = _positive(t.get("step", "10 min"), "duration", t, "step")
+    if step > duration:
+        raise t.error("step", "is longer than the run")
+    n = duration / step
+    if abs(n - round(n)) > 1e-6 * n:
+        raise t.error("step", f"must divide the duration ({duration:g} s) into whole steps")
+    output = _positive(t.get("output_every", step if step >= 3600 else "1 h"), "duration", t, "output_every")
+    ratio = output / step
+    if ratio < 1 - 1e-9 or abs(ratio - round(ratio)) > 1e-6 * ratio:
+        raise t.error("output_every", "must be a whole multiple of the step")
+    initial = t.get("initial", "steady")
+    if isinstance(initial, str) and initial.strip() in INITIAL_WORDS:
+        initial_value: float | str = initial.strip()
+    else:
+        initial_value = parse_temperature(initial, file=file, key=t.key("initial"))
+    scheme = t.get("scheme", "backward-euler")
+    if scheme not in SCHEMES:
+        raise t.error("scheme", f"unknown scheme {scheme!r}; use one of {', '.join(SCHEMES)}")
+    period = _positive(t.get("period", "24 h"), "duration", t, "period")
+    if initial_value == "periodic":
+        p = period / step
+        if abs(p - round(p)) > 1e-6 * p:
+            raise t.error("period", "must be a whole number of steps")
+    t.finish()
+    return TimePlan(
+        start=start,
+        duration=duration,
+        step=step,
+        output_every=output,
+        initial=initial_value,
+        scheme=scheme,
+        period=period,
+    )
+
+
+def _parse_sizing(t: _Table, layers, geometry: str, inside: BoundarySpec, outside: BoundarySpec) -> SizingSpec:
+    file = t.file
+    layer = t.get("layer", required=True)
+    if isinstance(layer, bool) or not isinstance(layer, int) or not 1 <= layer <= len(layers):
+        raise t.error("layer", f"must be a layer number from 1 to {len(layers)}, got {layer!r}")
+    if layers[layer - 1].is_gap:
+        raise t.error("layer", "names an air gap, which has no thickness to size")
+    raw = t.get("thicknesses", required=True)
+    if isinstance(raw, dict):
+        r = _Table(raw, file, "sizing.thicknesses")
+        lo = _positive(r.get("from", required=True), "length", r, "from")
+        hi = _positive(r.get("to", required=True), "length", r, "to")
+        st = _positive(r.get("step", required=True), "length", r, "step")
+        r.finish()
+        if hi < lo:
+            raise t.error("thicknesses", "'to' is smaller than 'from'")
+        count = int(math.floor((hi - lo) / st + 1e-9)) + 1
+        if count > 10000:
+            raise t.error("thicknesses", f"{count} candidates is too many (at most 10000)")
+        values = tuple(float(v) for v in lo + st * np.arange(count))
+    elif isinstance(raw, list) and raw:
+        values = tuple(
+            _positive(v, "length", t, f"thicknesses[{i + 1}]") for i, v in enumerate(raw)
+        )
+        if any(b <= a for a, b in zip(values, values[1:])):
+            raise t.error("thicknesses", "must be in increasing order")
+    else:
+        raise t.error("thicknesses", "must be a list of thicknesses or {from, to, step}")
+    heat_kind = {"planar": "heat_flux", "cylinder": "linear_heat_flow"}.get(geometry)
+    out: dict[str, Any] = {"layer": layer, "thicknesses": values}
+    if t.has("max_surface_temperature"):
+        out["max_surface_temperature"] = parse_temperature(t.get("max_surface_temperature"), file=file, key=t.key("max_surface_temperature"))
+    if t.has("dew_point_margin"):
+        out["dew_point_margin"] = parse_quantity(t.get("dew_point_margin"), "temperature_difference", file=file, key=t.key("dew_point_margin"))
+        if outside.relative_humidity is None:
+            raise t.error("dew_point_margin", "needs outside.relative_humidity")
+    if t.has("max_heat_loss"):
+        if heat_kind is None:
+            value = t.get("max_heat_loss")
+            from layers.units import ureg
+
+            try:
+                out["max_heat_loss"] = float(ureg.Quantity(value).to("W").magnitude) if isinstance(value, str) else float(value)
+            except Exception:
+                raise t.error("max_heat_loss", f"must be a power in W for a sphere, got {value!r}") from None
+        else:
+            out["max_heat_loss"] = _positive(t.get("max_heat_loss"), heat_kind, t, "max_heat_loss")
+    if t.has("min_freeze_time"):
+        if inside.kind != "contents":
+            raise t.error("min_freeze_time", "needs inside.type = \"contents\"")
+        out["min_freeze_time"] = _positive(t.get("min_freeze_time"), "duration", t, "min_freeze_time")
+    if t.has("max_ice_fraction"):
+        f = parse_quantity(t.get("max_ice_fraction"), "fraction", file=file, key=t.key("max_ice_fraction"))
+        if not 0 < f <= 1:
+            raise t.error("max_ice_fraction", "must be between 0 and 1")
+        out["max_ice_fraction"] = f
+    t.finish()
+    if not any(k in out for k in ("max_surface_temperature", "dew_point_margin", "max_heat_loss", "min_freeze_time")):
+        raise CaseError(file, "sizing", "names no criterion (max_surface_temperature, dew_point_margin, max_heat_loss or min_freeze_time)")
+    return SizingSpec(**out)

@@ -1,0 +1,210 @@
+"""Command line: parse arguments, call the library, print, set the exit status.
+
+Exit status: 0 success, 1 a criterion failed where that is the question,
+2 bad input (one line naming the file, the key and the reason), 3 internal
+error.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+import warnings
+from collections.abc import Callable, Sequence
+from pathlib import Path
+
+from layers import CAUTION, __version__
+from layers.errors import CaseError
+
+EXIT_OK, EXIT_FAILED, EXIT_INPUT, EXIT_INTERNAL = 0, 1, 2, 3
+
+
+def _err(message: str) -> None:
+    print(f"layers: {message}", file=sys.stderr)
+
+
+class _Progress:
+    """A tqdm bar on a terminal; nothing otherwise."""
+
+    def __init__(self, quiet: bool, desc: str) -> None:
+        self.bar = None
+        if not quiet and sys.stderr.isatty():
+            from tqdm import tqdm
+
+            self.bar = tqdm(total=0, desc=desc, unit="step", leave=False, file=sys.stderr, mininterval=0.5)
+
+    def __call__(self, done: int, total: int) -> None:
+        if self.bar is not None:
+            if self.bar.total != total:
+                self.bar.total = total
+            self.bar.n = done
+            self.bar.refresh()
+
+    def close(self) -> None:
+        if self.bar is not None:
+            self.bar.close()
+
+
+def _write_output(ds, out: str | None) -> Path | None:
+    from layers.results import write_new
+
+    if not out:
+        return None
+    try:
+        return write_new(ds, out)
+    except FileExistsError:
+        raise CaseError(out, "-o", "exists already; layers never overwrites a file (choose another name)") from None
+
+
+def cmd_run(args: argparse.Namespace) -> int:
+    from layers.case import load_case
+    from layers.report import run_summary
+    from layers.results import archive
+    from layers.simulate import simulate
+
+    if args.out and Path(args.out).exists():
+        raise CaseError(args.out, "-o", "exists already; layers never overwrites a file (choose another name)")
+    case = load_case(args.case)
+    if args.label:
+        case.label = args.label
+    progress = _Progress(args.quiet, case.stem)
+    try:
+        ds = simulate(case, progress=progress)
+    finally:
+        progress.close()
+    ds.attrs["command"] = " ".join(["layers", *sys.argv[1:]]) if sys.argv else "layers run"
+    written = archive(ds, case.stem, args.archive)
+    extra = _write_output(ds, args.out)
+    if not args.quiet:
+        print(run_summary(ds))
+        print(f"archived: {written}")
+        if extra:
+            print(f"written:  {extra}")
+        print(f"caution: {CAUTION}")
+    return EXIT_OK
+
+
+def cmd_check(args: argparse.Namespace) -> int:
+    from layers.case import load_case
+    from layers.report import check_report
+
+    case = load_case(args.case)
+    print(check_report(case))
+    return EXIT_OK
+
+
+def cmd_materials(args: argparse.Namespace) -> int:
+    from layers.report import materials_table
+
+    text, count = materials_table(args.word)
+    if count == 0:
+        print(f"no material matches {args.word!r}")
+        return EXIT_FAILED
+    print(text)
+    return EXIT_OK
+
+
+def _not_yet(name: str) -> Callable[[argparse.Namespace], int]:
+    def run(args: argparse.Namespace) -> int:
+        _err(f"'{name}' is not available in this version")
+        return EXIT_INTERNAL
+
+    return run
+
+
+def build_parser() -> argparse.ArgumentParser:
+    p = argparse.ArgumentParser(
+        prog="layers",
+        description="Transient heat analysis of layered walls, roofs and insulated pipes.",
+    )
+    p.add_argument("--version", action="version", version=f"layers {__version__}")
+    sub = p.add_subparsers(dest="command", required=True, metavar="COMMAND")
+
+    r = sub.add_parser("run", help="run a case and archive the result")
+    r.add_argument("case", help="case file (TOML)")
+    r.add_argument("-o", "--out", help="also write the result to this netCDF file (never overwritten)")
+    r.add_argument("--archive", help="archive folder (default: $LAYERS_ARCHIVE or runs/)")
+    r.add_argument("--label", help="a label stored with the run")
+    r.add_argument("--quiet", action="store_true", help="no progress bar and no summary")
+    r.set_defaults(func=cmd_run)
+
+    c = sub.add_parser("check", help="validate a case; print the mesh and the plan")
+    c.add_argument("case")
+    c.set_defaults(func=cmd_check)
+
+    s = sub.add_parser("size", help="insulation sizing (needs [sizing])")
+    s.add_argument("case")
+    s.add_argument("-o", "--out")
+    s.set_defaults(func=_dispatch("layers.sizing_cli", "cmd_size"))
+
+    d = sub.add_parser("periodic", help="ISO 13786 dynamic thermal characteristics")
+    d.add_argument("case")
+    d.add_argument("--period", default="24 h", help="period of the cycle (default 24 h)")
+    d.add_argument("-o", "--out")
+    d.set_defaults(func=_dispatch("layers.report", "cmd_periodic"))
+
+    pl = sub.add_parser("plot", help="plot a run")
+    pl.add_argument("run", help="a run's netCDF file")
+    pl.add_argument("-o", "--out")
+    pl.add_argument("--kind", default="surfaces", choices=["carpet", "surfaces", "profiles", "sizing"])
+    pl.add_argument("--times", nargs="*", help="profiles: times to draw (ISO 8601)")
+    pl.set_defaults(func=_dispatch("layers.plots", "cmd_plot"))
+
+    cp = sub.add_parser("compare", help="compare runs side by side")
+    cp.add_argument("runs", nargs="+")
+    cp.add_argument("-o", "--out", help="overlay plot (PNG, SVG, PDF) or combined Dataset (.nc)")
+    cp.set_defaults(func=_dispatch("layers.archive", "cmd_compare"))
+
+    ls = sub.add_parser("list", help="list the archived runs")
+    ls.add_argument("dir", nargs="?")
+    ls.add_argument("--json", action="store_true")
+    ls.set_defaults(func=_dispatch("layers.archive", "cmd_list"))
+
+    m = sub.add_parser("materials", help="the material library")
+    m.add_argument("word", nargs="?")
+    m.set_defaults(func=cmd_materials)
+    return p
+
+
+def _dispatch(module: str, name: str) -> Callable[[argparse.Namespace], int]:
+    def run(args: argparse.Namespace) -> int:
+        import importlib
+
+        try:
+            mod = importlib.import_module(module)
+        except ModuleNotFoundError as exc:
+            if exc.name == module:
+                return _not_yet(args.command)(args)
+            raise
+        return getattr(mod, name)(args)
+
+    return run
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    parser = build_parser()
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as exc:  # argparse: usage errors exit 2 already
+        return int(exc.code or 0)
+    debug = bool(os.environ.get("LAYERS_DEBUG"))
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("default")
+            return int(args.func(args))
+    except CaseError as exc:
+        _err(str(exc))
+        return EXIT_INPUT
+    except KeyboardInterrupt:
+        _err("interrupted; nothing was written")
+        return 130
+    except Exception as exc:  # noqa: BLE001 - last line of defence: no traceback for users
+        if debug:
+            raise
+        _err(f"internal error: {type(exc).__name__}: {exc} (set LAYERS_DEBUG=1 for a traceback)")
+        return EXIT_INTERNAL
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,264 @@
+"""Text reports for the command line: the case check, run summaries, tables.
+
+These functions build strings; only :mod:`layers.cli` prints them.
+"""
+
+from __future__ import annotations
+
+import argparse
+import math
+
+import numpy as np
+import xarray as xr
+
+from layers import CAUTION
+from layers.case import Case, load_case
+from layers.errors import CaseError
+from layers.mesh import Mesh
+
+
+def _fmt_duration(seconds: float) -> str:
+    for unit, size in (("d", 86400.0), ("h", 3600.0), ("min", 60.0)):
+        if seconds >= size and abs(seconds / size - round(seconds / size)) < 1e-9:
+            return f"{seconds / size:g} {unit}"
+    return f"{seconds:g} s"
+
+
+def _constant(forcing) -> float | None:
+    """The value of a constant forcing, or None for a series."""
+    value = getattr(forcing, "value", None)
+    if value is not None:
+        return float(value)
+    return None
+
+
+def design_resistance(case: Case, mesh: Mesh) -> tuple[float, float, float]:
+    """Film, conduction and film resistances [K W-1 per reference unit] for the U-value.
+
+    Films use the case's surface resistance; an ``"auto"`` film or a
+    non-film boundary counts as the ISO 6946 conventional value on walls and
+    as zero on pipes (reported as such).
+    """
+    conduction = mesh.steady_resistance()
+    films = []
+    for spec, area in ((case.inside, mesh.area_inside), (case.outside, mesh.area_outside)):
+        if spec.kind == "film" and spec.surface_resistance is not None:
+            films.append(spec.surface_resistance / area)
+        elif spec.kind == "film" and case.geometry == "planar":
+            films.append((0.13 if spec.side == "inside" else 0.04) / area)
+        else:
+            films.append(0.0)
+    return films[0], conduction, films[1]
+
+
+def check_report(case: Case) -> str:
+    """What ``layers check`` prints: layers, mesh, steady transmittance, time plan."""
+    from layers.simulate import mesh_for
+
+    mesh = mesh_for(case)
+    lines = [f"case:      {case.path}", f"title:     {case.title}", f"geometry:  {case.geometry}"]
+    if case.geometry != "planar":
+        lines[-1] += f", inner radius {case.inner_radius * 1000:g} mm"
+    lines.append("")
+    lines.append(f"{'#':>2}  {'layer':<22} {'thickness':>10} {'k':>8} {'rho':>7} {'c':>6} {'cells':>5} {'min cell':>9} {'max cell':>9}")
+    lines.append(f"{'':>2}  {'':<22} {'[mm]':>10} {'[W/mK]':>8} {'[kg/m3]':>7} {'[J/kgK]':>6} {'':>5} {'[mm]':>9} {'[mm]':>9}")
+    widths = mesh.x_hi - mesh.x_lo
+    for number, spec in enumerate(case.layers, start=1):
+        if spec.is_gap:
+            lines.append(f"{number:>2}  {'air gap':<22} {spec.thickness * 1000:>10.1f}   R = {spec.resistance:g} m2K/W, no heat capacity")
+            continue
+        sel = mesh.layer == number
+        m = spec.material
+        k = f"{m.conductivity:.4g}" + ("*" if not m.is_constant else "")
+        lines.append(
+            f"{number:>2}  {spec.name[:22]:<22} {spec.thickness * 1000:>10.1f} {k:>8} {m.density:>7.0f} {m.specific_heat:>6.0f} "
+            f"{int(sel.sum()):>5} {widths[sel].min() * 1000:>9.3f} {widths[sel].max() * 1000:>9.3f}"
+        )
+        if spec.contact_resistance:
+            lines.append(f"{'':>2}  contact resistance to the next layer: {spec.contact_resistance:g} m2K/W")
+    lines.append(f"    total {mesh.total_thickness * 1000:.1f} mm in {mesh.n} cells" + ("   (* k(T): value at 10 degC)" if not mesh.is_linear else ""))
+    lines.append("")
+    r_si, r_cond, r_se = design_resistance(case, mesh)
+    total = r_si + r_cond + r_se
+    if case.geometry == "planar":
+        lines.append(
+            f"U-value:   {1.0 / total:.4g} W/(m2*K)   (Rsi {r_si:.3g} + R {r_cond:.4g} + Rse {r_se:.3g} = {total:.4g} m2K/W, ISO 6946)"
+        )
+    t_in = _boundary_temperature(case.inside)
+    t_out = _boundary_temperature(case.outside)
+    if case.geometry != "planar":
+        unit = "W/m" if case.geometry == "cylinder" else "W"
+        lines.append(f"resistance: {total:.4g} K/{unit[:-1] or 'W'}{'*m' if case.geometry == 'cylinder' else ''} surface to surface plus films")
+        if t_in is not None and t_out is not None:
+            lines.append(f"heat loss: {(t_in - t_out) / total:.4g} {unit} at {t_in:g} / {t_out:g} degC (steady, films as given)")
+    elif t_in is not None and t_out is not None:
+        lines.append(f"heat flow: {(t_in - t_out) / total:.4g} W/m2 at {t_in:g} / {t_out:g} degC (steady)")
+    for spec in (case.inside, case.outside):
+        lines.append(f"{spec.side + ':':<10} {_describe_boundary(spec)}")
+    plan = case.time
+    end = plan.start + np.timedelta64(int(round(plan.duration)), "s")
+    lines.append("")
+    lines.append(
+        f"time:      {np.datetime_as_string(plan.start, unit='m')}Z to {np.datetime_as_string(end, unit='m')}Z "
+        f"({_fmt_duration(plan.duration)}), step {_fmt_duration(plan.step)} x {plan.n_steps}, "
+        f"kept every {_fmt_duration(plan.output_every)} ({plan.n_steps // plan.output_stride + 1} records)"
+    )
+    lines.append(f"scheme:    {plan.scheme}; initial state: {plan.initial if isinstance(plan.initial, str) else f'{plan.initial:g} degC'}")
+    if case.series is not None:
+        lines.append(f"series:    {case.series.file} ({len(case.series.time)} rows)")
+    lines.append("")
+    lines.append(f"caution: {CAUTION}")
+    return "\n".join(lines)
+
+
+def _boundary_temperature(spec) -> float | None:
+    if spec.kind == "film":
+        return _constant(spec.air_temperature)
+    if spec.kind == "temperature":
+        return _constant(spec.surface_temperature)
+    if spec.kind == "contents":
+        return spec.initial_temperature
+    return None
+
+
+def _describe_boundary(spec) -> str:
+    if spec.kind == "film":
+        t = _constant(spec.air_temperature)
+        air = f"{t:g} degC" if t is not None else "from a series"
+        if spec.auto_film:
+            film = "film coefficient auto"
+        else:
+            film = f"Rs {spec.surface_resistance:.3g} m2K/W (h {1 / spec.surface_resistance if spec.surface_resistance else math.inf:.3g} W/m2K)"
+        solar = f", solar absorptance {spec.solar_absorptance:g}" if spec.solar_irradiance is not None else ""
+        return f"film, air {air}, {film}{solar}"
+    if spec.kind == "temperature":
+        t = _constant(spec.surface_temperature)
+        return f"surface temperature {t:g} degC" if t is not None else "surface temperature from a series"
+    if spec.kind == "flux":
+        q = _constant(spec.heat_flux)
+        return f"heat flux {q:g} W/m2 into the construction" if q is not None else "heat flux from a series"
+    if spec.kind == "contents":
+        return f"stagnant {spec.contents}, initially {spec.initial_temperature:g} degC"
+    return "adiabatic"
+
+
+def _extreme(da: xr.DataArray, fn) -> tuple[float, str]:
+    i = int(fn(da.values))
+    return float(da.values[i]), str(np.datetime_as_string(da["time"].values[i], unit="m"))
+
+
+def run_summary(ds: xr.Dataset) -> str:
+    """What ``layers run`` prints after a run: extremes, heat flows, energy through each surface."""
+    flow_units = ds["heat_flow_inside"].attrs["units"].replace(" ", "/").replace("-2", "2").replace("/-1", "").replace("m-1", "m")
+    lines = [f"{ds.attrs.get('title', '')}: {ds.sizes['time']} records, {ds.sizes['x']} cells, scheme {ds.attrs['scheme']}"]
+    for side in ("inside", "outside"):
+        s = ds[f"surface_temperature_{side}"]
+        lo, t_lo = _extreme(s, np.argmin)
+        hi, t_hi = _extreme(s, np.argmax)
+        q = ds[f"heat_flow_{side}"].values
+        seconds = (ds["time"].values - ds["time"].values[0]) / np.timedelta64(1, "s")
+        peak_i = int(np.argmax(np.abs(q)))
+        lines.append(
+            f"  {side:<7} surface  min {lo:7.2f} degC at {t_lo}Z   max {hi:7.2f} degC at {t_hi}Z"
+        )
+        mean = float(np.trapezoid(q, seconds) / seconds[-1]) if seconds[-1] > 0 else float(q[0])
+        lines.append(
+            f"          heat flow mean {mean:9.3g} {flow_units}   peak {q[peak_i]:9.3g} {flow_units}"
+        )
+    per = ds.attrs.get("heat_total_units", "J m-2")
+    scale, unit = (3.6e6, "kWh/m2") if per == "J m-2" else ((3.6e6, "kWh/m") if per == "J m-1" else (3.6e6, "kWh"))
+    lines.append(
+        f"  energy in through the inside surface {ds.attrs['heat_in_inside_total'] / scale:.4g} {unit}, "
+        f"out through the outside surface {ds.attrs['heat_out_outside_total'] / scale:.4g} {unit}"
+    )
+    lines.append(f"  energy balance error (relative): {ds.attrs['energy_balance_error']:.1e}")
+    return "\n".join(lines)
+
+
+def materials_table(word: str | None) -> tuple[str, int]:
+    """The material library as a table, filtered by ``word``."""
+    from layers.materials import search
+
+    rows = search(word)
+    lines = [
+        f"{'name':<22} {'k [W/(m*K)]':>12} {'rho [kg/m3]':>12} {'c [J/(kg*K)]':>13}  description; source",
+    ]
+    for m in rows:
+        k = f"{m.conductivity:.4g}" + ("(T)" if not m.is_constant else "")
+        lines.append(f"{m.name:<22} {k:>12} {m.density:>12.0f} {m.specific_heat:>13.0f}  {m.description}; {m.source}")
+    if any(not m.is_constant for m in rows):
+        lines.append("(T): temperature-dependent conductivity; the value shown is at 10 degC")
+    return "\n".join(lines), len(rows)
+
+
+def periodic_elements(case: Case):
+    """The case's layers as ISO 13786 elements, with contact resistances as resistive elements."""
+    from layers.periodic import PeriodicElement
+
+    out = []
+    for spec in case.layers:
+        if spec.is_gap:
+            out.append(PeriodicElement.resistive(spec.resistance, name=spec.name))
+            continue
+        m = spec.material
+        if not m.is_constant:
+            raise CaseError(case.path, "layers", f"{m.name} has a temperature-dependent conductivity; ISO 13786 needs constant properties")
+        out.append(PeriodicElement.layer(spec.thickness, m.conductivity, m.density, m.specific_heat, name=spec.name))
+        if spec.contact_resistance:
+            out.append(PeriodicElement.resistive(spec.contact_resistance, name="contact"))
+    return out
+
+
+def surface_resistances(case: Case) -> tuple[float, float]:
+    """Rsi and Rse [m2 K W-1] of a planar case for ISO 13786 (auto films: ISO 6946 conventional values)."""
+    out = []
+    for spec, default in ((case.inside, 0.13), (case.outside, 0.04)):
+        if spec.kind == "film":
+            out.append(spec.surface_resistance if spec.surface_resistance is not None else default)
+        elif spec.kind == "temperature":
+            out.append(0.0)
+        else:
+            raise CaseError(case.path, f"{spec.side}.type", f"ISO 13786 needs a film or temperature boundary, not {spec.kind!r}")
+    return out[0], out[1]
+
+
+def periodic_report(case: Case, period: float):
+    """Dynamic characteristics of the case's construction and their text table."""
+    from layers.periodic import dynamic_characteristics
+
+    if case.geometry != "planar":
+        raise CaseError(case.path, "geometry.kind", "ISO 13786 dynamic characteristics are for planar constructions only")
+    r_si, r_se = surface_resistances(case)
+    dc = dynamic_characteristics(periodic_elements(case), r_si, r_se, period)
+    lines = [
+        f"ISO 13786 dynamic thermal characteristics, period {_fmt_duration(period)}  (Rsi {r_si:g}, Rse {r_se:g} m2K/W)",
+        f"  thermal transmittance U            {dc.thermal_transmittance:10.4g} W/(m2*K)",
+        f"  periodic transmittance |Y12|       {abs(dc.periodic_transmittance):10.4g} W/(m2*K)   time shift {dc.time_shift:7.2f} h",
+        f"  decrement factor f                 {dc.decrement_factor:10.4g}",
+        f"  internal admittance |Y11|          {abs(dc.internal_admittance):10.4g} W/(m2*K)   time shift {dc.admittance_time_shift_inside:7.2f} h",
+        f"  external admittance |Y22|          {abs(dc.external_admittance):10.4g} W/(m2*K)   time shift {dc.admittance_time_shift_outside:7.2f} h",
+        f"  areal heat capacity inside  k1     {dc.areal_heat_capacity_inside / 1000:10.4g} kJ/(m2*K)",
+        f"  areal heat capacity outside k2     {dc.areal_heat_capacity_outside / 1000:10.4g} kJ/(m2*K)",
+        "  (time shifts follow ISO 13786: negative is a delay)",
+    ]
+    return dc, "\n".join(lines)
+
+
+def cmd_periodic(args: argparse.Namespace) -> int:
+    """``layers periodic CASE [--period 24h] [-o OUT.nc]``."""
+    from layers.cli import _write_output
+    from layers.units import parse_quantity
+
+    case = load_case(args.case)
+    period = parse_quantity(args.period, "duration", file="(command line)", key="--period")
+    if period <= 0:
+        raise CaseError("(command line)", "--period", "must be positive")
+    dc, text = periodic_report(case, period)
+    ds = dc.to_dataset(title=case.title)
+    ds.attrs.update({"case": case.text, "case_sha256": case.sha256, "caution": CAUTION})
+    print(text)
+    written = _write_output(ds, args.out)
+    if written:
+        print(f"written: {written}")
+    print(f"caution: {CAUTION}")
+    return 0

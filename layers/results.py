@@ -1,0 +1,206 @@
+"""Arrays to a labelled Dataset (CF-1.10), and the atomic archive write.
+
+Every variable carries ``units`` and ``long_name``; ``standard_name`` is set
+only where the CF standard-name table has the name.  Values are
+instantaneous at their time stamps (``cell_methods = "time: point"``).
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import os
+import tempfile
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import xarray as xr
+
+from layers import CAUTION, __version__
+from layers.case import Case
+from layers.mesh import Mesh
+
+ARCHIVE_ENV = "LAYERS_ARCHIVE"
+DEFAULT_ARCHIVE = "runs"
+
+#: Per-reference-unit heat-flow units by geometry (CF/UDUNITS spelling).
+HEAT_FLOW_UNITS = {"planar": "W m-2", "cylinder": "W m-1", "sphere": "W"}
+ENERGY_UNITS = {"planar": "J m-2", "cylinder": "J m-1", "sphere": "J"}
+
+
+def _point(values: np.ndarray, units: str, long_name: str, **attrs: Any) -> tuple:
+    return ("time", np.asarray(values, dtype=float), {"units": units, "long_name": long_name, "cell_methods": "time: point", **attrs})
+
+
+def to_dataset(
+    case: Case,
+    mesh: Mesh,
+    *,
+    seconds: np.ndarray,
+    temperature: np.ndarray,
+    surface_temperature_inside: np.ndarray,
+    surface_temperature_outside: np.ndarray,
+    heat_flow_inside: np.ndarray,
+    heat_flow_outside: np.ndarray,
+    stored_energy: np.ndarray,
+    energy_balance_error: float,
+    heat_in_total: float,
+    heat_out_total: float,
+    extra: dict[str, np.ndarray] | None = None,
+    periodic_cycles: int = 0,
+) -> xr.Dataset:
+    """Assemble the result Dataset of a run.
+
+    Parameters
+    ----------
+    seconds : (m,) output times from the start [s]
+    temperature : (m, n) cell temperatures [degC]
+    heat_flow_inside, heat_flow_outside : (m,)
+        Positive from inside to outside [W per reference unit].
+    stored_energy : (m,) [J per reference unit], relative to 0 degC
+    energy_balance_error : float
+        Relative error of the run's energy balance [-].
+    """
+    flow_units = HEAT_FLOW_UNITS[case.geometry]
+    per = {"planar": "per square metre of wall", "cylinder": "per metre of pipe", "sphere": "whole sphere"}[case.geometry]
+    times = case.datetimes(seconds).astype("datetime64[ns]")
+    data_vars: dict[str, tuple] = {
+        "temperature": (
+            ("time", "x"),
+            temperature,
+            {"units": "degC", "long_name": "temperature at cell centres", "cell_methods": "time: point"},
+        ),
+        "surface_temperature_inside": _point(surface_temperature_inside, "degC", "inside surface temperature"),
+        "surface_temperature_outside": _point(surface_temperature_outside, "degC", "outside surface temperature"),
+        "heat_flow_inside": _point(
+            heat_flow_inside, flow_units, f"heat flow through the inside surface, positive outward, {per}"
+        ),
+        "heat_flow_outside": _point(
+            heat_flow_outside, flow_units, f"heat flow through the outside surface, positive outward, {per}"
+        ),
+        "stored_energy": _point(
+            stored_energy, ENERGY_UNITS[case.geometry], f"sensible heat stored in the construction relative to 0 degC, {per}"
+        ),
+    }
+    names = {
+        "air_temperature_inside": ("degC", "inside air temperature", {"standard_name": "air_temperature"}),
+        "air_temperature_outside": ("degC", "outside air temperature", {"standard_name": "air_temperature"}),
+        "sol_air_temperature_inside": ("degC", "inside sol-air temperature", {}),
+        "sol_air_temperature_outside": ("degC", "outside sol-air temperature", {}),
+    }
+    for name, values in (extra or {}).items():
+        units, long_name, attrs = names.get(name, ("1", name.replace("_", " "), {}))
+        if isinstance(values, tuple):
+            units, long_name, values = values
+            attrs = {}
+        data_vars[name] = _point(values, units, long_name, **attrs)
+    coords: dict[str, tuple] = {
+        "time": ("time", times, {"long_name": "time", "standard_name": "time", "axis": "T"}),
+        "x": ("x", mesh.x, {"units": "m", "long_name": "distance of the cell centre from the inside surface", "axis": "X"}),
+        "layer": ("x", mesh.layer.astype(np.int32), {"long_name": "layer number from the inside (1-based)", "units": "1"}),
+        "material": ("x", np.array([m.name for m in mesh.materials], dtype=object), {"long_name": "material name"}),
+    }
+    if case.geometry != "planar":
+        coords["radius"] = ("x", mesh.radius, {"units": "m", "long_name": "radius of the cell centre"})
+    ds = xr.Dataset(data_vars=data_vars, coords=coords)
+    ds["layer_interface"] = (
+        "interface",
+        mesh.interfaces,
+        {"units": "m", "long_name": "distance of each layer face from the inside surface"},
+    )
+    ds.attrs = {
+        "Conventions": "CF-1.10",
+        "title": case.title,
+        "label": case.label,
+        "institution": "",
+        "source": f"layers {__version__} finite-volume heat conduction",
+        "history": f"{_now()} layers run {Path(case.path).name}",
+        "case": case.text,
+        "case_file": Path(case.path).name,
+        "case_sha256": case.sha256,
+        "software_version": __version__,
+        "created": _now(),
+        "geometry": case.geometry,
+        "reference_unit": case.reference_unit,
+        "scheme": case.time.scheme,
+        "time_step": float(case.time.step),
+        "time_step_units": "s",
+        "output_every": float(case.time.output_every),
+        "initial": str(case.time.initial),
+        "periodic_cycles": int(periodic_cycles),
+        "cells": int(mesh.n),
+        "energy_balance_error": float(energy_balance_error),
+        "heat_in_inside_total": float(heat_in_total),
+        "heat_out_outside_total": float(heat_out_total),
+        "heat_total_units": ENERGY_UNITS[case.geometry],
+        "caution": CAUTION,
+    }
+    if case.series is not None:
+        ds.attrs["series_file"] = Path(case.series.file).name
+        ds.attrs["series_sha256"] = case.series.sha256
+        filled = {k: v for k, v in case.series.filled.items() if v}
+        if filled:
+            ds.attrs["series_filled"] = ", ".join(f"{k}: {v} values" for k, v in filled.items())
+    ds.attrs = {k: v for k, v in ds.attrs.items() if v != ""}
+    ds["time"].encoding.update({"units": f"seconds since {np.datetime_as_string(times[0], unit='s')}", "calendar": "proleptic_gregorian", "dtype": "float64"})
+    return ds
+
+
+def _now() -> str:
+    return dt.datetime.now(dt.timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
+
+
+def archive_dir(explicit: str | os.PathLike | None = None) -> Path:
+    """The archive folder: ``--archive``, else ``$LAYERS_ARCHIVE``, else ``runs/``."""
+    if explicit:
+        return Path(explicit)
+    return Path(os.environ.get(ARCHIVE_ENV) or DEFAULT_ARCHIVE)
+
+
+def write_new(ds: xr.Dataset, path: str | os.PathLike) -> Path:
+    """Write ``ds`` to ``path`` atomically, never overwriting an existing file.
+
+    The file is written to a temporary name in the same folder and then
+    hard-linked into place (``link`` fails if the name exists), so an
+    interrupted write leaves no partial file under the final name.
+
+    Raises
+    ------
+    FileExistsError
+        If ``path`` exists.
+    """
+    path = Path(path)
+    if path.exists():
+        raise FileExistsError(str(path))
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.stem}.", suffix=".partial", dir=path.parent)
+    os.close(fd)
+    try:
+        ds.to_netcdf(tmp, engine="netcdf4")
+        os.link(tmp, path)
+    finally:
+        try:
+            os.unlink(tmp)
+        except FileNotFoundError:
+            pass
+    return path
+
+
+def archive(ds: xr.Dataset, stem: str, folder: str | os.PathLike | None = None) -> Path:
+    """Write a run to the archive as ``<stem>-<UTC timestamp>.nc``, never overwriting.
+
+    Returns
+    -------
+    Path
+        The file written.
+    """
+    folder = archive_dir(folder)
+    stamp = dt.datetime.now(dt.timezone.utc).strftime("%Y%m%dT%H%M%SZ")
+    for n in range(1, 10000):
+        suffix = "" if n == 1 else f"-{n}"
+        candidate = folder / f"{stem}-{stamp}{suffix}.nc"
+        try:
+            return write_new(ds, candidate)
+        except FileExistsError:
+            continue
+    raise FileExistsError(f"no free archive name for {stem} in {folder}")
