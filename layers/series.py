@@ -1,0 +1,874 @@
+"""Time series that drive boundary conditions: CSV and netCDF files, generated cycles.
+
+A weather or process-temperature history is read once, checked, converted to
+SI (temperatures in degC) and kept as a :class:`Series` on a UTC time axis.
+A :class:`Forcing` then gives one boundary quantity as a function of time:
+a constant, a column of the series (linear interpolation), or a generated
+daily cycle (:func:`daily_cycle`).
+
+Reading rules
+-------------
+Times
+    ISO 8601, naive (``2026-07-01T13:00``, ``2026-07-01 13:00:00``) or with an
+    offset (``...Z``, ``...+01:00``, ``...+0100``).  Offsets convert to UTC.
+    Naive times are read in ``timezone``: ``"UTC"``, a fixed offset
+    (``"+01:00"``) or an IANA name (``"Europe/Berlin"``).
+Daylight-saving changes (IANA zones)
+    A naive time that does not exist (clocks went forward) is refused.  A time
+    that occurs twice (clocks went back) is resolved by the file's order: it is
+    read as the first instant (daylight-saving time) until the local clock
+    steps back, and as the second instant (standard time) from then on, so an
+    hour that is logged twice keeps both halves in order.
+Gaps and missing values
+    An interval between rows longer than ``max_interval`` (default three times
+    the median interval) is a gap.  Empty cells and ``NaN``/``NA`` are missing
+    values.  Both are refused unless ``fill_gaps`` is given: then a run of
+    missing values is filled by linear interpolation in time when the span
+    between the valid values on either side is at most ``fill_gaps``; a gap
+    of at most ``fill_gaps`` gets rows inserted at about the median interval,
+    filled the same way.  Missing values at the start or end of the file are
+    never filled (there is nothing to interpolate from).  :attr:`Series.filled`
+    counts the filled values per column.
+Plausible ranges
+    After conversion: temperature -273.15 to 2000 degC, irradiance 0 to
+    1500 W/m2, fraction (relative humidity) 0 to 1, speed 0 to 100 m/s.
+CSV
+    One header row naming the columns; the delimiter (``,``, ``;`` or tab) is
+    taken from the header; with ``;`` or tab a decimal comma is accepted.
+    Lines starting with ``#`` are comments.  Row numbers in messages are the
+    line numbers a spreadsheet shows (header = row 1 when there are no
+    comment lines).
+netCDF
+    Read with xarray; the time variable must decode as CF time (standard
+    calendar).  CF times are UTC, so ``timezone`` must be UTC.  A variable's
+    ``units`` attribute, when pint can read it, must agree with the unit
+    the case file gives.
+"""
+
+from __future__ import annotations
+
+import csv
+import hashlib
+import io
+import math
+import re
+import warnings
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass, field
+from datetime import datetime, timedelta
+from pathlib import Path
+from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
+
+import numpy as np
+
+from layers.errors import CaseError, SeriesError
+from layers.units import KINDS, unit_factor
+
+__all__ = [
+    "RANGES",
+    "ColumnSpec",
+    "Forcing",
+    "Series",
+    "daily_cycle",
+    "read_series",
+]
+
+#: Plausible range of each kind after conversion: kind -> (low, high, unit shown).
+#: Values outside are refused; kinds not listed are not range-checked.
+RANGES: dict[str, tuple[float, float, str]] = {
+    "temperature": (-273.15, 2000.0, "degC"),
+    "irradiance": (0.0, 1500.0, "W/m2"),
+    "fraction": (0.0, 1.0, "1"),
+    "speed": (0.0, 100.0, "m/s"),
+}
+
+_NETCDF_SUFFIXES = {".nc", ".nc4", ".netcdf", ".cdf"}
+_MISSING_TOKENS = {"", "nan", "na", "n/a", "#n/a", "null", "none"}
+_ISO = re.compile(
+    r"\s*(\d{4}-\d{2}-\d{2})"
+    r"(?:[T ](\d{2}(?::\d{2}(?::\d{2}(?:[.,]\d+)?)?)?))?"
+    r"\s*(Z|[+-]\d{2}(?::?\d{2})?)?\s*$"
+)
+_OFFSET = re.compile(r"(?:UTC|GMT)?\s*([+-])(\d{1,2})(?::?(\d{2}))?$")
+_EPOCH = datetime(1970, 1, 1)
+_EPOCH64 = np.datetime64("1970-01-01T00:00:00", "s")
+
+
+@dataclass(frozen=True)
+class ColumnSpec:
+    """One column of a series file, as the case file names it.
+
+    Parameters
+    ----------
+    name : str
+        The name the case file uses (``"series:NAME"``).
+    column : str
+        The column header (CSV) or variable name (netCDF) in the file.
+    unit : str
+        The unit of the numbers in the file, e.g. ``"degC"``, ``"W/m2"``, ``"%"``.
+    kind : str
+        ``"temperature"`` or a key of :data:`layers.units.KINDS`
+        (``"irradiance"``, ``"fraction"``, ``"speed"``, ``"heat_flux"``...).
+    """
+
+    name: str
+    column: str
+    unit: str
+    kind: str
+
+
+@dataclass
+class Series:
+    """A checked time series in SI on a UTC time axis.
+
+    Attributes
+    ----------
+    time : numpy.ndarray
+        Time stamps, ``datetime64[s]``, UTC, strictly increasing.
+    values : dict[str, numpy.ndarray]
+        Values per column name, SI (temperatures [degC]), no NaN.
+    kinds : dict[str, str]
+        Kind of each column (``"temperature"``, ``"irradiance"``...).
+    file : str
+        The file read.
+    sha256 : str
+        Hex digest of the file's bytes (provenance).
+    filled : dict[str, int]
+        How many values of each column were filled by interpolation.
+    units : dict[str, str]
+        The unit each column was written in, in the file.
+    """
+
+    time: np.ndarray
+    values: dict[str, np.ndarray]
+    kinds: dict[str, str]
+    file: str
+    sha256: str
+    filled: dict[str, int] = field(default_factory=dict)
+    units: dict[str, str] = field(default_factory=dict)
+
+    def seconds_since(self, start: np.datetime64) -> np.ndarray:
+        """Time of each row after ``start`` [s] (negative before it)."""
+        return (self.time - np.datetime64(start)) / np.timedelta64(1, "s")
+
+    def span(self) -> tuple[np.datetime64, np.datetime64]:
+        """First and last time stamp (UTC)."""
+        return self.time[0], self.time[-1]
+
+
+# ---------------------------------------------------------------------------
+# small helpers
+
+
+def _iso(t: np.datetime64) -> str:
+    """A UTC time stamp as ``2026-07-01T13:00Z`` (seconds only when not zero)."""
+    text = str(np.datetime64(t, "s"))
+    if text.endswith(":00"):
+        text = text[:-3]
+    return text + "Z"
+
+
+def _duration(seconds: float) -> str:
+    """A duration in the largest unit that keeps it readable: ``3 h``, ``90 min``."""
+    s = float(seconds)
+    for unit, size in (("d", 86400.0), ("h", 3600.0), ("min", 60.0)):
+        if abs(s) >= size and (abs(s) >= 10 * size or (s / size) == round(s / size, 2)):
+            return f"{s / size:g} {unit}"
+    return f"{s:g} s"
+
+
+def _show(value: float) -> str:
+    return f"{value:.6g}"
+
+
+class _Clock:
+    """How naive local times become UTC: a fixed offset or an IANA zone."""
+
+    def __init__(self, text: str, *, file: str, key: str) -> None:
+        self.text = text
+        self.offset = 0  # [s], used when zone is None
+        self.zone: ZoneInfo | None = None
+        name = str(text).strip()
+        if name.upper() in ("UTC", "Z", "GMT"):
+            return
+        m = _OFFSET.fullmatch(name)
+        if m:
+            sign, hours, minutes = m.groups()
+            off = int(hours) * 3600 + int(minutes or 0) * 60
+            if off > 18 * 3600 or int(minutes or 0) >= 60:
+                raise SeriesError(file, key, f"offset {text!r} is out of range (use +HH:MM up to 18 h)")
+            self.offset = off if sign == "+" else -off
+            return
+        try:
+            self.zone = ZoneInfo(name)
+        except (ZoneInfoNotFoundError, ValueError):
+            raise SeriesError(
+                file, key, f"unknown time zone {text!r} (use 'UTC', an offset like '+01:00' or an IANA name like 'Europe/Berlin')"
+            ) from None
+
+    @property
+    def is_utc(self) -> bool:
+        return self.zone is None and self.offset == 0
+
+    def standard_offset(self) -> int:
+        """Offset from UTC without daylight saving [s] (for generated cycles)."""
+        if self.zone is None:
+            return self.offset
+        probe = datetime(2001, 1, 15, 12, tzinfo=self.zone)
+        return int((probe.utcoffset() - (probe.dst() or timedelta(0))).total_seconds())
+
+    def _zone_offset(self, local_seconds: int, fold: int) -> int:
+        wall = (_EPOCH + timedelta(seconds=int(local_seconds))).replace(tzinfo=self.zone, fold=fold)
+        return int(wall.utcoffset().total_seconds())
+
+    def to_utc(self, local: np.ndarray, where: Callable[[int], tuple[str, str]]) -> np.ndarray:
+        """Naive local times [s since 1970 on the wall clock] -> UTC [s since 1970].
+
+        ``where(i)`` gives the (file, key) of row ``i`` for error messages.
+        """
+        if self.zone is None:
+            return local - self.offset
+        # The offset is constant within a local day except on the (rare) days
+        # of a change: find those from the offsets at consecutive midnights and
+        # look at every row only there.
+        days = local // 86400
+        unique_days, inverse = np.unique(days, return_inverse=True)
+        at_start = np.array([self._zone_offset(d * 86400, 0) for d in unique_days], dtype=np.int64)
+        at_end = np.array([self._zone_offset((d + 1) * 86400, 0) for d in unique_days], dtype=np.int64)
+        offsets = at_start[inverse]
+        for k in np.flatnonzero(at_start != at_end):
+            previous_ambiguous = None
+            second_pass = False
+            for i in np.flatnonzero(inverse == k):
+                before = self._zone_offset(local[i], 0)
+                after = self._zone_offset(local[i], 1)
+                if before == after:
+                    offsets[i] = before
+                elif before < after:  # a gap: the clocks went forward over this time
+                    wall = _EPOCH + timedelta(seconds=int(local[i]))
+                    raise SeriesError(
+                        *where(int(i)),
+                        f"local time {wall.isoformat(timespec='minutes')} does not exist in {self.text} "
+                        "(the clocks went forward); write the times with a UTC offset, or set "
+                        "series.timezone to a fixed offset such as '+01:00'",
+                    )
+                else:  # repeated hour: first pass is daylight-saving time, then standard time
+                    if previous_ambiguous is not None and local[i] <= local[previous_ambiguous]:
+                        second_pass = True
+                    offsets[i] = after if second_pass else before
+                    previous_ambiguous = i
+        return local - offsets
+
+
+def _check_unit(spec: ColumnSpec, *, case_file: str, file: str) -> tuple[float, float]:
+    """Scale and offset from the column's unit to SI, refusing a unit that does not fit."""
+    key = f"series.columns.{spec.name}.unit"
+    if spec.kind != "temperature" and spec.kind not in KINDS:
+        raise SeriesError(case_file, f"series.columns.{spec.name}", f"unknown kind {spec.kind!r}")
+    try:
+        return unit_factor(spec.unit, spec.kind, file=case_file, key=key)
+    except CaseError as exc:
+        reason = exc.reason
+    except Exception as exc:  # pint raises several unrelated types for unreadable units
+        reason = f"cannot read unit {spec.unit!r} ({exc})"
+    raise SeriesError(case_file, key, f"column {spec.column!r} of {file}: {reason}")
+
+
+# ---------------------------------------------------------------------------
+# file readers: each returns UTC seconds, raw columns and a row namer
+
+
+@dataclass
+class _Raw:
+    seconds: np.ndarray  # int64, UTC, file order
+    columns: dict[str, np.ndarray]  # file column -> float64, unconverted
+    row: Callable[[int], str]  # index -> "row 14" / "time[13]"
+    column: Callable[[str], str]  # name -> "column T_out" / "variable T_out"
+
+
+def _parse_times(texts: list[str], clock: _Clock, where: Callable[[int], tuple[str, str]]) -> np.ndarray:
+    """ISO 8601 strings -> UTC seconds since 1970 (int64)."""
+    if texts and min(map(len, texts)) >= 10:
+        # fast path: numpy reads naive ISO 8601 itself; it warns on (and we
+        # then take the slow path for) offsets, and gives NaT for empty cells
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("error")
+                stamps = np.array(texts, dtype="datetime64[ms]")
+        except (ValueError, Warning):
+            stamps = None
+        if stamps is not None and not np.isnat(stamps).any():
+            seconds = (stamps.astype(np.int64) + 500) // 1000
+            return seconds if clock.is_utc else clock.to_utc(seconds, where)
+    n = len(texts)
+    bases: list[str] = [""] * n
+    offsets = np.zeros(n, dtype=np.int64)
+    naive = np.zeros(n, dtype=bool)
+    match = _ISO.match
+    hint = "expected ISO 8601 such as 2026-07-01T13:00, 2026-07-01 13:00:00 or 2026-07-01T13:00+01:00"
+    for i, text in enumerate(texts):
+        m = match(text)
+        if m is None:
+            raise SeriesError(*where(i), f"cannot read {text!r} as a time ({hint})")
+        date, clock_time, zone = m.groups()
+        bases[i] = date if clock_time is None else f"{date}T{clock_time.replace(',', '.')}"
+        if zone is None:
+            naive[i] = True
+        elif zone != "Z":
+            hours, minutes = int(zone[1:3]), int(zone[-2:]) if len(zone) > 3 else 0
+            offsets[i] = (hours * 3600 + minutes * 60) * (1 if zone[0] == "+" else -1)
+    try:
+        stamps = np.array(bases, dtype="datetime64[ms]")
+    except ValueError:
+        for i, base in enumerate(bases):
+            try:
+                np.datetime64(base, "ms")
+            except ValueError:
+                raise SeriesError(*where(i), f"cannot read {texts[i]!r} as a time ({hint})") from None
+        raise
+    ms = stamps.astype(np.int64)
+    seconds = (ms + 500) // 1000  # round sub-second stamps to the nearest second
+    seconds = seconds - offsets
+    if naive.any() and not clock.is_utc:
+        index = np.flatnonzero(naive)
+        seconds[index] = clock.to_utc(seconds[index], lambda j: where(int(index[j])))
+    return seconds
+
+
+def _to_floats(texts: list[str], decimal_comma: bool, where: Callable[[int], tuple[str, str]]) -> np.ndarray:
+    """Cells -> float64; empty and NA-like cells -> NaN; other text is refused."""
+    try:
+        return np.array(texts, dtype=np.float64)
+    except ValueError:
+        pass
+    out = np.empty(len(texts), dtype=np.float64)
+    for i, text in enumerate(texts):
+        cell = text.strip()
+        try:
+            out[i] = float(cell)
+            continue
+        except ValueError:
+            pass
+        if cell.lower() in _MISSING_TOKENS:
+            out[i] = math.nan
+            continue
+        if decimal_comma and cell.count(",") == 1 and "." not in cell:
+            try:
+                out[i] = float(cell.replace(",", "."))
+                continue
+            except ValueError:
+                pass
+        raise SeriesError(*where(i), f"cannot read {text!r} as a number")
+    return out
+
+
+def _sniff_delimiter(header: str) -> str:
+    counts = {d: header.count(d) for d in (",", ";", "\t")}
+    best = max(counts, key=counts.get)
+    return best if counts[best] else ","
+
+
+def _read_csv(data: bytes, file: str, time: str, columns: list[str], clock: _Clock) -> _Raw:
+    try:
+        text = data.decode("utf-8-sig")
+    except UnicodeDecodeError:
+        text = data.decode("latin-1")  # spreadsheet exports on Windows (a "°C" in a header)
+    # The header is the first line that is neither blank nor a comment.
+    header_line = next((ln for ln in io.StringIO(text) if ln.strip() and not ln.lstrip().startswith("#")), None)
+    if header_line is None:
+        raise SeriesError(file, "row 1", "the file is empty (expected a header row naming the columns)")
+    delimiter = _sniff_delimiter(header_line)
+    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter)
+    header: list[str] = []
+    header_row = 0
+    for row in reader:
+        if row and any(c.strip() for c in row) and not row[0].lstrip().startswith("#"):
+            header = [c.strip() for c in row]
+            header_row = reader.line_num
+            break
+    present = ", ".join(repr(h) for h in header)
+
+    def index_of(name: str, what: str) -> int:
+        hits = [i for i, h in enumerate(header) if h == name]
+        if len(hits) == 1:
+            return hits[0]
+        if len(hits) > 1:
+            raise SeriesError(file, f"row {header_row}, column {name}", f"the header names column {name!r} {len(hits)} times")
+        near = [h for h in header if h.lower() == name.lower()]
+        also = f" (did you mean {near[0]!r}? names are case-sensitive)" if near else ""
+        raise SeriesError(file, f"row {header_row}, column {name}", f"no {what} column {name!r}{also}; the columns are: {present}")
+
+    ti = index_of(time, "time")
+    wanted = list(dict.fromkeys(columns))
+    indices = [index_of(c, "data") for c in wanted]
+    need = max([ti, *indices])
+    rows: list[list[str]] = []
+    lines: list[int] = []
+    for row in reader:
+        rows.append(row)
+        lines.append(reader.line_num)
+    if not all(len(row) > need and row[ti] and row[0][:1] != "#" for row in rows):
+        # slow path: drop comments and blank lines, pad short rows with empty cells
+        kept_rows: list[list[str]] = []
+        kept_lines: list[int] = []
+        for row, line in zip(rows, lines):
+            if not row or row[0].lstrip().startswith("#"):
+                continue
+            if len(row) <= need or not row[ti].strip():
+                if not any(c.strip() for c in row):
+                    continue  # a blank line, or a row of empty cells at the end of an export
+                row = row + [""] * (need + 1 - len(row))
+            kept_rows.append(row)
+            kept_lines.append(line)
+        rows, lines = kept_rows, kept_lines
+    times = [row[ti] for row in rows]
+    cells = [[row[i] for row in rows] for i in indices]
+    del rows
+    if not lines:
+        raise SeriesError(file, f"row {header_row + 1}", "the file has a header but no data rows")
+    line_numbers = np.asarray(lines)
+    decimal_comma = delimiter != ","
+    seconds = _parse_times(times, clock, lambda i: (file, f"row {lines[i]}, column {time}"))
+    raw = {
+        name: _to_floats(store, decimal_comma, lambda i, name=name: (file, f"row {lines[i]}, column {name}"))
+        for name, store in zip(wanted, cells)
+    }
+    return _Raw(seconds, raw, lambda i: f"row {line_numbers[i]}", lambda c: f"column {c}")
+
+
+def _check_declared_unit(declared: object, spec: ColumnSpec, factor: tuple[float, float], file: str, case_file: str) -> None:
+    """Refuse a netCDF variable whose ``units`` attribute contradicts the case file."""
+    if not isinstance(declared, str) or not declared.strip():
+        return
+    try:
+        theirs = unit_factor(declared.strip(), spec.kind, file=file, key=spec.column)
+    except Exception:  # a CF unit string pint cannot read: nothing to compare
+        return
+    if not np.allclose(theirs, factor, rtol=1e-9, atol=1e-9):
+        raise SeriesError(
+            case_file,
+            f"series.columns.{spec.name}.unit",
+            f"the case gives unit {spec.unit!r} but variable {spec.column!r} of {file} declares units {declared!r}",
+        )
+
+
+def _read_netcdf(path: Path, file: str, time: str, specs: Sequence[ColumnSpec], factors: dict[str, tuple[float, float]], clock: _Clock, case_file: str) -> _Raw:
+    import xarray as xr
+
+    if not clock.is_utc:
+        raise SeriesError(
+            case_file,
+            "series.timezone",
+            f"{file} is netCDF, whose CF times are UTC (or carry their offset in the units); "
+            f"timezone {clock.text!r} does not apply: remove it or set it to 'UTC'",
+        )
+    try:
+        ds = xr.open_dataset(path, decode_times=True)
+    except Exception as exc:  # the backends raise many types for unreadable files
+        raise SeriesError(file, "series.file", f"cannot read as netCDF ({exc})") from None
+    with ds:
+        present = ", ".join(repr(str(v)) for v in ds.variables)
+        if time not in ds.variables:
+            raise SeriesError(file, f"variable {time}", f"no time variable {time!r}; the variables are: {present}")
+        tv = ds[time]
+        if tv.ndim != 1:
+            raise SeriesError(file, f"variable {time}", f"the time variable must be one-dimensional, it has dimensions {tv.dims}")
+        if tv.dtype.kind != "M":
+            if tv.dtype.kind == "O":
+                reason = "times use a non-standard calendar; only the standard (Gregorian) calendar is supported"
+            else:
+                reason = "times did not decode as CF time: give the variable units like 'hours since 2026-01-01 00:00:00'"
+            raise SeriesError(file, f"variable {time}", reason)
+        stamps = tv.values
+        bad = np.flatnonzero(np.isnat(stamps))
+        if bad.size:
+            raise SeriesError(file, f"{time}[{bad[0]}], variable {time}", "missing time (NaT)")
+        ms = stamps.astype("datetime64[ms]").astype(np.int64)
+        seconds = (ms + 500) // 1000
+        raw: dict[str, np.ndarray] = {}
+        for spec in specs:
+            if spec.column in raw:
+                continue
+            if spec.column not in ds.variables:
+                raise SeriesError(file, f"variable {spec.column}", f"no data variable {spec.column!r}; the variables are: {present}")
+            var = ds[spec.column]
+            if var.dims != tv.dims:
+                raise SeriesError(
+                    file, f"variable {spec.column}", f"must have the dimension of the time variable {tv.dims}, it has {var.dims}"
+                )
+            _check_declared_unit(var.attrs.get("units"), spec, factors[spec.name], file, case_file)
+            try:
+                raw[spec.column] = np.asarray(var.values, dtype=np.float64)
+            except (TypeError, ValueError):
+                raise SeriesError(file, f"variable {spec.column}", f"is not numeric (dtype {var.dtype})") from None
+    return _Raw(seconds, raw, lambda i: f"{time}[{i}]", lambda c: f"variable {c}")
+
+
+def _is_netcdf(path: Path, data: bytes) -> bool:
+    return path.suffix.lower() in _NETCDF_SUFFIXES or data[:3] == b"CDF" or data[:4] == b"\x89HDF"
+
+
+# ---------------------------------------------------------------------------
+# checks shared by both formats
+
+
+def _check_order(t: np.ndarray, raw: _Raw, file: str, time: str) -> None:
+    step = np.diff(t)
+    bad = np.flatnonzero(step <= 0)
+    if not bad.size:
+        return
+    i = int(bad[0]) + 1
+    key = f"{raw.row(i)}, {raw.column(time)}"
+    if step[i - 1] == 0:
+        raise SeriesError(file, key, f"duplicate time {_iso(t[i] + _EPOCH64)} (same as {raw.row(i - 1)})")
+    raise SeriesError(
+        file,
+        key,
+        f"time {_iso(t[i] + _EPOCH64)} is earlier than {_iso(t[i - 1] + _EPOCH64)} in {raw.row(i - 1)}: "
+        "rows must be in time order",
+    )
+
+
+def _bridge_gaps(t: np.ndarray, raw: _Raw, file: str, time: str, fill_gaps: float | None, max_interval: float | None) -> tuple[np.ndarray, np.ndarray]:
+    """Refuse gaps, or insert rows (to be filled) into gaps no longer than ``fill_gaps``.
+
+    Returns the new times and, per row, its index in the file (-1 for an inserted row).
+    """
+    step = np.diff(t)
+    median = float(np.median(step))
+    limit = max_interval if max_interval is not None else 3.0 * median
+    origin = np.arange(t.size)
+    gaps = np.flatnonzero(step > limit)
+    if not gaps.size:
+        return t, origin
+    unfillable = gaps if fill_gaps is None else gaps[step[gaps] > fill_gaps]
+    if unfillable.size:
+        i = int(unfillable[0]) + 1
+        rule = (
+            f"max_interval {_duration(limit)}"
+            if max_interval is not None
+            else f"the default limit, 3 x the median interval of {_duration(median)}"
+        )
+        if fill_gaps is None:
+            advice = "set series.max_interval if the steps vary on purpose, or series.fill_gaps to interpolate across it"
+        else:
+            advice = f"it is also longer than fill_gaps {_duration(fill_gaps)}, so it is not filled"
+        more = f" ({unfillable.size - 1} more gaps like it)" if unfillable.size > 1 else ""
+        raise SeriesError(
+            file,
+            f"{raw.row(i)}, {raw.column(time)}",
+            f"gap of {_duration(step[i - 1])} after {raw.row(i - 1)} ({_iso(t[i - 1] + _EPOCH64)} to "
+            f"{_iso(t[i] + _EPOCH64)}) is longer than {rule}{more}; {advice}",
+        )
+    nominal = max(median, 1.0)
+    positions: list[int] = []
+    inserted: list[int] = []
+    for g in gaps:
+        span = int(step[g])
+        count = max(int(round(span / nominal)) - 1, 1)
+        for k in range(1, count + 1):
+            positions.append(int(g) + 1)
+            inserted.append(int(t[g]) + int(round(k * span / (count + 1))))
+    return np.insert(t, positions, inserted), np.insert(origin, positions, -1)
+
+
+def _fill_missing(
+    t: np.ndarray, v: np.ndarray, origin: np.ndarray, raw: _Raw, file: str, column: str, fill_gaps: float | None
+) -> int:
+    """Fill NaN runs in place by linear interpolation in time; return how many were filled."""
+    missing = np.isnan(v)
+    if not missing.any():
+        return 0
+
+    def row(i: int) -> str:
+        if origin[i] >= 0:
+            return raw.row(int(origin[i]))
+        before = origin[:i][origin[:i] >= 0][-1]
+        after = origin[i:][origin[i:] >= 0][0]
+        return f"between {raw.row(int(before))} and {raw.row(int(after))}"
+
+    edges = np.diff(np.concatenate(([0], missing.view(np.int8), [0])))
+    starts = np.flatnonzero(edges == 1)
+    ends = np.flatnonzero(edges == -1) - 1  # inclusive
+    n = v.size
+    where = f"{raw.column(column)}"
+    for s, e in zip(starts, ends):
+        count = e - s + 1
+        if s == 0 or e == n - 1:
+            side = "start" if s == 0 else "end"
+            raise SeriesError(
+                file,
+                f"{row(int(s))}, {where}",
+                f"empty or NaN value ({count} in a row) at the {side} of the series, where there is no value on "
+                "both sides to interpolate from; trim the file or supply the values",
+            )
+        span = float(t[e + 1] - t[s - 1])
+        if fill_gaps is None or span > fill_gaps:
+            rule = (
+                "set series.fill_gaps to fill short runs by linear interpolation"
+                if fill_gaps is None
+                else f"longer than fill_gaps {_duration(fill_gaps)}"
+            )
+            raise SeriesError(
+                file,
+                f"{row(int(s))}, {where}",
+                f"empty or NaN value ({count} in a row, {_duration(span)} between the valid values on either side): {rule}",
+            )
+    valid = ~missing
+    v[missing] = np.interp(t[missing].astype(np.float64), t[valid].astype(np.float64), v[valid])
+    return int(missing.sum())
+
+
+def _check_range(v: np.ndarray, spec: ColumnSpec, raw_values: np.ndarray, raw: _Raw, file: str) -> None:
+    finite = np.isfinite(v) | np.isnan(v)
+    if not finite.all():
+        i = int(np.flatnonzero(~finite)[0])
+        raise SeriesError(file, f"{raw.row(i)}, {raw.column(spec.column)}", f"value {raw_values[i]} is not a finite number")
+    if spec.kind not in RANGES:
+        return
+    low, high, shown = RANGES[spec.kind]
+    with np.errstate(invalid="ignore"):
+        outside = (v < low) | (v > high)
+    if not outside.any():
+        return
+    i = int(np.flatnonzero(outside)[0])
+    more = int(outside.sum()) - 1
+    converted = "" if spec.unit == shown else f" = {_show(v[i])} {shown}"
+    hint = ""
+    if spec.kind == "fraction" and v[i] > 1 and spec.unit.strip() in ("1", ""):
+        hint = "; relative humidity in per cent needs unit = '%'"
+    raise SeriesError(
+        file,
+        f"{raw.row(i)}, {raw.column(spec.column)}",
+        f"{_show(raw_values[i])} {spec.unit}{converted} is outside the plausible range for "
+        f"{spec.kind.replace('_', ' ')}, {_show(low)} to {_show(high)} {shown}"
+        f"{f' ({more} more values outside)' if more else ''}{hint}",
+    )
+
+
+# ---------------------------------------------------------------------------
+# public API
+
+
+def read_series(
+    path: str | Path,
+    columns: Sequence[ColumnSpec],
+    *,
+    time: str = "time",
+    timezone: str = "UTC",
+    fill_gaps: float | None = None,
+    max_interval: float | None = None,
+    case_file: str = "<case>",
+) -> Series:
+    """Read, check and convert a CSV or netCDF time series.
+
+    Parameters
+    ----------
+    path : str or pathlib.Path
+        The series file (``.nc``/``.nc4``/``.cdf`` or netCDF bytes: netCDF; otherwise CSV).
+    columns : sequence of ColumnSpec
+        The columns to read, with their units and kinds.
+    time : str
+        Name of the time column (CSV) or variable (netCDF).
+    timezone : str
+        How to read naive CSV times: ``"UTC"``, ``"+01:00"`` or an IANA name.
+    fill_gaps : float, optional
+        Longest span filled by linear interpolation [s]; default: fill nothing.
+    max_interval : float, optional
+        Longest interval between rows that is not a gap [s]; default three
+        times the median interval.
+    case_file : str
+        The case file, named in messages about its keys.
+
+    Returns
+    -------
+    Series
+        Times in UTC (``datetime64[s]``), values in SI (temperatures [degC]).
+
+    Raises
+    ------
+    SeriesError
+        For every problem in the file, naming the file, the row and the column.
+    """
+    path = Path(path)
+    file = str(path)
+    clock = _Clock(timezone, file=case_file, key="series.timezone")
+    for key, value in (("series.fill_gaps", fill_gaps), ("series.max_interval", max_interval)):
+        if value is not None and not (math.isfinite(value) and value > 0):
+            raise SeriesError(case_file, key, f"must be a positive duration, got {value!r} s")
+    names = [spec.name for spec in columns]
+    if len(set(names)) != len(names):
+        raise SeriesError(case_file, "series.columns", f"a name is used twice: {names}")
+    factors = {spec.name: _check_unit(spec, case_file=case_file, file=file) for spec in columns}
+
+    if not path.exists():
+        raise SeriesError(file, "series.file", f"file not found (looked for {path.resolve()}; named in {case_file})")
+    if not path.is_file():
+        raise SeriesError(file, "series.file", "is not a file")
+    data = path.read_bytes()
+    digest = hashlib.sha256(data).hexdigest()
+
+    if _is_netcdf(path, data):
+        del data
+        raw = _read_netcdf(path, file, time, columns, factors, clock, case_file)
+    else:
+        raw = _read_csv(data, file, time, [spec.column for spec in columns], clock)
+        del data
+
+    t = raw.seconds
+    if t.size < 2:
+        raise SeriesError(file, f"{raw.row(0)}, {raw.column(time)}", "a series needs at least two rows")
+    _check_order(t, raw, file, time)
+    t, origin = _bridge_gaps(t, raw, file, time, fill_gaps, max_interval)
+    real = origin >= 0
+
+    values: dict[str, np.ndarray] = {}
+    filled: dict[str, int] = {}
+    for spec in columns:
+        a, b = factors[spec.name]
+        file_values = raw.columns[spec.column]
+        _check_range(a * file_values + b, spec, file_values, raw, file)
+        v = np.full(t.size, np.nan)
+        v[real] = a * file_values + b
+        filled[spec.name] = _fill_missing(t, v, origin, raw, file, spec.column, fill_gaps)
+        values[spec.name] = v
+    return Series(
+        time=t.astype("datetime64[s]"),
+        values=values,
+        kinds={spec.name: spec.kind for spec in columns},
+        file=file,
+        sha256=digest,
+        filled=filled,
+        units={spec.name: spec.unit for spec in columns},
+    )
+
+
+def daily_cycle(
+    mean: float, amplitude: float, peak_hour: float, period: float = 86400.0, *, timezone: str = "UTC"
+) -> Callable[[np.ndarray], np.ndarray]:
+    """A generated cosine cycle: ``mean + amplitude * cos(2 pi (s - peak_hour * 3600) / period)``.
+
+    ``s`` is the time in seconds since midnight of 1970-01-01 on the clock of
+    ``timezone``; for a 24 h period this is the hour-of-day form
+    ``mean + amplitude * cos(2 pi (h - peak_hour) / 24)``.  An IANA zone is
+    used at its standard offset (no daylight saving), so the cycle has no jump
+    at a clock change.
+
+    Parameters
+    ----------
+    mean : float
+        Mean over a period [degC] (or the SI unit of the quantity).
+    amplitude : float
+        Half the peak-to-trough swing [K] (or the SI unit of the quantity).
+    peak_hour : float
+        Hour of the day at which the cycle peaks [h].
+    period : float
+        Period [s]; default one day.
+    timezone : str
+        The clock in which ``peak_hour`` is read.
+
+    Returns
+    -------
+    callable
+        ``f(times)`` for ``datetime64`` times, returning floats of the shape of ``times``.
+    """
+    for label, number in (("mean", mean), ("amplitude", amplitude), ("peak_hour", peak_hour), ("period", period)):
+        if not math.isfinite(number):
+            raise SeriesError("<case>", "series.cycles", f"{label} must be a finite number, got {number!r}")
+    if period <= 0:
+        raise SeriesError("<case>", "series.cycles", f"period must be positive, got {period!r} s")
+    offset = _Clock(timezone, file="<case>", key="series.timezone").standard_offset()
+    mean, amplitude, period = float(mean), float(amplitude), float(period)
+    peak = float(peak_hour) * 3600.0
+
+    def cycle(times: np.ndarray) -> np.ndarray:
+        seconds = (np.asarray(times) - _EPOCH64) / np.timedelta64(1, "s") + offset
+        # reduce to one period first so the cosine's argument stays small and exact
+        phase = np.mod(seconds - peak, period) / period
+        return mean + amplitude * np.cos(2.0 * np.pi * phase)
+
+    cycle.__doc__ = f"daily cycle: mean {mean:g}, amplitude {amplitude:g}, peak at {peak_hour:g} h ({timezone}), period {period:g} s"
+    return cycle
+
+
+class Forcing:
+    """One boundary quantity as a function of time.
+
+    Build it with :meth:`constant`, :meth:`from_series` or :meth:`from_cycle`;
+    call it with ``datetime64`` times to get values in SI.
+    """
+
+    def __init__(self) -> None:  # use the class methods
+        self._value: float | None = None
+        self._func: Callable[[np.ndarray], np.ndarray] | None = None
+        self._t0: np.datetime64 | None = None
+        self._x: np.ndarray | None = None
+        self._v: np.ndarray | None = None
+        self._origin = ""
+        self._case_file = "<case>"
+        self._key = "?"
+
+    @classmethod
+    def constant(cls, value: float) -> Forcing:
+        """A value that does not change [SI]."""
+        self = cls()
+        self._value = float(value)
+        self._origin = f"constant {value:g}"
+        return self
+
+    @classmethod
+    def from_series(cls, series: Series, name: str, *, case_file: str = "<case>", key: str = "?") -> Forcing:
+        """Column ``name`` of ``series``, interpolated linearly in time.
+
+        ``case_file`` and ``key`` name the case-file key that uses it, for the
+        message when a run reaches outside the series.
+        """
+        if name not in series.values:
+            known = ", ".join(sorted(series.values)) or "none"
+            raise SeriesError(case_file, key, f"no series column named {name!r} in {series.file} (defined: {known})")
+        self = cls()
+        self._t0 = series.time[0]
+        self._x = series.seconds_since(self._t0)
+        self._v = np.asarray(series.values[name], dtype=np.float64)
+        self._origin = f"series {name!r} from {series.file}"
+        self._case_file, self._key = case_file, key
+        return self
+
+    @classmethod
+    def from_cycle(cls, func: Callable[[np.ndarray], np.ndarray]) -> Forcing:
+        """A generated function of time, e.g. from :func:`daily_cycle`."""
+        self = cls()
+        self._func = func
+        self._origin = func.__doc__ or "generated cycle"
+        return self
+
+    def span(self) -> tuple[np.datetime64, np.datetime64] | None:
+        """First and last time covered (UTC), or ``None`` when defined at all times."""
+        if self._x is None:
+            return None
+        return self._t0, self._t0 + np.timedelta64(int(self._x[-1]), "s")
+
+    def __call__(self, times: np.ndarray) -> np.ndarray:
+        """Values at ``times`` (``datetime64``, UTC) [SI]."""
+        times = np.asarray(times)
+        if times.dtype.kind != "M":
+            raise TypeError(f"Forcing expects datetime64 times, got dtype {times.dtype}")
+        if self._value is not None:
+            return np.full(times.shape, self._value)
+        if self._func is not None:
+            return np.asarray(self._func(times), dtype=np.float64)
+        x = (times - self._t0) / np.timedelta64(1, "s")
+        if np.isnan(x).any():
+            raise ValueError("Forcing got a missing time (NaT)")
+        if x.size and (x.min() < 0.0 or x.max() > self._x[-1]):
+            first, last = self.span()
+            raise SeriesError(
+                self._case_file,
+                self._key,
+                f"the run spans {_iso(times.min())} to {_iso(times.max())}, but the {self._origin} "
+                f"covers only {_iso(first)} to {_iso(last)}",
+            )
+        return np.interp(x, self._x, self._v)
+
+    def __repr__(self) -> str:
+        return f"Forcing({self._origin})"
