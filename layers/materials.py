@@ -1,0 +1,785 @@
+"""Material library and temperature-dependent conductivity models.
+
+A :class:`Material` holds the density, specific heat and thermal conductivity of
+one layer material.  The conductivity is either constant, a table of values
+against temperature (interpolated linearly, held constant beyond the ends), or a
+polynomial ``a + b*θ + c*θ**2 + ...`` in the temperature θ [degC].
+
+The packaged library ``layers/data/materials.toml`` is read once by
+:func:`load_library`; a case file may add materials or override library ones
+under ``[materials.NAME]`` (see :func:`material_from_table`), and
+:func:`resolve` finds a name in both.
+
+Temperature-dependent conductivity enters a steady calculation through the
+integral mean over a layer's temperature range,
+
+    λm = 1/(θ2 − θ1) ∫[θ1, θ2] λ(θ) dθ,
+
+the mean-conductivity rule of ISO 12241 and ASTM C680, which for a linear
+λ = a + bθ reduces to a + b(θ1 + θ2)/2.  :meth:`Material.mean_conductivity`
+evaluates it exactly for tables and polynomials, and
+:meth:`Material.conductivity_integral` gives the Kirchhoff transform
+∫[0, θ] λ dθ on which it rests.
+
+References
+----------
+.. [1] ISO 10456:2007, Building materials and products - Hygrothermal
+   properties - Tabulated design values and procedures for determining declared
+   and design thermal values (Table 3; the same values as EN 12524:2000).
+.. [2] ISO 12241:2008, Thermal insulation for building equipment and industrial
+   installations - Calculation rules (mean thermal conductivity of a layer).
+.. [3] ASTM C680, Standard Practice for Estimate of the Heat Gain or Loss and the
+   Surface Temperatures of Insulated Flat, Cylindrical, and Spherical Systems by
+   Use of Computer Programs (temperature-dependent conductivity).
+"""
+
+from __future__ import annotations
+
+import difflib
+import functools
+import math
+import re
+import tomllib
+from dataclasses import dataclass
+from importlib import resources
+from typing import Any, Mapping
+
+import numpy as np
+
+from layers.errors import CaseError
+from layers.units import parse_quantity, parse_temperature
+
+#: Categories a material may belong to.
+CATEGORIES: tuple[str, ...] = (
+    "masonry",
+    "concrete",
+    "board",
+    "timber",
+    "insulation",
+    "metal",
+    "plaster",
+    "fluid",
+    "other",
+)
+
+#: Temperature at which :attr:`Material.conductivity` is given for k(T) materials [degC]
+#: (the reference mean temperature of declared values in ISO 10456).
+REFERENCE_TEMPERATURE = 10.0
+
+#: Lowest temperature at which a polynomial conductivity is checked to be positive [degC].
+POLYNOMIAL_CHECK_LOW = -50.0
+#: Highest such temperature when the material gives no ``max_temperature`` [degC].
+POLYNOMIAL_CHECK_HIGH = 1000.0
+
+#: Where the packaged library lives, as shown in error messages.
+LIBRARY_FILE = "layers/data/materials.toml"
+
+_KEYS = (
+    "base",
+    "description",
+    "category",
+    "conductivity",
+    "density",
+    "specific_heat",
+    "max_temperature",
+    "source",
+)
+_NAME = re.compile(r"^[a-z0-9]+(-[a-z0-9]+)*$")
+
+
+@dataclass(frozen=True, eq=False)
+class Material:
+    """One layer material.
+
+    Parameters
+    ----------
+    name : str
+        Library or case-file name, e.g. ``"mineral-wool"``.
+    conductivity : float
+        Thermal conductivity [W m-1 K-1]; for a temperature-dependent material,
+        its value at :data:`REFERENCE_TEMPERATURE` (10 degC, the ISO 10456
+        reference), which must agree with the table or polynomial.
+    density : float
+        Density [kg m-3].
+    specific_heat : float
+        Specific heat capacity [J kg-1 K-1].
+    conductivity_temperature : numpy.ndarray or None
+        Abscissa of a conductivity table [degC], strictly increasing, two
+        points or more; None for a constant or polynomial conductivity.
+    conductivity_table : numpy.ndarray or None
+        Conductivity at ``conductivity_temperature`` [W m-1 K-1], all positive.
+    conductivity_polynomial : tuple of float or None
+        Coefficients ``(a, b, c, ...)`` of ``a + b*θ + c*θ**2 + ...`` with θ in
+        degC ([W m-1 K-1], [W m-1 K-2], [W m-1 K-3], ...).
+    description, category, source : str
+        What it is, one of :data:`CATEGORIES` (or empty), and where the values
+        come from.
+    max_temperature : float or None
+        Upper service temperature [degC], where known.
+
+    Notes
+    -----
+    Instances are immutable: the arrays are stored as read-only copies.  Two
+    materials are equal when all their fields are.
+    """
+
+    name: str
+    conductivity: float
+    density: float
+    specific_heat: float
+    conductivity_temperature: np.ndarray | None = None
+    conductivity_table: np.ndarray | None = None
+    conductivity_polynomial: tuple[float, ...] | None = None
+    description: str = ""
+    category: str = ""
+    source: str = ""
+    max_temperature: float | None = None
+
+    def __post_init__(self) -> None:
+        for label in ("conductivity", "density", "specific_heat"):
+            value = float(getattr(self, label))
+            if not (math.isfinite(value) and value > 0.0):
+                raise ValueError(f"material {self.name!r}: {label} must be positive and finite, got {value!r}")
+            object.__setattr__(self, label, value)
+        if self.max_temperature is not None:
+            object.__setattr__(self, "max_temperature", float(self.max_temperature))
+        has_table = self.conductivity_temperature is not None or self.conductivity_table is not None
+        if has_table and self.conductivity_polynomial is not None:
+            raise ValueError(f"material {self.name!r}: give a conductivity table or a polynomial, not both")
+        if has_table:
+            if self.conductivity_temperature is None or self.conductivity_table is None:
+                raise ValueError(f"material {self.name!r}: a conductivity table needs both temperatures and values")
+            temperature = np.array(self.conductivity_temperature, dtype=float).ravel()
+            table = np.array(self.conductivity_table, dtype=float).ravel()
+            problem = _table_problem(temperature, table)
+            if problem:
+                raise ValueError(f"material {self.name!r}: conductivity table: {problem}")
+            temperature.setflags(write=False)
+            table.setflags(write=False)
+            object.__setattr__(self, "conductivity_temperature", temperature)
+            object.__setattr__(self, "conductivity_table", table)
+        if self.conductivity_polynomial is not None:
+            coefficients = tuple(float(c) for c in self.conductivity_polynomial)
+            if not coefficients or not all(math.isfinite(c) for c in coefficients):
+                raise ValueError(f"material {self.name!r}: polynomial coefficients must be finite numbers")
+            object.__setattr__(self, "conductivity_polynomial", coefficients)
+        if not self.is_constant:
+            reference = float(self.conductivity_at(REFERENCE_TEMPERATURE))
+            if not math.isclose(self.conductivity, reference, rel_tol=1e-9):
+                raise ValueError(
+                    f"material {self.name!r}: conductivity {self.conductivity} does not equal the "
+                    f"table or polynomial value {reference} at {REFERENCE_TEMPERATURE:g} degC"
+                )
+
+    # ------------------------------------------------------------------ constructors
+
+    @classmethod
+    def from_table(
+        cls,
+        name: str,
+        temperature: Any,
+        conductivity: Any,
+        density: float,
+        specific_heat: float,
+        **attributes: Any,
+    ) -> Material:
+        """A material whose conductivity is tabulated against temperature.
+
+        Parameters
+        ----------
+        name : str
+            Material name.
+        temperature : array_like
+            Table abscissa [degC], strictly increasing.
+        conductivity : array_like
+            Conductivity at ``temperature`` [W m-1 K-1].
+        density : float
+            [kg m-3]
+        specific_heat : float
+            [J kg-1 K-1]
+        **attributes
+            ``description``, ``category``, ``source``, ``max_temperature`` [degC].
+
+        Returns
+        -------
+        Material
+            With :attr:`conductivity` set to the table value at 10 degC.
+        """
+        temperature = np.asarray(temperature, dtype=float)
+        table = np.asarray(conductivity, dtype=float)
+        problem = _table_problem(temperature.ravel(), table.ravel())
+        if problem:
+            raise ValueError(f"material {name!r}: conductivity table: {problem}")
+        reference = float(np.interp(REFERENCE_TEMPERATURE, temperature, table))
+        return cls(name, reference, density, specific_heat, temperature, table, None, **attributes)
+
+    @classmethod
+    def from_polynomial(
+        cls,
+        name: str,
+        coefficients: Any,
+        density: float,
+        specific_heat: float,
+        **attributes: Any,
+    ) -> Material:
+        """A material whose conductivity is ``a + b*θ + c*θ**2 + ...`` with θ in degC.
+
+        Parameters
+        ----------
+        name : str
+            Material name.
+        coefficients : sequence of float
+            ``(a, b, c, ...)`` [W m-1 K-1], [W m-1 K-2], [W m-1 K-3], ...
+        density : float
+            [kg m-3]
+        specific_heat : float
+            [J kg-1 K-1]
+        **attributes
+            ``description``, ``category``, ``source``, ``max_temperature`` [degC].
+
+        Returns
+        -------
+        Material
+            With :attr:`conductivity` set to the polynomial's value at 10 degC.
+        """
+        coefficients = tuple(float(c) for c in coefficients)
+        reference = float(np.polynomial.polynomial.polyval(REFERENCE_TEMPERATURE, coefficients))
+        return cls(name, reference, density, specific_heat, None, None, coefficients, **attributes)
+
+    # ------------------------------------------------------------------ properties
+
+    @property
+    def is_constant(self) -> bool:
+        """True when the conductivity does not depend on temperature."""
+        return self.conductivity_table is None and self.conductivity_polynomial is None
+
+    @property
+    def diffusivity(self) -> float:
+        """Thermal diffusivity λ/(ρc) at the reference conductivity [m2 s-1]."""
+        return self.conductivity / (self.density * self.specific_heat)
+
+    @property
+    def volumetric_heat_capacity(self) -> float:
+        """ρc [J m-3 K-1]."""
+        return self.density * self.specific_heat
+
+    # ------------------------------------------------------------------ conductivity models
+
+    def conductivity_at(self, temperature: Any) -> np.ndarray:
+        """Thermal conductivity at a temperature.
+
+        Parameters
+        ----------
+        temperature : array_like
+            Temperature [degC].
+
+        Returns
+        -------
+        numpy.ndarray
+            Conductivity [W m-1 K-1], the shape of ``temperature``.
+
+        Notes
+        -----
+        A table is interpolated linearly between its points and held at its
+        first and last values beyond its ends (no extrapolation of the trend).
+        A polynomial is evaluated wherever asked; it was checked positive only
+        between -50 degC and ``max_temperature`` (or 1000 degC) when read from a
+        file.
+        """
+        t = np.asarray(temperature, dtype=float)
+        if self.conductivity_table is not None:
+            return np.interp(t, self.conductivity_temperature, self.conductivity_table)
+        if self.conductivity_polynomial is not None:
+            return np.asarray(np.polynomial.polynomial.polyval(t, self.conductivity_polynomial), dtype=float)
+        return np.full(t.shape, self.conductivity)
+
+    def conductivity_integral(self, temperature: Any) -> np.ndarray:
+        """Kirchhoff transform of the conductivity, ∫[0 degC, θ] λ dθ.
+
+        Parameters
+        ----------
+        temperature : array_like
+            Upper limit θ [degC].
+
+        Returns
+        -------
+        numpy.ndarray
+            [W m-1], the shape of ``temperature``; negative below 0 degC.
+
+        Notes
+        -----
+        Exact for every model: λθ for a constant, the term-by-term integral for a
+        polynomial, and the trapezoidal (exact for piecewise linear) integral
+        for a table, with the end values held beyond its ends.
+        """
+        t = np.asarray(temperature, dtype=float)
+        if self.conductivity_table is not None:
+            return self._table_antiderivative(t) - self._table_antiderivative(np.asarray(0.0))
+        if self.conductivity_polynomial is not None:
+            integral = (0.0,) + tuple(c / (n + 1) for n, c in enumerate(self.conductivity_polynomial))
+            return np.asarray(np.polynomial.polynomial.polyval(t, integral), dtype=float)
+        return self.conductivity * t
+
+    def mean_conductivity(self, t1: Any, t2: Any) -> np.ndarray:
+        """Integral-mean conductivity between two temperatures.
+
+        λm = 1/(θ2 − θ1) ∫[θ1, θ2] λ dθ, the mean thermal conductivity of a
+        layer whose faces are at θ1 and θ2 (ISO 12241, ASTM C680 [3]_).
+
+        Parameters
+        ----------
+        t1, t2 : array_like
+            Face temperatures [degC]; broadcast together; either order.
+
+        Returns
+        -------
+        numpy.ndarray
+            [W m-1 K-1]; equals :meth:`conductivity_at` where ``t1 == t2``.
+
+        Notes
+        -----
+        Exact, and free of the cancellation in (K(θ2) − K(θ1))/(θ2 − θ1) when θ2
+        is close to θ1: a polynomial uses the closed form
+        Σ cₙ (θ1ⁿ + θ1ⁿ⁻¹θ2 + … + θ2ⁿ)/(n + 1) (a + b(θ1 + θ2)/2 for a linear λ);
+        a table uses the value at the midpoint when both temperatures lie in the
+        same linear piece, and otherwise integrates the partial pieces at each
+        end from their own table points plus the whole pieces between.
+        """
+        a, b = np.broadcast_arrays(np.asarray(t1, dtype=float), np.asarray(t2, dtype=float))
+        if self.conductivity_polynomial is not None:
+            out = np.zeros(a.shape)
+            for n, c in enumerate(self.conductivity_polynomial):
+                power_sum = sum(a**i * b ** (n - i) for i in range(n + 1))
+                out = out + c * power_sum / (n + 1)
+            return out
+        if self.conductivity_table is not None:
+            return self._table_mean(np.minimum(a, b), np.maximum(a, b))
+        return np.full(a.shape, self.conductivity)
+
+    def _table_mean(self, low: np.ndarray, high: np.ndarray) -> np.ndarray:
+        """Integral mean of the table between ``low <= high`` [W m-1 K-1].
+
+        The table with its constant ends is linear on each piece between
+        neighbouring points (and on the two half-lines beyond them).  Both ends in
+        one piece: the value at the midpoint.  Otherwise: the partial pieces at
+        each end, each integrated from its own node, plus the whole pieces
+        between, so that no large antiderivatives are subtracted.
+        """
+        x = self.conductivity_temperature
+        k = self.conductivity_table
+        cumulative = np.concatenate(([0.0], np.cumsum(np.diff(x) * 0.5 * (k[1:] + k[:-1]))))
+        piece_low = np.searchsorted(x, low, side="right")  # 0 below the table, len(x) above it
+        piece_high = np.searchsorted(x, high, side="right")
+        same_piece = piece_low == piece_high
+        k_low = self.conductivity_at(low)
+        k_high = self.conductivity_at(high)
+        node_above_low = np.minimum(piece_low, len(x) - 1)  # first node above ``low`` (where pieces differ)
+        node_below_high = np.maximum(piece_high - 1, 0)  # last node below ``high``
+        first = (x[node_above_low] - low) * 0.5 * (k_low + k[node_above_low])
+        whole = cumulative[node_below_high] - cumulative[node_above_low]
+        last = (high - x[node_below_high]) * 0.5 * (k[node_below_high] + k_high)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            spanning = (first + whole + last) / (high - low)
+        return np.where(same_piece, self.conductivity_at(0.5 * (low + high)), spanning)
+
+    def _table_antiderivative(self, t: np.ndarray) -> np.ndarray:
+        """∫[first table point, θ] λ dθ for the table with constant ends [W m-1]."""
+        x = self.conductivity_temperature
+        k = self.conductivity_table
+        cumulative = np.concatenate(([0.0], np.cumsum(np.diff(x) * 0.5 * (k[1:] + k[:-1]))))
+        inside = np.clip(t, x[0], x[-1])
+        piece = np.clip(np.searchsorted(x, inside, side="right") - 1, 0, len(x) - 2)
+        k_inside = np.interp(inside, x, k)
+        within = cumulative[piece] + (inside - x[piece]) * 0.5 * (k[piece] + k_inside)
+        below = k[0] * np.minimum(t - x[0], 0.0)
+        above = k[-1] * np.maximum(t - x[-1], 0.0)
+        return within + below + above
+
+    # ------------------------------------------------------------------ identity
+
+    def _key(self) -> tuple:
+        def as_tuple(array: np.ndarray | None) -> tuple | None:
+            return None if array is None else tuple(array.tolist())
+
+        return (
+            self.name,
+            self.conductivity,
+            self.density,
+            self.specific_heat,
+            as_tuple(self.conductivity_temperature),
+            as_tuple(self.conductivity_table),
+            self.conductivity_polynomial,
+            self.description,
+            self.category,
+            self.source,
+            self.max_temperature,
+        )
+
+    def __eq__(self, other: object) -> bool:
+        if not isinstance(other, Material):
+            return NotImplemented
+        return self._key() == other._key()
+
+    def __hash__(self) -> int:
+        return hash(self._key())
+
+
+def _table_problem(temperature: np.ndarray, table: np.ndarray) -> str:
+    """What is wrong with a conductivity table, or an empty string."""
+    if temperature.shape != table.shape:
+        return f"{temperature.size} temperatures but {table.size} values"
+    if temperature.size < 2:
+        return "needs at least two points"
+    if not (np.all(np.isfinite(temperature)) and np.all(np.isfinite(table))):
+        return "holds a value that is not a finite number"
+    if np.any(np.diff(temperature) <= 0.0):
+        return "temperatures must be strictly increasing"
+    if np.any(table <= 0.0):
+        return "conductivities must be positive"
+    return ""
+
+
+# ---------------------------------------------------------------------- reading TOML
+
+
+def _parse_conductivity(value: Any, *, file: str, key: str) -> dict[str, Any]:
+    """Read a ``conductivity`` entry into Material keyword arguments."""
+    if isinstance(value, (str, int, float)) and not isinstance(value, bool):
+        conductivity = parse_quantity(value, "conductivity", file=file, key=key)
+        if conductivity <= 0.0:
+            raise CaseError(file, key, f"conductivity must be positive, got {value!r}")
+        return {
+            "conductivity": conductivity,
+            "conductivity_temperature": None,
+            "conductivity_table": None,
+            "conductivity_polynomial": None,
+        }
+    if not isinstance(value, dict):
+        raise CaseError(
+            file,
+            key,
+            f"expected a conductivity like \"0.035 W/(m*K)\", a table {{temperature = [...], value = [...]}} "
+            f"or {{polynomial = [a, b, c], reference = \"degC\"}}, got {value!r}",
+        )
+    if "polynomial" in value:
+        unknown = sorted(set(value) - {"polynomial", "reference"})
+        if unknown:
+            raise CaseError(
+                file, f"{key}.{unknown[0]}", "unknown key in a polynomial conductivity (expected polynomial, reference)"
+            )
+        reference = value.get("reference", "degC")
+        if not isinstance(reference, str) or reference.strip().replace("°C", "degC") not in ("degC", "celsius"):
+            raise CaseError(file, f"{key}.reference", f"only reference = \"degC\" is supported, got {reference!r}")
+        coefficients = value["polynomial"]
+        if (
+            not isinstance(coefficients, list)
+            or not coefficients
+            or not all(isinstance(c, (int, float)) and not isinstance(c, bool) for c in coefficients)
+        ):
+            raise CaseError(
+                file,
+                f"{key}.polynomial",
+                f"expected a list of numbers [a, b, c] (W/(m*K), W/(m*K2), W/(m*K3)), got {coefficients!r}",
+            )
+        if not all(math.isfinite(c) for c in coefficients):
+            raise CaseError(file, f"{key}.polynomial", "coefficients must be finite numbers")
+        return {
+            "conductivity_temperature": None,
+            "conductivity_table": None,
+            "conductivity_polynomial": tuple(float(c) for c in coefficients),
+        }
+    unknown = sorted(set(value) - {"temperature", "value"})
+    if unknown:
+        raise CaseError(
+            file,
+            f"{key}.{unknown[0]}",
+            "unknown key in a conductivity table (expected temperature and value, or polynomial and reference)",
+        )
+    for part in ("temperature", "value"):
+        if part not in value:
+            raise CaseError(file, f"{key}.{part}", "missing: a conductivity table needs both temperature and value")
+        if not isinstance(value[part], list):
+            raise CaseError(file, f"{key}.{part}", f"expected a list, got {value[part]!r}")
+    temperature = np.array(
+        [parse_temperature(v, file=file, key=f"{key}.temperature[{i}]") for i, v in enumerate(value["temperature"])]
+    )
+    table = np.array(
+        [parse_quantity(v, "conductivity", file=file, key=f"{key}.value[{i}]") for i, v in enumerate(value["value"])]
+    )
+    if temperature.size != table.size:
+        raise CaseError(file, key, f"{temperature.size} temperatures but {table.size} values")
+    if temperature.size < 2:
+        raise CaseError(file, f"{key}.temperature", "a conductivity table needs at least two points")
+    if np.any(np.diff(temperature) <= 0.0):
+        raise CaseError(file, f"{key}.temperature", "temperatures must be strictly increasing (sorted, no repeats)")
+    if np.any(table <= 0.0):
+        raise CaseError(file, f"{key}.value", "conductivities must be positive")
+    return {
+        "conductivity_temperature": temperature,
+        "conductivity_table": table,
+        "conductivity_polynomial": None,
+    }
+
+
+def _positive(value: Any, kind: str, *, file: str, key: str) -> float:
+    number = parse_quantity(value, kind, file=file, key=key)
+    if number <= 0.0:
+        raise CaseError(file, key, f"{kind.replace('_', ' ')} must be positive, got {value!r}")
+    return number
+
+
+def material_from_table(
+    name: str,
+    table: Mapping[str, Any],
+    *,
+    file: str,
+    key: str,
+    library: Mapping[str, Material] | bool | None = None,
+) -> Material:
+    """Build a material from one TOML table.
+
+    Used for the packaged library and for a case file's ``[materials.NAME]``.
+
+    Parameters
+    ----------
+    name : str
+        The material's name (the table's key).
+    table : mapping
+        Keys ``conductivity``, ``density``, ``specific_heat`` (required unless
+        ``base`` is given), ``description``, ``category``, ``max_temperature``,
+        ``source`` and ``base``.  Quantities are strings with units or bare SI
+        numbers (temperatures: degC); ``conductivity`` may also be a table
+        ``{temperature = [...], value = [...]}`` or a polynomial
+        ``{polynomial = [a, b, c], reference = "degC"}``.
+    file : str
+        The file the table came from, for error messages.
+    key : str
+        The table's dotted key (``materials.site-foam``), for error messages.
+    library : mapping of str to Material, bool or None, optional
+        Where ``base`` is looked up: a mapping (e.g. the library merged with the
+        case's materials read so far), or None or True for the packaged
+        library; False forbids ``base``.  With ``base = "NAME"`` the material
+        starts from that one and the keys given replace its values (a new
+        ``conductivity`` replaces its whole conductivity model).
+
+    Returns
+    -------
+    Material
+
+    Raises
+    ------
+    CaseError
+        On an unknown key, a missing or non-positive conductivity, density or
+        specific heat, a wrong unit, an unsorted or non-positive table, a
+        polynomial that is not positive from -50 degC up to ``max_temperature``
+        (1000 degC when none is given), an unknown category or base.
+    """
+    if not isinstance(table, Mapping):
+        raise CaseError(file, key, f"expected a table of material properties, got {table!r}")
+    for k in table:
+        if k not in _KEYS:
+            close = difflib.get_close_matches(k, _KEYS, n=1)
+            hint = f"; did you mean {close[0]!r}?" if close else f"; expected one of {', '.join(_KEYS)}"
+            raise CaseError(file, f"{key}.{k}", f"unknown key {k!r}{hint}")
+
+    fields: dict[str, Any] = {}
+    base: Material | None = None
+    if "base" in table:
+        base_name = table["base"]
+        if not isinstance(base_name, str):
+            raise CaseError(file, f"{key}.base", f"expected the name of a library material, got {base_name!r}")
+        if library is False:
+            raise CaseError(file, f"{key}.base", "a base material cannot be used here")
+        candidates = load_library() if library is None or library is True else library
+        if base_name not in candidates:
+            raise CaseError(file, f"{key}.base", _unknown_message(base_name, candidates))
+        base = candidates[base_name]
+        fields = {
+            "conductivity": base.conductivity,
+            "conductivity_temperature": base.conductivity_temperature,
+            "conductivity_table": base.conductivity_table,
+            "conductivity_polynomial": base.conductivity_polynomial,
+            "density": base.density,
+            "specific_heat": base.specific_heat,
+            "description": base.description,
+            "category": base.category,
+            "source": base.source,
+            "max_temperature": base.max_temperature,
+        }
+    else:
+        for required in ("conductivity", "density", "specific_heat"):
+            if required not in table:
+                raise CaseError(
+                    file, f"{key}.{required}", "missing (or give base = \"NAME\" to start from a library material)"
+                )
+
+    if "conductivity" in table:
+        fields.update(_parse_conductivity(table["conductivity"], file=file, key=f"{key}.conductivity"))
+    for kind in ("density", "specific_heat"):
+        if kind in table:
+            fields[kind] = _positive(table[kind], kind, file=file, key=f"{key}.{kind}")
+    if "max_temperature" in table:
+        fields["max_temperature"] = parse_temperature(table["max_temperature"], file=file, key=f"{key}.max_temperature")
+    for text in ("description", "category", "source"):
+        if text in table:
+            if not isinstance(table[text], str):
+                raise CaseError(file, f"{key}.{text}", f"expected a string, got {table[text]!r}")
+            fields[text] = table[text]
+    fields.setdefault("description", "")
+    fields.setdefault("category", "")
+    fields.setdefault("source", "")
+    fields.setdefault("max_temperature", None)
+    if fields["category"] and fields["category"] not in CATEGORIES:
+        raise CaseError(
+            file,
+            f"{key}.category",
+            f"unknown category {fields['category']!r}; expected one of {', '.join(CATEGORIES)}",
+        )
+
+    if base is not None:
+        changed = [k for k in table if k not in ("base", "description", "source")]
+        note = f"{base.name} with {', '.join(changed)} changed" if changed else f"as {base.name}"
+        if "description" not in table:
+            fields["description"] = f"{base.description} ({note})"
+        if "source" not in table:
+            fields["source"] = f"{base.source}; {', '.join(changed)} set in {file}" if changed else base.source
+
+    if fields["conductivity_polynomial"] is not None:
+        coefficients = fields["conductivity_polynomial"]
+        high = fields["max_temperature"] if fields["max_temperature"] is not None else POLYNOMIAL_CHECK_HIGH
+        high = max(high, REFERENCE_TEMPERATURE)
+        probe = np.linspace(min(POLYNOMIAL_CHECK_LOW, high), high, 2001)
+        values = np.polynomial.polynomial.polyval(probe, coefficients)
+        if np.any(values <= 0.0):
+            where = float(probe[np.argmin(values)])
+            raise CaseError(
+                file,
+                f"{key}.conductivity",
+                f"the polynomial is not positive at {where:.0f} degC (checked from {POLYNOMIAL_CHECK_LOW:.0f} degC "
+                f"to {high:.0f} degC; set max_temperature to the range it is meant for)",
+            )
+        fields["conductivity"] = float(np.polynomial.polynomial.polyval(REFERENCE_TEMPERATURE, coefficients))
+    elif fields["conductivity_table"] is not None:
+        fields["conductivity"] = float(
+            np.interp(REFERENCE_TEMPERATURE, fields["conductivity_temperature"], fields["conductivity_table"])
+        )
+    try:
+        return Material(name=name, **fields)
+    except ValueError as exc:  # a check the parsing above should already have made
+        raise CaseError(file, key, str(exc)) from exc
+
+
+# ---------------------------------------------------------------------- the library
+
+
+@functools.lru_cache(maxsize=1)
+def _library() -> dict[str, Material]:
+    text = resources.files("layers").joinpath("data").joinpath("materials.toml").read_text(encoding="utf-8")
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise CaseError(LIBRARY_FILE, "?", f"not valid TOML ({exc})") from exc
+    materials: dict[str, Material] = {}
+    for name, table in data.items():
+        if not _NAME.match(name):
+            raise CaseError(LIBRARY_FILE, name, "library names are lower-case words joined by hyphens")
+        for required in ("source", "category", "description"):
+            if not isinstance(table, dict) or not table.get(required):
+                raise CaseError(LIBRARY_FILE, f"{name}.{required}", "every library material needs one")
+        if "base" in table:
+            raise CaseError(LIBRARY_FILE, f"{name}.base", "library materials give their own values")
+        materials[name] = material_from_table(name, table, file=LIBRARY_FILE, key=name)
+    return materials
+
+
+def load_library() -> dict[str, Material]:
+    """The packaged material library, ``layers/data/materials.toml``.
+
+    Returns
+    -------
+    dict of str to Material
+        A new dict on each call (the materials themselves are immutable and
+        shared); the file is read once per process.
+    """
+    return dict(_library())
+
+
+def _suggestions(name: str, candidates: Any, n: int = 5) -> list[str]:
+    """Up to ``n`` names like ``name``: those containing it (or contained in it) first, then difflib matches."""
+    names = sorted(candidates)
+    word = name.strip().lower()
+    containing = [c for c in names if word and (word in c or c in word)]
+    close = [c for c in difflib.get_close_matches(word, names, n=n, cutoff=0.5) if c not in containing]
+    return (containing + close)[:n]
+
+
+def _unknown_message(name: str, candidates: Any) -> str:
+    close = _suggestions(name, candidates)
+    hint = f"; did you mean {', '.join(close)}?" if close else ""
+    return f"unknown material {name!r}{hint} (`layers materials WORD` searches the library)"
+
+
+def resolve(
+    name: str,
+    overrides: Mapping[str, Material] | None = None,
+    *,
+    file: str,
+    key: str,
+) -> Material:
+    """Find a material by name.
+
+    Parameters
+    ----------
+    name : str
+        Material name.  A case file's materials are matched exactly; library
+        names (all lower case) also match regardless of case (``"EPS"``).
+    overrides : mapping of str to Material, optional
+        The case file's ``[materials]``; they take precedence over the library.
+    file, key : str
+        Where the name was written, for the error message.
+
+    Returns
+    -------
+    Material
+
+    Raises
+    ------
+    CaseError
+        For an unknown name, listing up to five close names.
+    """
+    overrides = overrides or {}
+    if not isinstance(name, str):
+        raise CaseError(file, key, f"expected a material name, got {name!r}")
+    if name in overrides:
+        return overrides[name]
+    library = _library()
+    if name in library:
+        return library[name]
+    if name.strip().lower() in library and name.strip().lower() not in overrides:
+        return library[name.strip().lower()]
+    raise CaseError(file, key, _unknown_message(name, set(library) | set(overrides)))
+
+
+def search(word: str | None = None) -> list[Material]:
+    """Library materials whose name, description or category contains a word.
+
+    Parameters
+    ----------
+    word : str or None
+        Case-insensitive; hyphens, underscores and spaces are treated alike
+        (``"mineral wool"`` finds ``mineral-wool``).  None or empty: all.
+
+    Returns
+    -------
+    list of Material
+        Sorted by name.
+    """
+    materials = sorted(_library().values(), key=lambda m: m.name)
+    if not word or not word.strip():
+        return materials
+
+    def normal(text: str) -> str:
+        return re.sub(r"[-_\s]+", " ", text.lower())
+
+    needle = normal(word.strip())
+    return [m for m in materials if any(needle in normal(text) for text in (m.name, m.description, m.category))]
