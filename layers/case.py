@@ -239,9 +239,8 @@ def parse_case(data: dict, *, file: str = "<case>", text: str = "", base_dir: Pa
             raise geo.error("inner_radius", "must be positive")
     elif geo.has("inner_radius"):
         raise geo.error("inner_radius", "applies to cylinder and sphere geometry only")
-    geo.get("orientation")  # for pipes, read with the boundaries
     geo.finish()
-    pipe_orientation = geo.data.get("orientation", "horizontal")
+    pipe_orientation = "horizontal"
 
     # materials defined in the case
     materials: dict[str, Material] = {}
@@ -417,7 +416,7 @@ def _parse_series(value: Any, file: str, base_dir: Path):
             raise c.error("peak_hour", f"must be an hour from 0 to 24, got {peak!r}")
         period = _positive(c.get("period", "24 h"), "duration", c, "period")
         c.finish()
-        cycles[name] = (daily_cycle(mean, amplitude, float(peak), period), period)
+        cycles[name] = (daily_cycle(mean, amplitude, float(peak), period, timezone=timezone), period)
     columns_kind: dict[str, str] = {}
     series = None
     if t.has("file"):
@@ -548,7 +547,15 @@ def _parse_boundary(value: Any, side: str, geometry: str, ctx: _ForcingContext, 
             args["solar_irradiance"] = forcing("solar_irradiance", "irradiance", required=True)
         args["wind_speed"] = forcing("wind_speed", "speed")
         args["radiant_temperature"] = forcing("radiant_temperature", "temperature")
-        args["sky_temperature"] = forcing("sky_temperature", "temperature")
+        if isinstance(t.data.get("sky_temperature"), str) and t.data["sky_temperature"].strip() == "auto":
+            t.get("sky_temperature")
+            if not args.get("auto_film"):
+                raise t.error("sky_temperature", "\"auto\" (Swinbank clear sky) needs film_coefficient = \"auto\"")
+            values["sky_auto"] = True
+        else:
+            args["sky_temperature"] = forcing("sky_temperature", "temperature")
+        if args.get("auto_film") and geometry != "planar" and side == "inside":
+            raise t.error("film_coefficient", "\"auto\" is for surfaces in air; give the film coefficient of the fluid in the bore")
         direction = t.get("heat_flow_direction", "horizontal")
         if direction not in ("up", "horizontal", "down"):
             raise t.error("heat_flow_direction", f"must be up, horizontal or down, got {direction!r}")
@@ -571,6 +578,8 @@ def _parse_boundary(value: Any, side: str, geometry: str, ctx: _ForcingContext, 
         if contents != "water":
             raise t.error("contents", f"only 'water' is modelled, got {contents!r}")
         args["contents"] = contents
+        if t.has("film_coefficient"):
+            args["surface_resistance"] = 1.0 / _positive(t.get("film_coefficient"), "film_coefficient", t, "film_coefficient")
         args["initial_temperature"] = parse_temperature(
             t.get("initial_temperature", required=True), file=file, key=t.key("initial_temperature")
         )

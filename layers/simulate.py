@@ -13,16 +13,21 @@ from dataclasses import dataclass
 import numpy as np
 import xarray as xr
 
-from layers.boundaries import in_seconds, is_linear, linear_drive, sol_air_temperature
+from layers.boundaries import in_seconds, is_linear, linear_drive, side_model, sol_air_temperature
+from layers.contents import WaterNode
 from layers.case import Case
 from layers.errors import CaseError, ConvergenceWarning
 from layers.mesh import Mesh, build_mesh
+from layers.nonlinear import TOLERANCE, NonlinearResult, NonlinearSystem, march_nonlinear, steady_nonlinear
 from layers.results import to_dataset
 from layers.solver import LinearSystem, MarchResult, march, steady_state
 
 #: The ``"periodic"`` initial state repeats the first period until no cell changes by more than this [K].
 PERIODIC_TOLERANCE = 1e-3
 PERIODIC_MAX_CYCLES = 2000
+#: Default ice fraction for the freeze time: a common design allowance (ISO 12241 and
+#: handbook practice allow a partly frozen pipe; 25 % is usual, common practice).
+DEFAULT_ICE_FRACTION = 0.25
 
 
 @dataclass
@@ -120,6 +125,60 @@ def run_case(case: Case, progress: Callable[[int, int], None] | None = None) -> 
     return Run(case, mesh, system, result, initial, cycles)
 
 
+def needs_nonlinear(case: Case, mesh: Mesh) -> bool:
+    """True for k(T) materials, auto film coefficients or contents."""
+    return (not mesh.is_linear) or not (is_linear(case.inside) and is_linear(case.outside))
+
+
+def build_nonlinear(case: Case, mesh: Mesh) -> NonlinearSystem:
+    """The nonlinear system of a case (see :mod:`layers.nonlinear`)."""
+    outside = side_model(case, case.outside, mesh)
+    if case.inside.kind == "contents":
+        water = WaterNode.for_bore(case.geometry, case.inner_radius)
+        r_film = (case.inside.surface_resistance or 0.0) / mesh.area_inside
+        return NonlinearSystem(mesh, outside, water=water, water_resistance=r_film)
+    return NonlinearSystem(mesh, outside, inside=side_model(case, case.inside, mesh))
+
+
+def _ice_target(case: Case) -> float:
+    return case.sizing.max_ice_fraction if case.sizing is not None else DEFAULT_ICE_FRACTION
+
+
+def run_nonlinear(case: Case, mesh: Mesh, progress=None) -> tuple[NonlinearResult, int]:
+    """Initial state and march for a nonlinear case."""
+    system = build_nonlinear(case, mesh)
+    plan = case.time
+    water0 = case.inside.initial_temperature if system.water is not None else None
+    cycles = 0
+    if isinstance(plan.initial, float):
+        state = np.full(mesh.n, plan.initial)
+    else:
+        state, _ = steady_nonlinear(system, t_water=water0)
+        if plan.initial == "periodic":
+            steps = int(round(plan.period / plan.step))
+            for cycles in range(1, PERIODIC_MAX_CYCLES + 1):
+                out = march_nonlinear(system, state, water0, plan.step, steps, steps, plan.scheme)
+                change = float(np.max(np.abs(out.final - state)))
+                state = out.final
+                if system.water is not None:
+                    water0 = float(system.water.state(out.final_enthalpy)[0])
+                if change < PERIODIC_TOLERANCE:
+                    break
+            else:
+                warnings.warn(
+                    f"periodic initial state: change still {change:.2g} K after {PERIODIC_MAX_CYCLES} cycles",
+                    ConvergenceWarning,
+                    stacklevel=2,
+                )
+    total = plan.n_steps
+    callback = (lambda done: progress(done, total)) if progress else None
+    result = march_nonlinear(
+        system, state, water0, plan.step, total, plan.output_stride, plan.scheme,
+        progress=callback, ice_target=_ice_target(case),
+    )
+    return result, cycles
+
+
 def simulate(case: Case, progress: Callable[[int, int], None] | None = None) -> xr.Dataset:
     """Run a case and return its results as a labelled Dataset.
 
@@ -135,40 +194,71 @@ def simulate(case: Case, progress: Callable[[int, int], None] | None = None) -> 
     xarray.Dataset
         Variables and attributes as the product contract lists them.
     """
-    run = run_case(case, progress)
-    res = run.result
-    mesh = run.mesh
-    k = mesh.conductivity()
-    r_in, r_out = mesh.half_resistances(k)
-    seconds = res.time
-    extra = {}
+    mesh = mesh_for(case)
+    extra: dict = {}
+    attrs: dict = {}
+    if needs_nonlinear(case, mesh):
+        res, cycles = run_nonlinear(case, mesh, progress)
+        seconds = res.time
+        surface_in, surface_out = res.surface_in, res.surface_out
+        stored, stored0, stored_end = res.stored, res.stored_initial, res.stored_final
+        for spec, film, t_eq in ((case.inside, res.film_in, res.t_eq_in), (case.outside, res.film_out, res.t_eq_out)):
+            if spec.auto_film:
+                extra[f"film_coefficient_{spec.side}"] = ("W m-2 K-1", f"{spec.side} surface film coefficient, convection plus radiation", film)
+                if spec.solar_irradiance is not None or spec.sky_temperature is not None or spec.values.get("sky_auto"):
+                    extra[f"sol_air_temperature_{spec.side}"] = t_eq
+        if res.contents_temperature is not None:
+            extra["contents_temperature"] = ("degC", "temperature of the contents of the bore", res.contents_temperature)
+            extra["ice_fraction"] = ("1", "mass fraction of the contents that is ice", res.ice_fraction)
+            attrs["time_to_freezing_h"] = res.time_to_freezing / 3600.0
+            attrs["freeze_time_h"] = res.time_to_ice_fraction / 3600.0
+            attrs["max_ice_fraction"] = _ice_target(case)
+        attrs["nonlinear_tolerance_K"] = TOLERANCE
+        attrs["nonlinear_unconverged_steps"] = res.unconverged_steps
+        attrs["nonlinear_max_iterations"] = res.max_iterations_used
+        q_in, q_out = res.q_in, res.q_out
+        temperature = res.temperature
+        heat_in, heat_out, heat_abs = res.heat_in, res.heat_out, res.heat_abs
+    else:
+        run = run_case(case, progress)
+        res_l = run.result
+        cycles = run.periodic_cycles
+        seconds = res_l.time
+        k = mesh.conductivity()
+        r_in, r_out = mesh.half_resistances(k)
+        temperature = res_l.temperature
+        q_in, q_out = res_l.q_in, res_l.q_out
+        surface_in = temperature[:, 0] + q_in * r_in
+        surface_out = temperature[:, -1] + q_out * r_out
+        stored = temperature @ run.system.capacity
+        stored0 = float(run.initial @ run.system.capacity)
+        stored_end = float(res_l.final @ run.system.capacity)
+        heat_in, heat_out, heat_abs = res_l.heat_in, res_l.heat_out, res_l.heat_abs
+        for spec in (case.inside, case.outside):
+            sol_air = sol_air_temperature(case, spec, seconds)
+            if sol_air is not None:
+                extra[f"sol_air_temperature_{spec.side}"] = sol_air
     for spec in (case.inside, case.outside):
         if spec.kind == "film":
             extra[f"air_temperature_{spec.side}"] = in_seconds(case, spec.air_temperature)(seconds)
-        sol_air = sol_air_temperature(case, spec, seconds)
-        if sol_air is not None:
-            extra[f"sol_air_temperature_{spec.side}"] = sol_air
-    surface_in = res.temperature[:, 0] + res.q_in * r_in
-    surface_out = res.temperature[:, -1] + res.q_out * r_out
-    stored = res.temperature @ run.system.capacity
-    stored0 = float(run.initial @ run.system.capacity)
-    stored_end = float(res.final @ run.system.capacity)
-    net = res.heat_in + res.heat_out
-    scale = max(res.heat_abs, abs(stored_end - stored0), 1e-300)
+    net = heat_in + heat_out
+    scale = max(heat_abs, abs(stored_end - stored0), 1e-300)
     balance = abs((stored_end - stored0) - net) / scale
-    return to_dataset(
+    ds = to_dataset(
         case,
         mesh,
         seconds=seconds,
-        temperature=res.temperature,
+        temperature=temperature,
         surface_temperature_inside=surface_in,
         surface_temperature_outside=surface_out,
-        heat_flow_inside=res.q_in,
-        heat_flow_outside=-res.q_out,
+        heat_flow_inside=q_in,
+        heat_flow_outside=-q_out,
         stored_energy=stored,
         energy_balance_error=balance,
-        heat_in_total=res.heat_in,
-        heat_out_total=-res.heat_out,
+        heat_in_total=heat_in,
+        heat_out_total=-heat_out,
         extra=extra,
-        periodic_cycles=run.periodic_cycles,
+        periodic_cycles=cycles,
     )
+    ds.attrs.update(attrs)
+    return ds

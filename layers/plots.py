@@ -1,0 +1,956 @@
+"""Every figure: run carpets, surface histories, depth profiles and sizing charts.
+
+The plotting functions take a Dataset written by :mod:`layers.results` (or by
+``layers size``) and return a :class:`matplotlib.figure.Figure`; they never
+re-run a case and never print.  :func:`cmd_plot` is the ``layers plot``
+command: it opens the run, draws one figure and saves it without ever
+overwriting a file.
+
+Conventions of every figure
+---------------------------
+* Axis labels end with the unit in brackets, taken from the variable's
+  ``units`` attribute (``degC`` is shown as ``°C``, ``W m-2`` as ``W/m²``).
+* The title is the run's ``title`` attribute; the caution
+  (``caution`` attribute, else :data:`layers.CAUTION`) is printed in small
+  type at the bottom.
+* Colours: the carpet uses ``cividis``, a perceptually uniform colour map
+  designed to read the same for colour-blind readers and in greyscale.  Lines
+  use :data:`PALETTE`, five colours of our own chosen so that every pair stays
+  distinguishable under simulated protanopia, deuteranopia and tritanopia,
+  and every line also gets its own dash pattern and marker (:data:`LINESTYLES`,
+  :data:`MARKERS`) so the figure still reads when printed in grey.
+* Time axes are UTC (the run's time coordinate) with concise date labels.
+* Figures are 10 x 6 in at 120 dpi (1200 x 720 pixels as PNG).
+"""
+
+from __future__ import annotations
+
+import argparse
+import datetime as dt
+import math
+import os
+import re
+import sys
+import tempfile
+import tomllib
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import xarray as xr
+
+from layers import CAUTION, __version__
+from layers.errors import CaseError
+
+#: Figure size [in] and resolution [dots per inch] of every figure.
+FIGSIZE = (10.0, 6.0)
+DPI = 120
+
+#: Line colours: navy, orange, sky blue, brick red, mid grey.  Own choice;
+#: the smallest CIELAB distance between any two, under simulated
+#: protanopia, deuteranopia and tritanopia (Machado et al. 2009, severity 1),
+#: is about 22, well above what readers confuse.
+PALETTE = ("#1d3f73", "#e0902a", "#5fb0e6", "#8a2f1e", "#6b6b6b")
+#: Dash patterns that go with :data:`PALETTE`, so greyscale prints still read.
+LINESTYLES = ("solid", (0, (6, 2)), (0, (6, 2, 1.5, 2)), (0, (1.5, 1.5)), (0, (10, 2, 1.5, 2, 1.5, 2)))
+#: Markers that go with :data:`PALETTE` (drawn sparsely along each line).
+MARKERS = ("o", "s", "^", "D", "v")
+#: Colour map of the carpet plot (perceptually uniform, colour-blind safe).
+CARPET_CMAP = "cividis"
+#: Fills of the material bands in the profile plot (light greys), and the
+#: hatching of an air gap.
+BAND_FILLS = ("#f2f2f2", "#dedede")
+GAP_HATCH = "////"
+
+KINDS = ("carpet", "surfaces", "profiles", "sizing")
+FORMATS = {".png": "png", ".svg": "svg", ".pdf": "pdf"}
+
+_TEMPERATURE_UNITS = {"degC": "°C", "degree_Celsius": "°C", "degrees_Celsius": "°C", "celsius": "°C",
+                      "deg_C": "°C", "degF": "°F", "degree_Fahrenheit": "°F"}
+_SUPERSCRIPT = {"2": "²", "3": "³"}
+_TOKEN = re.compile(r"^([A-Za-z%°µ]+)(-?\d+)?$")
+
+
+# --------------------------------------------------------------------------- #
+# labels and units
+
+
+def pretty_units(units: str) -> str:
+    """Units as shown on an axis: ``degC`` -> ``°C``, ``W m-2`` -> ``W/m²``.
+
+    Parameters
+    ----------
+    units : str
+        A CF/UDUNITS unit string (``"W m-1"``, ``"J m-2"``, ``"degC"``).
+
+    Returns
+    -------
+    str
+        The same unit for a reader; strings not in the space-separated
+        ``symbol[exponent]`` form are returned unchanged.
+    """
+    units = str(units).strip()
+    if units in _TEMPERATURE_UNITS:
+        return _TEMPERATURE_UNITS[units]
+    if units in ("1", ""):
+        return "-"
+    tokens = units.replace(".", " ").split()
+    top, bottom = [], []
+    for token in tokens:
+        match = _TOKEN.match(token)
+        if not match:
+            return units
+        symbol, power = match.group(1), int(match.group(2) or 1)
+        symbol = _TEMPERATURE_UNITS.get(symbol, symbol)
+        target = top if power > 0 else bottom
+        power = abs(power)
+        target.append(symbol + ("" if power == 1 else "".join(_SUPERSCRIPT.get(c, f"^{c}") for c in str(power))))
+    text = "·".join(top) if top else "1"
+    if bottom:
+        text += "/" + (bottom[0] if len(bottom) == 1 else "(" + "·".join(bottom) + ")")
+    return text
+
+
+def _units(da: xr.DataArray, default: str | None = None) -> str:
+    units = da.attrs.get("units", default)
+    return "?" if units is None else str(units)
+
+
+def axis_label(quantity: str, units: str) -> str:
+    """``"quantity [unit]"`` with the unit shown for a reader (see :func:`pretty_units`)."""
+    return f"{quantity} [{pretty_units(units)}]"
+
+
+def _length_scale(units: str) -> tuple[float, str]:
+    """Factor from ``units`` to millimetres, and the unit shown [-, str]."""
+    if units in ("m", "metre", "meter", "metres", "meters"):
+        return 1000.0, "mm"
+    if units in ("mm", "millimetre", "millimeter"):
+        return 1.0, "mm"
+    try:
+        from layers.units import ureg
+
+        return float(ureg.Quantity(1.0, units).to("mm").magnitude), "mm"
+    except Exception:  # noqa: BLE001 - an unreadable unit: show the numbers as stored
+        return 1.0, units
+
+
+def _caution(ds: xr.Dataset) -> str:
+    return str(ds.attrs.get("caution") or CAUTION)
+
+
+def _subtitle(ds: xr.Dataset, what: str) -> str:
+    bits = [what]
+    if ds.attrs.get("geometry"):
+        bits.append(str(ds.attrs["geometry"]))
+    if ds.attrs.get("scheme"):
+        bits.append(f"scheme {ds.attrs['scheme']}")
+    if ds.attrs.get("created"):
+        bits.append(f"run {ds.attrs['created']}")
+    return "  ·  ".join(bits)
+
+
+# --------------------------------------------------------------------------- #
+# figure scaffolding
+
+
+def _use_agg() -> None:
+    """Select the Agg backend for a process that has not started pyplot.
+
+    The figures themselves are built on :class:`matplotlib.figure.Figure`
+    with an Agg canvas and never touch pyplot, so no window opens; the
+    backend switch is skipped once pyplot is loaded, because switching then
+    would close the figures a user has open (a notebook, for instance).
+    """
+    import matplotlib
+
+    if "matplotlib.pyplot" not in sys.modules:
+        matplotlib.use("Agg")
+
+
+def new_figure(ds: xr.Dataset, what: str, nrows: int = 1, sharex: bool = False):
+    """A 10 x 6 in Figure with the run's title, a subtitle and the caution.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        The run (or sizing) Dataset; its ``title`` and ``caution`` are used.
+    what : str
+        What the figure shows (the subtitle's first words).
+    nrows : int
+        Number of stacked axes.
+    sharex : bool
+        Whether the stacked axes share the x axis.
+
+    Returns
+    -------
+    (Figure, list of Axes)
+    """
+    _use_agg()
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    fig = Figure(figsize=FIGSIZE, dpi=DPI, layout="constrained")
+    FigureCanvasAgg(fig)
+    # keep a strip at the bottom for the caution and at the top for the titles
+    fig.get_layout_engine().set(rect=(0.0, 0.045, 1.0, 0.905), h_pad=0.04, w_pad=0.04)
+    axes = fig.subplots(nrows, 1, sharex=sharex, squeeze=False)[:, 0].tolist()
+    fig.text(0.5, 0.992, str(ds.attrs.get("title") or "untitled run"), ha="center", va="top",
+             fontsize=13, fontweight="bold")
+    fig.text(0.5, 0.955, _subtitle(ds, what), ha="center", va="bottom", fontsize=8.5, color="#444444")
+    fig.text(0.01, 0.006, _caution(ds), ha="left", va="bottom", fontsize=6.5, color="#444444",
+             wrap=True, gid="caution")
+    for ax in axes:
+        _style(ax)
+    return fig, axes
+
+
+def _style(ax) -> None:
+    ax.grid(True, color="#d9d9d9", linewidth=0.6)
+    ax.set_axisbelow(True)
+    ax.tick_params(labelsize=8.5)
+    for side in ("top", "right"):
+        ax.spines[side].set_color("#888888")
+
+
+def _time_axis(ax) -> None:
+    import matplotlib.dates as mdates
+
+    locator = mdates.AutoDateLocator(minticks=4, maxticks=10)
+    ax.xaxis.set_major_locator(locator)
+    ax.xaxis.set_major_formatter(mdates.ConciseDateFormatter(locator))
+    ax.set_xlabel("time [UTC]")
+
+
+def _line_style(i: int) -> dict[str, Any]:
+    return {
+        "color": PALETTE[i % len(PALETTE)],
+        "linestyle": LINESTYLES[i % len(LINESTYLES)],
+        "marker": MARKERS[i % len(MARKERS)],
+        "markersize": 4.5,
+        "markerfacecolor": "white" if i % 2 else PALETTE[i % len(PALETTE)],
+        "linewidth": 1.6,
+    }
+
+
+def _markevery(n: int) -> int:
+    return max(1, n // 12)
+
+
+# --------------------------------------------------------------------------- #
+# what a run Dataset says about its layers
+
+
+@dataclass(frozen=True)
+class LayerBand:
+    """One layer of a run, as drawn.
+
+    Attributes
+    ----------
+    number : int
+        1-based, from the inside.
+    start, end : float
+        Positions of its faces from the inside surface [m].
+    label : str
+        Layer name, with the material when the name does not say it.
+    is_gap : bool
+        An air gap (no cells, a resistance only).
+    """
+
+    number: int
+    start: float
+    end: float
+    label: str
+    is_gap: bool
+
+
+def _need(ds: xr.Dataset, names: tuple[str, ...], source: str) -> None:
+    for name in names:
+        if name not in ds.variables:
+            raise CaseError(source, name, "missing from the Dataset; is this a run written by 'layers run'?")
+
+
+def layer_bands(ds: xr.Dataset) -> list[LayerBand]:
+    """The layers of a run: face positions from ``layer_interface``, names from the case.
+
+    Names come from the case text stored with the run (``name`` of each
+    ``[[layers]]`` entry, with its ``material`` when different), else from the
+    ``material`` coordinate; a layer with no cells is an air gap.
+
+    Returns
+    -------
+    list of LayerBand
+        From the inside to the outside.
+    """
+    layer = np.asarray(ds["layer"].values).astype(int)
+    material = np.asarray(ds["material"].values).astype(str) if "material" in ds.coords else None
+    if "layer_interface" in ds.variables:
+        faces = np.asarray(ds["layer_interface"].values, dtype=float)
+    else:  # reconstruct from the cells (no gaps known)
+        faces = _cell_faces(ds)
+        faces = np.concatenate(([faces[0]], [faces[np.flatnonzero(layer == n)[-1] + 1] for n in np.unique(layer)]))
+    count = faces.size - 1
+    specs = _case_layers(ds, count)
+    bands = []
+    for number in range(1, count + 1):
+        cells = np.flatnonzero(layer == number)
+        is_gap = cells.size == 0
+        mat = "air gap" if is_gap else (str(material[cells[0]]) if material is not None else f"layer {number}")
+        label = mat
+        if specs is not None:
+            spec = specs[number - 1]
+            name = str(spec.get("name") or "").strip()
+            spec_mat = str(spec.get("material") or "").strip()
+            if is_gap:
+                label = name or "air gap"
+            elif name:
+                same = _norm(name) == _norm(spec_mat or mat) or not (spec_mat or mat)
+                label = name if same else f"{name} ({spec_mat or mat})"
+        bands.append(LayerBand(number, float(faces[number - 1]), float(faces[number]), label, is_gap))
+    return bands
+
+
+def _norm(text: str) -> str:
+    return re.sub(r"[\s_\-]+", " ", text).strip().lower()
+
+
+def _case_layers(ds: xr.Dataset, count: int) -> list[dict] | None:
+    try:
+        layers = tomllib.loads(str(ds.attrs["case"]))["layers"]
+    except Exception:  # noqa: BLE001 - no or unreadable case text: fall back to the material coordinate
+        return None
+    if not isinstance(layers, list) or len(layers) != count or not all(isinstance(s, dict) for s in layers):
+        return None
+    return layers
+
+
+def _cell_faces(ds: xr.Dataset) -> np.ndarray:
+    """Faces of the cells [m]: n + 1 values, each layer reconstructed from its first face.
+
+    Cell centres are midpoints of their faces, so within a layer each face
+    follows from the previous one (``face[i+1] = 2 x[i] - face[i]``); the
+    layer's first face is its ``layer_interface``.  If that does not give
+    increasing faces (an unusual Dataset), midpoints between centres are used.
+    """
+    x = np.asarray(ds["x"].values, dtype=float)
+    layer = np.asarray(ds["layer"].values).astype(int) if "layer" in ds.coords else np.ones_like(x, dtype=int)
+    interfaces = np.asarray(ds["layer_interface"].values, dtype=float) if "layer_interface" in ds.variables else None
+    lo = np.empty_like(x)
+    hi = np.empty_like(x)
+    ok = interfaces is not None
+    if ok:
+        for number in np.unique(layer):
+            cells = np.flatnonzero(layer == number)
+            if number - 1 >= interfaces.size:
+                ok = False
+                break
+            face = interfaces[number - 1]
+            for i in cells:
+                lo[i] = face
+                face = 2.0 * x[i] - face
+                hi[i] = face
+            if number < interfaces.size:
+                hi[cells[-1]] = interfaces[number]
+        ok = ok and bool(np.all(hi > lo)) and bool(np.all(lo[1:] >= hi[:-1] - 1e-12))
+    if not ok:
+        mid = 0.5 * (x[1:] + x[:-1])
+        first = 0.0 if interfaces is None else interfaces[0]
+        last = x[-1] + (x[-1] - mid[-1]) if x.size > 1 else 2 * x[0]
+        if interfaces is not None:
+            last = interfaces[-1]
+        edges = np.concatenate(([first], mid, [last]))
+        return edges
+    return np.concatenate((lo, [hi[-1]]))
+
+
+def _inner_radius(ds: xr.Dataset) -> float | None:
+    """Radius of the inside surface [m] of a pipe or sphere, None when planar."""
+    if "radius" not in ds.coords:
+        return None
+    return float(ds["radius"].values[0] - ds["x"].values[0])
+
+
+def _margin_positions(centres: list[float], gap: float) -> list[float]:
+    """Spread label positions (axes fraction) so neighbours are at least ``gap`` apart."""
+    pos = list(centres)
+    for _ in range(50):
+        moved = False
+        for i in range(1, len(pos)):
+            if pos[i] - pos[i - 1] < gap:
+                shift = (gap - (pos[i] - pos[i - 1])) / 2
+                pos[i - 1] -= shift
+                pos[i] += shift
+                moved = True
+        lo = min(pos) if pos else 0
+        hi = max(pos) if pos else 1
+        if lo < 0:
+            pos = [p - lo for p in pos]
+        if hi > 1:
+            pos = [p - (hi - 1) for p in pos]
+        if not moved:
+            break
+    return pos
+
+
+# --------------------------------------------------------------------------- #
+# the figures of a run
+
+
+def _is_sizing(ds: xr.Dataset) -> bool:
+    return "thickness" in ds.dims and "time" not in ds.dims
+
+
+def _require_run(ds: xr.Dataset, source: str) -> None:
+    if _is_sizing(ds):
+        raise CaseError(source, "--kind", "this is a sizing Dataset (dimension thickness); plot it with --kind sizing")
+    _need(ds, ("temperature",), source)
+
+
+def plot_carpet(ds: xr.Dataset) -> Any:
+    """Temperature over time and depth as a colour map.
+
+    Time runs along the x axis, the distance from the inside surface [mm]
+    up the y axis (pipes and spheres: the radius on a second scale), with a
+    colour bar, the layer faces drawn as lines and the layers named in the
+    right-hand margin.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        A run (:func:`layers.results.to_dataset`).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    import matplotlib.dates as mdates
+    import matplotlib.patheffects as pe
+
+    source = str(ds.encoding.get("source", "run"))
+    _require_run(ds, source)
+    temperature = ds["temperature"].transpose("time", "x")
+    scale, depth_unit = _length_scale(_units(ds["x"], "m"))
+    fig, (ax,) = new_figure(ds, "temperature through the construction")
+
+    times = mdates.date2num(np.asarray(ds["time"].values).astype("datetime64[us]").astype(dt.datetime))
+    if times.size > 1:
+        t_edges = np.concatenate(([times[0]], 0.5 * (times[1:] + times[:-1]), [times[-1]]))
+    else:
+        t_edges = np.array([times[0] - 0.5 / 24, times[0] + 0.5 / 24])
+    faces = _cell_faces(ds) * scale
+    values = np.ma.masked_invalid(np.asarray(temperature.values, dtype=float))
+    vmin, vmax = (float(values.min()), float(values.max())) if values.count() else (0.0, 1.0)
+    if vmin == vmax:
+        vmin, vmax = vmin - 0.5, vmax + 0.5
+    layer = np.asarray(ds["layer"].values).astype(int)
+    mesh = None
+    # one mesh per layer, so an air gap of finite thickness shows as a hatched band
+    for number in np.unique(layer):
+        cells = np.flatnonzero(layer == number)
+        y_edges = np.concatenate((faces[cells], [faces[cells[-1] + 1]]))
+        mesh = ax.pcolormesh(t_edges, y_edges, values[:, cells].T, cmap=CARPET_CMAP, vmin=vmin, vmax=vmax,
+                             shading="flat", rasterized=True)
+    bands = layer_bands(ds)
+    total = bands[-1].end * scale
+    ax.set_ylim(bands[0].start * scale, total)
+    ax.set_xlim(t_edges[0], t_edges[-1])
+    outline = [pe.Stroke(linewidth=2.6, foreground="black"), pe.Normal()]
+    for band in bands:
+        if band.is_gap and band.end > band.start:
+            ax.axhspan(band.start * scale, band.end * scale, facecolor="white", edgecolor="#555555",
+                       hatch=GAP_HATCH, linewidth=0)
+    for face in sorted({b.start for b in bands[1:]} | {b.end for b in bands[:-1]}):
+        ax.axhline(face * scale, color="white", linewidth=1.2, path_effects=outline)
+
+    # layer names in the right margin, spread apart, with a leader to their band
+    centres = [0.5 * (b.start + b.end) * scale / total for b in bands]
+    places = _margin_positions(centres, 0.06)
+    for band, centre, place in zip(bands, centres, places):
+        ax.annotate(
+            band.label, xy=(1.0, centre), xycoords="axes fraction", xytext=(1.03, place),
+            textcoords="axes fraction", ha="left", va="center", fontsize=8.5,
+            arrowprops={"arrowstyle": "-", "color": "#555555", "linewidth": 0.7, "shrinkA": 0, "shrinkB": 0},
+            annotation_clip=False,
+        )
+    ax.set_ylabel(axis_label("distance from the inside surface", depth_unit))
+    r0 = _inner_radius(ds)
+    if r0 is not None:
+        r0s = r0 * scale
+        sec = ax.secondary_yaxis(-0.1, functions=(lambda d: d + r0s, lambda r: r - r0s))
+        sec.set_ylabel(axis_label("radius", depth_unit))
+        sec.tick_params(labelsize=8.5)
+    _time_axis(ax)
+    ax.grid(False)
+    bar = fig.colorbar(mesh, ax=ax, pad=0.02, fraction=0.05, aspect=30)
+    bar.set_label(axis_label("temperature", _units(ds["temperature"], "degC")))
+    bar.ax.tick_params(labelsize=8.5)
+    return fig
+
+
+#: What the surfaces plot draws on the left axis: (variable, legend label, colour, style index).
+_SURFACE_LINES = (
+    ("air_temperature_inside", "inside air", 0, 1),
+    ("surface_temperature_inside", "inside surface", 0, 0),
+    ("surface_temperature_outside", "outside surface", 1, 0),
+    ("air_temperature_outside", "outside air", 1, 1),
+    ("sol_air_temperature_outside", "outside sol-air", 1, 3),
+    ("sol_air_temperature_inside", "inside sol-air", 0, 3),
+)
+_FLOW_LINES = (
+    ("heat_flow_inside", "heat flow, inside surface", 2, 2),
+    ("heat_flow_outside", "heat flow, outside surface", 3, 4),
+)
+
+
+def plot_surfaces(ds: xr.Dataset) -> Any:
+    """Air and surface temperatures on both sides, and the heat flows, over time.
+
+    Temperatures are on the left axis; the heat flows through the inside and
+    outside surfaces (positive from inside to outside) on the right axis.
+    Lines missing from the run (an air temperature where the boundary has
+    none) are left out.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        A run.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    source = str(ds.encoding.get("source", "run"))
+    if _is_sizing(ds):
+        raise CaseError(source, "--kind", "this is a sizing Dataset (dimension thickness); plot it with --kind sizing")
+    _need(ds, ("surface_temperature_inside", "surface_temperature_outside"), source)
+    fig, (ax,) = new_figure(ds, "surface temperatures and heat flows")
+    time = np.asarray(ds["time"].values).astype("datetime64[us]").astype(dt.datetime)
+    every = _markevery(time.size)
+    handles = []
+    t_units = None
+    for name, label, colour, style in _SURFACE_LINES:
+        if name not in ds.variables:
+            continue
+        da = ds[name]
+        t_units = t_units or _units(da, "degC")
+        kw = _line_style(style)
+        kw["color"] = PALETTE[colour]
+        kw["markerfacecolor"] = PALETTE[colour] if style % 2 == 0 else "white"
+        (line,) = ax.plot(time, da.values, label=label, markevery=every, **kw)
+        handles.append(line)
+    ax.set_ylabel(axis_label("temperature", t_units or "degC"))
+    flows = [f for f in _FLOW_LINES if f[0] in ds.variables]
+    if flows:
+        right = ax.twinx()
+        right.tick_params(labelsize=8.5)
+        f_units = _units(ds[flows[0][0]])
+        for name, label, colour, style in flows:
+            kw = _line_style(style)
+            kw.update(color=PALETTE[colour], markerfacecolor="white", linewidth=1.3, markersize=4)
+            (line,) = right.plot(time, ds[name].values, label=f"{label} (right axis)", markevery=every, **kw)
+            handles.append(line)
+        right.axhline(0.0, color="#999999", linewidth=0.8, linestyle=(0, (1, 3)))
+        right.set_ylabel(axis_label("heat flow, positive outward", f_units))
+        # keep the temperature lines drawn above the flows' axis background
+        right.set_zorder(ax.get_zorder() - 1)
+        ax.patch.set_visible(False)
+    _time_axis(ax)
+    fig.legend(handles=handles, loc="outside lower center", ncols=min(4, len(handles)), fontsize=8.5,
+               frameon=False)
+    return fig
+
+
+def select_times(ds: xr.Dataset, times: list[str] | None, count: int = 5, source: str = "run") -> np.ndarray:
+    """Indices of the output times to draw.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        A run.
+    times : list of str or None
+        ISO 8601 times (``2026-07-21T15:00``; a ``Z`` or ``+02:00`` offset is
+        converted to UTC, a time without one is UTC); items may also be
+        comma-separated.  None or empty: ``count`` evenly spaced times.
+    count : int
+        How many times when none are given.
+    source : str
+        The run file, for messages.
+
+    Returns
+    -------
+    numpy.ndarray of int
+        Indices into ``ds.time``, nearest output time to each request.
+
+    Raises
+    ------
+    CaseError
+        A time that cannot be read or lies outside the run.
+    """
+    stamps = np.asarray(ds["time"].values).astype("datetime64[s]")
+    if not times:
+        return np.unique(np.linspace(0, stamps.size - 1, min(count, stamps.size)).round().astype(int))
+    items = [part.strip() for item in times for part in str(item).split(",") if part.strip()]
+    if stamps.size > 1:
+        slack = np.max(np.diff(stamps)) / 2
+    else:
+        slack = np.timedelta64(0, "s")
+    picked = []
+    for item in items:
+        try:
+            when = dt.datetime.fromisoformat(item)
+        except ValueError:
+            raise CaseError(source, "--times", f"cannot read {item!r} as an ISO 8601 time (e.g. 2026-07-21T15:00)") from None
+        if when.tzinfo is not None:
+            when = when.astimezone(dt.timezone.utc).replace(tzinfo=None)
+        t = np.datetime64(when, "s")
+        if t < stamps[0] - slack or t > stamps[-1] + slack:
+            raise CaseError(
+                source, "--times",
+                f"{item} is outside the run ({np.datetime_as_string(stamps[0], unit='m')} to "
+                f"{np.datetime_as_string(stamps[-1], unit='m')} UTC)",
+            )
+        picked.append(int(np.argmin(np.abs(stamps - t))))
+    return np.array(list(dict.fromkeys(picked)), dtype=int)
+
+
+def plot_profiles(ds: xr.Dataset, times: list[str] | None = None) -> Any:
+    """Temperature against the distance from the inside surface at chosen times.
+
+    Each profile runs from the inside surface temperature through the cell
+    centres to the outside surface temperature.  The layers are shaded in
+    alternating light greys (air gaps hatched) and named along the top.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        A run.
+    times : list of str, optional
+        ISO 8601 times (see :func:`select_times`); default five evenly spaced
+        output times.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    source = str(ds.encoding.get("source", "run"))
+    _require_run(ds, source)
+    index = select_times(ds, times, source=source)
+    scale, depth_unit = _length_scale(_units(ds["x"], "m"))
+    fig, (ax,) = new_figure(ds, "temperature profiles")
+    bands = layer_bands(ds)
+    x = np.asarray(ds["x"].values, dtype=float) * scale
+    has_surfaces = "surface_temperature_inside" in ds.variables and "surface_temperature_outside" in ds.variables
+    depth = np.concatenate(([bands[0].start * scale], x, [bands[-1].end * scale])) if has_surfaces else x
+    temperature = ds["temperature"].transpose("time", "x")
+    stamps = np.asarray(ds["time"].values).astype("datetime64[m]")
+    for k, i in enumerate(index):
+        profile = np.asarray(temperature.values[i], dtype=float)
+        if has_surfaces:
+            profile = np.concatenate(([float(ds["surface_temperature_inside"].values[i])], profile,
+                                      [float(ds["surface_temperature_outside"].values[i])]))
+        label = np.datetime_as_string(stamps[i], unit="m").replace("T", " ") + " UTC"
+        ax.plot(depth, profile, label=label, markevery=_markevery(depth.size), **_line_style(k))
+    total = bands[-1].end * scale
+    ax.set_xlim(bands[0].start * scale, total)
+    transform = ax.get_xaxis_transform()
+    solid = 0
+    for band in bands:
+        lo, hi = band.start * scale, band.end * scale
+        if band.is_gap:
+            if hi > lo:
+                ax.axvspan(lo, hi, facecolor="white", edgecolor="#8c8c8c", hatch=GAP_HATCH, linewidth=0, zorder=0)
+        else:
+            ax.axvspan(lo, hi, facecolor=BAND_FILLS[solid % 2], edgecolor="none", zorder=0)
+            solid += 1
+        ax.axvline(hi, color="#8c8c8c", linewidth=0.8, zorder=0.5)
+        narrow = (hi - lo) / total < 0.12
+        ax.text(0.5 * (lo + hi) if hi > lo else lo, 0.985, band.label, transform=transform, ha="center", va="top",
+                rotation=90 if narrow else 0, fontsize=8, color="#333333", clip_on=True,
+                bbox={"facecolor": "white", "edgecolor": "none", "alpha": 0.7, "pad": 1.5})
+    ax.set_xlabel(axis_label("distance from the inside surface", depth_unit))
+    ax.set_ylabel(axis_label("temperature", _units(ds["temperature"], "degC")))
+    low, high = ax.get_ylim()
+    ax.set_ylim(low, high + 0.18 * (high - low))  # room for the layer names
+    r0 = _inner_radius(ds)
+    if r0 is not None:
+        r0s = r0 * scale
+        sec = ax.secondary_xaxis("top", functions=(lambda d: d + r0s, lambda r: r - r0s))
+        sec.set_xlabel(axis_label("radius", depth_unit))
+        sec.tick_params(labelsize=8.5)
+    ax.legend(loc="lower left", fontsize=8.5, framealpha=0.9, title="time", title_fontsize=8.5)
+    return fig
+
+
+# --------------------------------------------------------------------------- #
+# sizing
+
+
+def _number(value: Any) -> float | None:
+    """A limit attribute as a float, None when absent or unreadable."""
+    if value is None:
+        return None
+    if isinstance(value, (int, float, np.integer, np.floating)) and not isinstance(value, bool):
+        value = float(value)
+        return value if math.isfinite(value) else None
+    if isinstance(value, np.ndarray) and value.size == 1:
+        return _number(value.item())
+    match = re.match(r"^\s*([-+]?(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?)", str(value))
+    return float(match.group(1)) if match else None
+
+
+def _per_thickness(da: xr.DataArray) -> tuple[np.ndarray, str]:
+    """Values along ``thickness``; other dimensions reduced by their maximum."""
+    extra = [d for d in da.dims if d != "thickness"]
+    if extra:
+        return np.asarray(da.max(dim=extra).values, dtype=float), " (maximum)"
+    return np.asarray(da.values, dtype=float), ""
+
+
+def plot_sizing(ds: xr.Dataset) -> Any:
+    """Outside surface temperature, heat loss (and freeze time) against insulation thickness.
+
+    The limits found among the attributes are drawn as horizontal lines:
+    ``max_surface_temperature`` and ``dew_point`` [same units as
+    ``surface_temperature_outside``], ``max_heat_loss`` [units of
+    ``heat_flow``], ``min_freeze_time_h`` [h].  Candidates that pass every
+    ``passes_<criterion>`` are filled markers, others open; the attribute
+    ``recommended_thickness`` [units of ``thickness``] is marked by a
+    vertical line.  Optional variables and attributes may be absent.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        A sizing Dataset (dimension ``thickness``) from ``layers size``.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    source = str(ds.encoding.get("source", "sizing"))
+    if "thickness" not in ds.dims:
+        raise CaseError(source, "--kind", "sizing needs a Dataset from 'layers size' (dimension thickness)")
+    panels = [name for name in ("surface_temperature_outside", "heat_flow") if name in ds.variables]
+    freeze = [name for name in ("freeze_time", "time_to_freezing") if name in ds.variables]
+    if freeze:
+        panels.append("freeze")
+    if not panels:
+        raise CaseError(source, "surface_temperature_outside",
+                        "a sizing Dataset needs surface_temperature_outside, heat_flow or freeze_time")
+    fig, axes = new_figure(ds, "insulation sizing", nrows=len(panels), sharex=True)
+    scale, unit = _length_scale(_units(ds["thickness"], "m"))
+    thickness = np.asarray(ds["thickness"].values, dtype=float) * scale
+
+    criteria = [name for name in ds.data_vars if name.startswith("passes_") and ds[name].dims == ("thickness",)]
+    if criteria:
+        passes = np.logical_and.reduce([np.asarray(ds[name].values).astype(bool) for name in criteria])
+    else:
+        passes = None
+
+    def draw(ax, values: np.ndarray, label: str, colour: int, style: int) -> None:
+        kw = _line_style(style)
+        kw.update(color=PALETTE[colour], marker=None)
+        ax.plot(thickness, values, label=label, **kw)
+        marker = MARKERS[style % len(MARKERS)]
+        if passes is None:
+            ax.plot(thickness, values, linestyle="none", marker=marker, color=PALETTE[colour], markersize=6)
+        else:
+            ax.plot(thickness[passes], values[passes], linestyle="none", marker=marker, color=PALETTE[colour],
+                    markersize=6.5)
+            ax.plot(thickness[~passes], values[~passes], linestyle="none", marker=marker, color=PALETTE[colour],
+                    markerfacecolor="white", markersize=6.5)
+
+    def limit(ax, value: float | None, label: str, colour: int, dashes) -> None:
+        if value is None:
+            return
+        ax.axhline(value, color=PALETTE[colour], linewidth=1.3, linestyle=dashes, label=label)
+
+    for ax, panel in zip(axes, panels):
+        if panel == "surface_temperature_outside":
+            da = ds[panel]
+            values, note = _per_thickness(da)
+            t_units = _units(da, "degC")
+            draw(ax, values, "outside surface" + note, 0, 0)
+            top = _number(ds.attrs.get("max_surface_temperature"))
+            limit(ax, top, f"touch limit {top:g} {pretty_units(t_units)}" if top is not None else "", 3, (0, (6, 2)))
+            dew = _number(ds.attrs.get("dew_point"))
+            if dew is None and "dew_point" in ds.variables and ds["dew_point"].size == 1:
+                dew = _number(ds["dew_point"].values)
+            limit(ax, dew, f"dew point {dew:g} {pretty_units(t_units)}" if dew is not None else "", 2, (0, (1.5, 1.5)))
+            ax.set_ylabel(axis_label("surface temperature", t_units))
+        elif panel == "heat_flow":
+            da = ds[panel]
+            values, note = _per_thickness(da)
+            f_units = _units(da)
+            draw(ax, values, "heat loss" + note, 1, 1)
+            cap = _number(ds.attrs.get("max_heat_loss"))
+            limit(ax, cap, f"heat-loss budget {cap:g} {pretty_units(f_units)}" if cap is not None else "", 3,
+                  (0, (6, 2)))
+            ax.set_ylabel(axis_label("heat loss", f_units))
+        else:
+            shown = False
+            for k, name in enumerate(freeze):
+                da = ds[name]
+                values, note = _per_thickness(da)
+                f_units = _units(da, "h")
+                finite = np.isfinite(values)
+                if not finite.any():
+                    continue
+                values = np.where(finite, values, np.nan)
+                label = {"freeze_time": "time to the ice-fraction limit",
+                         "time_to_freezing": "time until the contents reach 0 °C"}[name]
+                draw(ax, values, label + note, 2 + 2 * k, 2 + k)
+                shown = True
+            least = _number(ds.attrs.get("min_freeze_time_h"))
+            if least is None:
+                least = _number(ds.attrs.get("min_freeze_time"))
+            limit(ax, least, f"required {least:g} h" if least is not None else "", 3, (0, (6, 2)))
+            units = _units(ds[freeze[0]], "h")
+            ax.set_ylabel(axis_label("freeze time", units))
+            if not shown:
+                ax.text(0.5, 0.5, "no freezing within the run", transform=ax.transAxes, ha="center", va="center",
+                        fontsize=9, color="#444444")
+
+    recommended = _number(ds.attrs.get("recommended_thickness"))
+    if recommended is not None:
+        for ax in axes:
+            ax.axvline(recommended * scale, color="#222222", linewidth=1.4, linestyle=(0, (3, 1, 1, 1)),
+                       label=f"recommended {recommended * scale:g} {unit}" if ax is axes[0] else None)
+    else:
+        axes[0].text(0.99, 0.97, "no candidate passes every criterion", transform=axes[0].transAxes, ha="right",
+                     va="top", fontsize=9, color=PALETTE[3], fontweight="bold")
+    if passes is not None:
+        from matplotlib.lines import Line2D
+
+        key = [Line2D([], [], linestyle="none", marker="o", color="#333333", label="passes every criterion"),
+               Line2D([], [], linestyle="none", marker="o", color="#333333", markerfacecolor="white",
+                      label="fails a criterion")]
+    else:
+        key = []
+    for i, ax in enumerate(axes):
+        handles, _ = ax.get_legend_handles_labels()
+        if i == 0:
+            handles = handles + key
+        ax.legend(handles=handles, fontsize=8, loc="best", framealpha=0.9)
+    axes[-1].set_xlabel(axis_label("insulation thickness", unit))
+    return fig
+
+
+# --------------------------------------------------------------------------- #
+# command line
+
+
+PLOTTERS = {"carpet": plot_carpet, "surfaces": plot_surfaces, "profiles": plot_profiles, "sizing": plot_sizing}
+
+
+def plot(ds: xr.Dataset, kind: str, times: list[str] | None = None) -> Any:
+    """The figure of one ``kind`` (``carpet``, ``surfaces``, ``profiles`` or ``sizing``)."""
+    if kind not in PLOTTERS:
+        raise ValueError(f"kind must be one of {KINDS}, got {kind!r}")
+    if kind == "profiles":
+        return plot_profiles(ds, times)
+    return PLOTTERS[kind](ds)
+
+
+def output_path(run: str | os.PathLike, kind: str, out: str | os.PathLike | None = None) -> Path:
+    """Where a plot goes: ``out``, else ``<run stem>-<kind>.png`` next to the run.
+
+    Raises
+    ------
+    CaseError
+        An unknown extension, or a file that exists already (key ``-o``).
+    """
+    path = Path(out) if out else Path(run).with_name(f"{Path(run).stem}-{kind}.png")
+    if path.suffix.lower() not in FORMATS:
+        raise CaseError(str(path), "-o", f"unknown figure format {path.suffix or '(none)'!r}; use .png, .svg or .pdf")
+    if path.exists():
+        how = "choose another name" if out else "choose a name with -o"
+        raise CaseError(str(path), "-o", f"exists already; layers never overwrites a file ({how})")
+    return path
+
+
+def save_figure(fig: Any, path: str | os.PathLike, metadata: dict[str, str] | None = None) -> Path:
+    """Save ``fig`` in the format its extension names, never overwriting a file.
+
+    The figure is written under a temporary name in the same folder and then
+    hard-linked into place, which fails if the name exists meanwhile.
+
+    Raises
+    ------
+    FileExistsError
+        If ``path`` exists.
+    """
+    path = Path(path)
+    fmt = FORMATS.get(path.suffix.lower())
+    if fmt is None:
+        raise ValueError(f"unknown figure format {path.suffix!r}; use .png, .svg or .pdf")
+    if path.exists():
+        raise FileExistsError(str(path))
+    path.parent.mkdir(parents=True, exist_ok=True)
+    meta = dict(metadata or {})
+    keys = {"png": ("Title", "Description", "Software"),
+            "svg": ("Title", "Description", "Creator"),
+            "pdf": ("Title", "Subject", "Creator")}[fmt]
+    info = dict(zip(keys, (meta.get("title", ""), meta.get("caution", ""), f"layers {__version__}")))
+    info = {k: v for k, v in info.items() if v}
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.stem}.", suffix=path.suffix, dir=path.parent)
+    os.close(fd)
+    try:
+        fig.savefig(tmp, format=fmt, dpi=DPI, metadata=info)
+        os.link(tmp, path)
+    finally:
+        try:
+            os.unlink(tmp)
+        except FileNotFoundError:
+            pass
+    return path
+
+
+def open_run(path: str | os.PathLike) -> xr.Dataset:
+    """Open a run or sizing Dataset for plotting (loaded, the file closed).
+
+    Raises
+    ------
+    CaseError
+        A missing file or one that is not netCDF (key ``run``).
+    """
+    path = Path(path)
+    if not path.is_file():
+        raise CaseError(str(path), "run", "no such file")
+    try:
+        with xr.open_dataset(path) as ds:
+            ds = ds.load()
+    except Exception as exc:  # noqa: BLE001 - whatever the netCDF reader says, the file is not a run
+        raise CaseError(str(path), "run", f"cannot read it as netCDF ({type(exc).__name__}: {exc})") from None
+    ds.encoding["source"] = str(path)
+    return ds
+
+
+def cmd_plot(args: argparse.Namespace) -> int:
+    """``layers plot RUN.nc [-o OUT] [--kind ...] [--times ...]``: draw, save, print the path."""
+    _use_agg()
+    kind = getattr(args, "kind", None) or "surfaces"
+    if kind not in KINDS:
+        raise CaseError(str(args.run), "--kind", f"unknown kind {kind!r}; choose one of {', '.join(KINDS)}")
+    target = output_path(args.run, kind, args.out)
+    ds = open_run(args.run)
+    if _is_sizing(ds) and kind != "sizing":
+        raise CaseError(str(args.run), "--kind", "this is a sizing Dataset (dimension thickness); use --kind sizing")
+    times = getattr(args, "times", None)
+    if times and kind != "profiles":
+        raise CaseError(str(args.run), "--times", "only --kind profiles uses --times")
+    fig = plot(ds, kind, times)
+    try:
+        written = save_figure(fig, target, {"title": str(ds.attrs.get("title", "")), "caution": _caution(ds)})
+    except FileExistsError:
+        raise CaseError(str(target), "-o", "exists already; layers never overwrites a file (choose another name)") from None
+    print(f"written: {written}")
+    return 0
+
+
+__all__ = [
+    "CARPET_CMAP", "DPI", "FIGSIZE", "KINDS", "LINESTYLES", "MARKERS", "PALETTE",
+    "LayerBand", "axis_label", "cmd_plot", "layer_bands", "new_figure", "open_run", "output_path",
+    "plot", "plot_carpet", "plot_profiles", "plot_sizing", "plot_surfaces", "pretty_units",
+    "save_figure", "select_times",
+]
