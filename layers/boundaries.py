@@ -199,17 +199,28 @@ class AutoFilm(SideModel):
             from layers.convection import iso6946_external_convection
 
             out["hc"] = np.asarray(iso6946_external_convection(out["wind"]), dtype=float) + z
+        self.table = None
+        if self.geometry != "planar" and np.ptp(out["air"]) == 0 and np.ptp(out["wind"]) == 0:
+            # steady air and wind: tabulate h_c against the surface temperature once
+            # (0.05 K spacing; linear interpolation errs by < 1e-4 W m-2 K-1 beyond 1 K of
+            # temperature difference) instead of evaluating the correlation every iteration
+            grid = out["air"][0] + np.arange(-250.0, 750.0, 0.05)
+            grid = grid[grid > -100.0]
+            self.table = (grid, self._correlation(grid, out["air"][0], out["wind"][0]))
         return out
+
+    def _correlation(self, t_surface, t_air, wind):
+        from layers.convection import combined_convection_coefficient
+
+        shape = "sphere" if self.geometry == "sphere" else "horizontal-cylinder"
+        return np.asarray(combined_convection_coefficient(t_surface, t_air, self.diameter, wind, shape), dtype=float)
 
     def convection(self, forcing, k: int, t_surface: float) -> float:
         if self.geometry == "planar":
             return self.h_inside if self.spec.side == "inside" else float(forcing["hc"][k])
-        from layers.convection import combined_convection_coefficient
-
-        shape = "sphere" if self.geometry == "sphere" else "horizontal-cylinder"
-        return float(
-            combined_convection_coefficient(t_surface, forcing["air"][k], self.diameter, forcing["wind"][k], shape)
-        )
+        if self.table is not None and self.table[0][0] <= t_surface <= self.table[0][-1]:
+            return float(np.interp(t_surface, *self.table))
+        return float(self._correlation(t_surface, forcing["air"][k], forcing["wind"][k]))
 
     def coefficients(self, forcing, k, t_surface, r_half) -> SideCoefficients:
         eps = self.emissivity

@@ -85,6 +85,41 @@ def cmd_run(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def cmd_size(args: argparse.Namespace) -> int:
+    import math
+
+    from layers.case import load_case
+    from layers.results import archive
+    from layers.sizing import cautions, criteria_table, size
+
+    if args.out and Path(args.out).exists():
+        raise CaseError(args.out, "-o", "exists already; layers never overwrites a file (choose another name)")
+    case = load_case(args.case)
+    if case.sizing is None:
+        raise CaseError(case.path, "sizing", "is required by 'layers size' (add a [sizing] table)")
+    progress = _Progress(args.quiet, f"{case.stem} sizing")
+    try:
+        ds = size(case, progress=progress)
+    finally:
+        progress.close()
+    written = archive(ds, f"{case.stem}-size", args.archive)
+    extra = _write_output(ds, args.out)
+    layer = case.sizing.layer
+    print(f"{case.title}: sizing layer {layer} ({case.layers[layer - 1].name})")
+    print(criteria_table(ds))
+    rec = ds.attrs["recommended_thickness"]
+    if math.isfinite(rec):
+        print(f"recommended: {rec * 1000:g} mm, the thinnest candidate that meets every criterion")
+    else:
+        print("no candidate thickness meets every criterion")
+    print(f"archived: {written}")
+    if extra:
+        print(f"written:  {extra}")
+    for line in cautions(case):
+        print(f"caution: {line}")
+    return EXIT_OK if math.isfinite(rec) else EXIT_FAILED
+
+
 def cmd_check(args: argparse.Namespace) -> int:
     from layers.case import load_case
     from layers.report import check_report
@@ -136,7 +171,9 @@ def build_parser() -> argparse.ArgumentParser:
     s = sub.add_parser("size", help="insulation sizing (needs [sizing])")
     s.add_argument("case")
     s.add_argument("-o", "--out")
-    s.set_defaults(func=_dispatch("layers.sizing_cli", "cmd_size"))
+    s.add_argument("--archive", help="archive folder (default: $LAYERS_ARCHIVE or runs/)")
+    s.add_argument("--quiet", action="store_true", help="no progress bar")
+    s.set_defaults(func=cmd_size)
 
     d = sub.add_parser("periodic", help="ISO 13786 dynamic thermal characteristics")
     d.add_argument("case")

@@ -1,0 +1,206 @@
+"""Insulation sizing: candidate thicknesses x criteria.
+
+Steady criteria (touch limit, dew point, heat-loss budget) use the vectorised
+steady state of :mod:`layers.steady` at the case's design conditions (the
+boundary values at its start time).  The freeze-time criterion runs the
+transient contents model (:mod:`layers.nonlinear`) once per candidate.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from collections.abc import Callable
+
+import numpy as np
+import xarray as xr
+
+from layers import CAUTION, __version__
+from layers.case import Case
+from layers.errors import CaseError
+from layers.results import HEAT_FLOW_UNITS, _now
+from layers.steady import steady_state
+
+CAUTION_TOUCH = (
+    "Touch limits depend on the contact time and the surface material (ISO 13732-1:2006; "
+    "ASTM C1055). Typical burn thresholds, from memory: about 65-70 degC for 1 s on bare metal, "
+    "51 degC for 1 min, 48 degC for 10 min and 43 degC for 8 h and longer on any material."
+)
+CAUTION_DEW = (
+    "A cold line also needs a continuous vapour barrier: a warm outer surface does not stop "
+    "vapour from condensing inside the insulation."
+)
+CAUTION_FREEZE = (
+    "Insulation alone only delays freezing of stagnant water; it cannot prevent it. Where freezing "
+    "must be prevented, keep the water flowing or add heat tracing."
+)
+
+
+def cautions(case: Case) -> list[str]:
+    """The cautions that apply to a sizing case, general one last."""
+    s = case.sizing
+    out = []
+    if s.max_surface_temperature is not None:
+        out.append(CAUTION_TOUCH)
+    if s.dew_point_margin is not None:
+        out.append(CAUTION_DEW)
+    if s.min_freeze_time is not None:
+        out.append(CAUTION_FREEZE)
+    out.append(CAUTION)
+    return out
+
+
+def with_thickness(case: Case, layer: int, thickness: float) -> Case:
+    """A copy of ``case`` with layer ``layer`` (1-based) of the given thickness [m]."""
+    layers = list(case.layers)
+    layers[layer - 1] = dataclasses.replace(layers[layer - 1], thickness=float(thickness))
+    return dataclasses.replace(case, layers=tuple(layers))
+
+
+def freeze_times(case: Case, thickness: float, progress: Callable[[int, int], None] | None = None) -> tuple[float, float]:
+    """Time to 0 degC and time to ``max_ice_fraction`` [s] for one candidate (NaN: not within the run)."""
+    from layers.mesh import build_mesh
+    from layers.simulate import run_nonlinear
+
+    trial = with_thickness(case, case.sizing.layer, thickness)
+    mesh = build_mesh(trial.layers, trial.mesh_rule, trial.geometry, trial.inner_radius)
+    result, _ = run_nonlinear(trial, mesh, progress)
+    return result.time_to_freezing, result.time_to_ice_fraction
+
+
+def size(case: Case, progress: Callable[[int, int], None] | None = None) -> xr.Dataset:
+    """Evaluate every criterion of ``[sizing]`` for every candidate thickness.
+
+    Returns
+    -------
+    xarray.Dataset
+        Dimension ``thickness`` [m]; variables ``surface_temperature_outside``,
+        ``heat_flow``, per criterion ``passes_<criterion>`` and
+        ``margin_<criterion>``; ``freeze_time`` and ``time_to_freezing`` [h]
+        where asked; attribute ``recommended_thickness`` [m] (NaN if none passes).
+    """
+    s = case.sizing
+    if s is None:
+        raise CaseError(case.path, "sizing", "the case has no [sizing] table")
+    thick = np.asarray(s.thicknesses, dtype=float)
+    flow_units = HEAT_FLOW_UNITS[case.geometry]
+    data: dict[str, tuple] = {}
+    attrs: dict[str, object] = {}
+    passes: dict[str, np.ndarray] = {}
+    steady_needed = any(v is not None for v in (s.max_surface_temperature, s.dew_point_margin, s.max_heat_loss))
+    if steady_needed or s.min_freeze_time is None:
+        st = steady_state(case, s.layer, thick)
+        ts = st.surface_temperature_outside
+        q = st.heat_flow
+        data["surface_temperature_outside"] = ("thickness", ts, {"units": "degC", "long_name": "outside surface temperature at steady design conditions"})
+        data["heat_flow"] = ("thickness", q, {"units": flow_units, "long_name": "steady heat flow from inside to outside at design conditions"})
+        data["surface_temperature_inside"] = ("thickness", st.surface_temperature_inside, {"units": "degC", "long_name": "inside surface temperature at steady design conditions"})
+        if s.max_surface_temperature is not None:
+            margin = s.max_surface_temperature - ts
+            passes["max_surface_temperature"] = margin >= 0
+            data["margin_max_surface_temperature"] = ("thickness", margin, {"units": "K", "long_name": "touch limit minus outside surface temperature"})
+            attrs["max_surface_temperature"] = s.max_surface_temperature
+        if s.dew_point_margin is not None:
+            from layers.psychrometrics import dew_point
+            from layers.steady import _value
+
+            t_air = _value(case, case.outside.air_temperature)
+            rh = _value(case, case.outside.relative_humidity)
+            td = float(dew_point(t_air, rh))
+            margin = ts - (td + s.dew_point_margin)
+            passes["dew_point_margin"] = margin >= 0
+            data["margin_dew_point_margin"] = ("thickness", margin, {"units": "K", "long_name": "outside surface temperature minus (dew point + margin)"})
+            attrs["dew_point"] = td
+            attrs["dew_point_margin"] = s.dew_point_margin
+            attrs["dew_point_source"] = "ISO 13788:2012 saturation vapour pressure (over water, over ice below 0 degC)"
+        if s.max_heat_loss is not None:
+            margin = s.max_heat_loss - np.abs(q)
+            passes["max_heat_loss"] = margin >= 0
+            data["margin_max_heat_loss"] = ("thickness", margin, {"units": flow_units, "long_name": "heat-loss budget minus the magnitude of the heat flow"})
+            attrs["max_heat_loss"] = s.max_heat_loss
+    if s.min_freeze_time is not None:
+        if case.time.duration < s.min_freeze_time:
+            raise CaseError(case.path, "time.duration", "must be at least sizing.min_freeze_time to test the freeze time")
+        t0 = np.empty(thick.size)
+        tf = np.empty(thick.size)
+        total = thick.size * case.time.n_steps
+        for i, d in enumerate(thick):
+            cb = (lambda done, _n, i=i: progress(i * case.time.n_steps + done, total)) if progress else None
+            t0[i], tf[i] = freeze_times(case, d, cb)
+        hours_f = tf / 3600.0
+        data["freeze_time"] = ("thickness", hours_f, {"units": "h", "long_name": f"time until {s.max_ice_fraction:g} of the water is ice (NaN: not within the run)"})
+        data["time_to_freezing"] = ("thickness", t0 / 3600.0, {"units": "h", "long_name": "time until the contents first reach 0 degC (NaN: not within the run)"})
+        reached = np.where(np.isnan(tf), np.inf, tf)
+        margin = (reached - s.min_freeze_time) / 3600.0
+        passes["min_freeze_time"] = reached >= s.min_freeze_time
+        data["margin_min_freeze_time"] = ("thickness", np.where(np.isfinite(margin), margin, np.nan), {"units": "h", "long_name": "freeze time minus the required time (NaN: no freezing within the run)"})
+        attrs["min_freeze_time_h"] = s.min_freeze_time / 3600.0
+        attrs["max_ice_fraction"] = s.max_ice_fraction
+        attrs["run_duration_h"] = case.time.duration / 3600.0
+    for name, ok in passes.items():
+        data[f"passes_{name}"] = ("thickness", ok.astype(bool), {"long_name": f"candidate meets {name.replace('_', ' ')}"})
+    all_ok = np.logical_and.reduce(list(passes.values())) if passes else np.zeros(thick.size, bool)
+    data["passes_all"] = ("thickness", all_ok, {"long_name": "candidate meets every criterion"})
+    recommended = float(thick[np.argmax(all_ok)]) if all_ok.any() else math.nan
+    ds = xr.Dataset(
+        data,
+        coords={"thickness": ("thickness", thick, {"units": "m", "long_name": f"thickness of layer {s.layer} ({case.layers[s.layer - 1].name})"})},
+    )
+    ds.attrs = {
+        "Conventions": "CF-1.10",
+        "title": case.title,
+        "case": case.text,
+        "case_sha256": case.sha256,
+        "software_version": __version__,
+        "created": _now(),
+        "geometry": case.geometry,
+        "sized_layer": s.layer,
+        "recommended_thickness": recommended,
+        "design_conditions": "boundary values at the case's start time",
+        "caution": " ".join(cautions(case)),
+        **attrs,
+    }
+    return ds
+
+
+def criteria_table(ds: xr.Dataset) -> str:
+    """Text table: one row per candidate, one column per criterion (pass/fail and margin)."""
+    names = [v[len("passes_"):] for v in ds.data_vars if v.startswith("passes_") and v != "passes_all"]
+    labels = {
+        "max_surface_temperature": "touch limit",
+        "dew_point_margin": "dew point",
+        "max_heat_loss": "heat loss",
+        "min_freeze_time": "freeze time",
+    }
+    head = f"{'thickness':>10} "
+    if "surface_temperature_outside" in ds:
+        head += f"{'surface':>9} {'heat flow':>11} "
+    if "freeze_time" in ds:
+        head += f"{'to 0 degC':>10} {'to ice':>9} "
+    head += " ".join(f"{labels.get(n, n):>18}" for n in names)
+    flow_units = ds["heat_flow"].attrs["units"].replace("W m-1", "W/m").replace("W m-2", "W/m2") if "heat_flow" in ds else ""
+    unit = f"{'[mm]':>10} "
+    if "surface_temperature_outside" in ds:
+        unit += f"{'[degC]':>9} {'[' + flow_units + ']':>11} "
+    if "freeze_time" in ds:
+        unit += f"{'[h]':>10} {'[h]':>9} "
+    unit += " ".join(f"{'(margin)':>18}" for _ in names)
+    lines = [head, unit]
+    margin_units = {n: ds[f"margin_{n}"].attrs["units"].replace("W m-1", "W/m").replace("W m-2", "W/m2") for n in names}
+    run_h = ds.attrs.get("run_duration_h", math.nan)
+    for i, d in enumerate(ds["thickness"].values):
+        row = f"{d * 1000:>10.1f} "
+        if "surface_temperature_outside" in ds:
+            row += f"{float(ds['surface_temperature_outside'][i]):>9.2f} {float(ds['heat_flow'][i]):>11.2f} "
+        if "freeze_time" in ds:
+            t0, tf = float(ds["time_to_freezing"][i]), float(ds["freeze_time"][i])
+            row += f"{(f'{t0:.2f}' if math.isfinite(t0) else f'>{run_h:g}'):>10} {(f'{tf:.2f}' if math.isfinite(tf) else f'>{run_h:g}'):>9} "
+        cells = []
+        for n in names:
+            ok = bool(ds[f"passes_{n}"][i])
+            m = float(ds[f"margin_{n}"][i])
+            mtxt = f"{m:+.2f} {margin_units[n]}" if math.isfinite(m) else "not reached"
+            cells.append(f"{('pass' if ok else 'FAIL') + ' (' + mtxt + ')':>18}")
+        row += " ".join(cells)
+        lines.append(row)
+    return "\n".join(lines)

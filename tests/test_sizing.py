@@ -1,0 +1,188 @@
+"""Steady ISO 12241 calculation and insulation sizing."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+import xarray as xr
+
+from layers.case import load_case
+from layers.cli import main
+from layers.sizing import size
+from layers.steady import steady_state
+
+HT_EXAMPLE = """
+[geometry]
+kind = "cylinder"
+inner_radius = "38.9636 mm"
+[materials.ht-steel]
+conductivity = 56.045
+density = 7850
+specific_heat = 450
+[materials.ht-ins]
+conductivity = 0.0598535265
+density = 100
+specific_heat = 840
+[[layers]]
+material = "ht-steel"
+thickness = 0.0054864
+[[layers]]
+material = "ht-ins"
+thickness = 0.05
+[inside]
+type = "temperature"
+surface_temperature = "453.15 K"
+[outside]
+type = "film"
+air_temperature = "301.15 K"
+film_coefficient = 22.697193
+[time]
+duration = "1 h"
+step = "1 h"
+"""
+
+
+def test_layered_cylinder_matches_ht_docstring_example(write_case):
+    """ht.conduction.cylindrical_heat_transfer docstring example (ht 1.2.0):
+    Q = 73.1200 W/m and outer surface 306.5785 K.  hi = 1e12 there is a fixed
+    bore temperature here.  Both are exact series-resistance solutions;
+    tolerance 1e-6 relative (the printed digits) and the live ht value to 1e-9."""
+    import ht
+
+    ref = ht.conduction.cylindrical_heat_transfer(
+        Ti=453.15, To=301.15, hi=1e12, ho=22.697193, Di=0.0779272, ts=[0.0054864, 0.05], ks=[56.045, 0.0598535265]
+    )
+    st = steady_state(load_case(write_case(HT_EXAMPLE)))
+    assert float(st.heat_flow[0]) == pytest.approx(73.1200, rel=1e-6)
+    assert float(st.surface_temperature_outside[0]) + 273.15 == pytest.approx(306.5785, abs=1e-4)
+    assert float(st.heat_flow[0]) == pytest.approx(ref["Q"], rel=1e-9)
+    assert float(st.face_temperature[0, 0, 1]) + 273.15 == pytest.approx(ref["Ts"][1], abs=1e-8)
+
+
+PIPE = """
+[geometry]
+kind = "cylinder"
+inner_radius = "57.15 mm"
+[materials.ins-005]
+conductivity = "0.05 W/(m*K)"
+density = "100 kg/m3"
+specific_heat = "840 J/(kg*K)"
+[[layers]]
+material = "ins-005"
+thickness = "50 mm"
+[inside]
+type = "temperature"
+surface_temperature = "300 degC"
+[outside]
+type = "film"
+air_temperature = "25 degC"
+film_coefficient = "10 W/(m2*K)"
+[time]
+duration = "1 h"
+step = "1 h"
+[sizing]
+layer = 1
+thicknesses = {{from = "30 mm", to = "50 mm", step = "2 mm"}}
+max_surface_temperature = "{limit}"
+"""
+
+
+def test_iso12241_pipe_sizing_example(write_case):
+    """DN100 (OD 0.1143 m) at 300 degC, lambda 0.05, ambient 25 degC, he 10 W/m2K.
+
+    ISO 12241:2008 sec. 4 formulas (q = dtheta / R', theta_se = theta_a + q /
+    (he pi De)), computed (not a published example): s = 50 mm gives theta_se =
+    44.01 degC and q = 127.95 W/m; the thickness for 50 degC is 39.0 mm.  The
+    steady solver is exact for constant lambda: tolerance 0.005 (half the last
+    printed digit).  On a 2 mm grid the recommendation must be 40 mm, with
+    38 mm failing.
+    """
+    case = load_case(write_case(PIPE.format(limit="50 degC")))
+    st = steady_state(case)
+    assert float(st.surface_temperature_outside[0]) == pytest.approx(44.01, abs=0.005)
+    assert float(st.heat_flow[0]) == pytest.approx(127.95, abs=0.005)
+    ds = size(case)
+    rec = ds.attrs["recommended_thickness"]
+    assert rec == pytest.approx(0.040)
+    i = int(np.argmin(np.abs(ds.thickness.values - rec)))
+    assert bool(ds.passes_all[i]) and not bool(ds.passes_all[i - 1])
+    assert not ds.passes_all.values[:i].any()
+
+
+def test_sizing_cli_exit_status_and_dataset(write_case, tmp_path, capsys):
+    """`layers size` exits 0 with a recommendation and 1 when no candidate passes;
+    the Dataset carries passes_<criterion>, the recommended thickness and the cautions."""
+    good = write_case(PIPE.format(limit="50 degC"), "good.toml")
+    out = tmp_path / "sizing.nc"
+    assert main(["size", str(good), "-o", str(out), "--archive", str(tmp_path / "a"), "--quiet"]) == 0
+    text = capsys.readouterr().out
+    assert "recommended: 40 mm" in text and "ISO 13732-1" in text and "licensed practice" in text
+    with xr.open_dataset(out) as ds:
+        assert ds["passes_max_surface_temperature"].dtype == bool
+        assert ds.attrs["recommended_thickness"] == pytest.approx(0.04)
+        assert ds["thickness"].attrs["units"] == "m"
+    bad = write_case(PIPE.format(limit="30 degC"), "bad.toml")
+    assert main(["size", str(bad), "--archive", str(tmp_path / "a"), "--quiet"]) == 1
+    assert "no candidate" in capsys.readouterr().out
+
+
+def test_dew_point_criterion_uses_iso13788_dew_point(write_case):
+    """Chilled line: the criterion is theta_se >= theta_dew + margin, with the
+    dew point of 30 degC / 80 % RH (ISO 13788 expression; psychrolib agrees to
+    0.05 K).  The margins must equal theta_se - (theta_dew + 1 K) exactly."""
+    import psychrolib
+
+    psychrolib.SetUnitSystem(psychrolib.SI)
+    case = load_case("cases/chilled-water-condensation.toml")
+    ds = size(case)
+    assert ds.attrs["dew_point"] == pytest.approx(psychrolib.GetTDewPointFromRelHum(30.0, 0.8), abs=0.05)
+    np.testing.assert_allclose(
+        ds["margin_dew_point_margin"].values, ds["surface_temperature_outside"].values - ds.attrs["dew_point"] - 1.0
+    )
+    rec = ds.attrs["recommended_thickness"]
+    passing = ds.thickness.values[ds.passes_all.values]
+    assert rec == passing.min()
+
+
+def test_steady_solver_agrees_with_finite_volumes_for_k_of_t(write_case):
+    """Hot-oil demo (k(T) mineral wool, auto film): the exact Kirchhoff steady
+    solution and the FV nonlinear steady state (k at cell centres, second order)
+    agree within 0.2 % in heat flow for 5 mm cells (dk/k across a cell < 2 %,
+    squared ~ 4e-4)."""
+    from layers.simulate import simulate
+
+    case = load_case("cases/hot-oil-line-touch.toml")
+    st = steady_state(case)
+    text = open("cases/hot-oil-line-touch.toml").read().replace('initial = "30 degC"', 'initial = "steady"').replace(
+        'duration = "8 h"', 'duration = "2 min"'
+    )
+    ds = simulate(load_case(write_case(text)))
+    assert float(ds.heat_flow_outside[0]) == pytest.approx(float(st.heat_flow[0]), rel=2e-3)
+    assert float(ds.surface_temperature_outside[0]) == pytest.approx(float(st.surface_temperature_outside[0]), abs=0.05)
+
+
+def test_freeze_sizing_picks_thinnest_passing(write_case):
+    """Outdoor freeze demo: each candidate's freeze time comes from its own transient run;
+    the recommendation is the thinnest passing candidate and the next thinner fails."""
+    case = load_case("cases/outdoor-water-freeze.toml")
+    ds = size(case)
+    ft = ds["freeze_time"].values
+    assert np.all(np.diff(ft) > 0)  # thicker insulation, longer freeze time
+    rec = ds.attrs["recommended_thickness"]
+    i = int(np.argmin(np.abs(ds.thickness.values - rec)))
+    assert ft[i] >= 12.0 and ft[i - 1] < 12.0
+    assert np.all(ds["time_to_freezing"].values < ft)
+
+
+def test_vectorised_steady_many_candidates(write_case):
+    """Thousands of candidates in one call give the same answer as one at a time (exactness of vectorisation)."""
+    case = load_case(write_case(PIPE.format(limit="50 degC")))
+    many = np.linspace(0.01, 0.2, 2000)
+    st = steady_state(case, 1, many)
+    one = steady_state(case, 1, many[[0, 999, 1999]])
+    np.testing.assert_allclose(st.heat_flow[[0, 999, 1999]], one.heat_flow, rtol=1e-12)
+    r1, r2 = 0.05715, 0.05715 + many
+    exact = 275.0 / (np.log(r2 / r1) / (2 * math.pi * 0.05) + 1 / (10 * 2 * math.pi * r2))
+    np.testing.assert_allclose(st.heat_flow, exact, rtol=1e-10)
