@@ -32,6 +32,8 @@ SCHEMES = ("backward-euler", "crank-nicolson", "tr-bdf2")
 ISO6946_RSI_HORIZONTAL = 0.13
 ISO6946_RSE = 0.04
 DEFAULT_START = "2026-01-01T00:00"
+#: A single layer thicker than this is taken for a unit slip [m].
+MAX_LAYER_THICKNESS = 20.0
 
 
 class _Table:
@@ -343,6 +345,11 @@ def _parse_layers(items: Any, materials: dict[str, Material], file: str) -> tupl
             raise t.error("material", "must be a material name")
         material = resolve(name, materials, file=file, key=t.key("material"))
         thickness = _positive(t.get("thickness", required=True), "length", t, "thickness")
+        if thickness > MAX_LAYER_THICKNESS:
+            raise t.error(
+                "thickness",
+                f"{thickness:g} m is implausible for one layer (bare numbers are metres; did you mean \"{t.data['thickness']} mm\"?)",
+            )
         contact = 0.0
         if t.has("contact_resistance"):
             contact = _positive(t.get("contact_resistance"), "areal_resistance", t, "contact_resistance", allow_zero=True)
@@ -479,7 +486,7 @@ class _ForcingContext:
             have = self.kinds[name]
             want = "irradiance" if kind == "heat_flux" and have == "irradiance" else kind
             if have != want and not (kind == "heat_flux" and have in ("irradiance",)):
-                raise CaseError(self.file, key, f"series {name!r} is a {have.replace('_', ' ')}, not a {kind.replace('_', ' ')}")
+                raise CaseError(self.file, key, f"series {name!r} holds {have.replace('_', ' ')} values, not {kind.replace('_', ' ')} values")
             if name in self.cycles:
                 return Forcing.from_cycle(self.cycles[name][0])
             return Forcing.from_series(self.series, name, case_file=self.file, key=key)

@@ -98,9 +98,12 @@ class MeshRule:
         if self.growth == 1.0:
             h_first = h_max
 
+        # grading steps until the cap is reached (no need to raise growth further)
+        k_cap = math.ceil(math.log(h_max / h_first) / math.log(self.growth)) if self.growth > 1.0 else 0
+
         def profile(n: int) -> np.ndarray:
             i = np.arange(n)
-            k = np.minimum(i, n - 1 - i)
+            k = np.minimum(np.minimum(i, n - 1 - i), k_cap)
             return np.minimum(h_first * self.growth**k, h_max)
 
         if cells is not None:

@@ -1,0 +1,128 @@
+"""Bad input: exit status 2, one line naming the file, the key and the reason, nothing written."""
+
+from __future__ import annotations
+
+import pytest
+
+from layers.cli import main
+
+GOOD = """
+title = "wall"
+[[layers]]
+material = "concrete"
+thickness = "200 mm"
+[inside]
+type = "film"
+air_temperature = "20 degC"
+[outside]
+type = "film"
+air_temperature = "series:t_out"
+[series]
+file = "weather.csv"
+[series.columns]
+t_out = {column = "T_out", unit = "degC"}
+[time]
+step = "1 h"
+"""
+
+WEATHER = "time,T_out\n2026-01-01T00:00,1.0\n2026-01-01T01:00,2.0\n2026-01-01T02:00,3.0\n2026-01-01T03:00,2.5\n"
+
+
+def _run(tmp_path, text, weather=WEATHER):
+    case = tmp_path / "case.toml"
+    case.write_text(text)
+    (tmp_path / "weather.csv").write_text(weather)
+    archive = tmp_path / "runs"
+    code = main(["run", str(case), "--archive", str(archive), "--quiet"])
+    return code, archive
+
+
+def test_good_case_runs(tmp_path, capsys):
+    code, archive = _run(tmp_path, GOOD)
+    assert code == 0
+    assert len(list(archive.glob("*.nc"))) == 1
+
+
+@pytest.mark.parametrize(
+    "change,key,words",
+    [
+        (("[[layers]]", "[[layers]"), "(syntax)", "malformed TOML"),
+        (('title = "wall"', 'title = "wall"\ncolour = "red"'), "colour", "unknown key"),
+        (('material = "concrete"', 'material = "concret"'), "layers[1].material", "unknown material"),
+        (('thickness = "200 mm"', 'thickness = "0.2"'), None, None),  # bare number: SI metres, valid
+        (('thickness = "200 mm"', 'thickness = 200'), "layers[1].thickness", "did you mean"),
+        (('thickness = "200 mm"', 'thickness = "200 kg"'), "layers[1].thickness", "not a length"),
+        (('thickness = "200 mm"', 'thickness = "-200 mm"'), "layers[1].thickness", "must be positive"),
+        (('thickness = "200 mm"', 'thickness = "0 mm"'), "layers[1].thickness", "must be positive"),
+        (('step = "1 h"', 'step = "0 s"'), "time.step", "must be positive"),
+        (('step = "1 h"', 'step = "1 parsec"'), "time.step", "not a duration"),
+        (('type = "film"\nair_temperature = "20 degC"', 'type = "radiator"'), "inside.type", "unknown boundary type"),
+        (('column = "T_out"', 'column = "T_outside"'), "T_outside", "T_out"),
+        (('unit = "degC"', 'unit = "W/m2"'), "outside.air_temperature", "irradiance"),
+        (('air_temperature = "20 degC"', 'air_temperature = "20 m"'), "inside.air_temperature", "not a temperature"),
+        (('air_temperature = "series:t_out"', 'air_temperature = "series:t_in"'), "outside.air_temperature", "no series named"),
+    ],
+)
+def test_bad_case_exit_2_one_line_nothing_written(tmp_path, capsys, change, key, words):
+    old, new = change
+    assert old in GOOD
+    code, archive = _run(tmp_path, GOOD.replace(old, new, 1))
+    err = capsys.readouterr().err
+    if key is None:
+        assert code == 0
+        return
+    assert code == 2, err
+    assert err.count("\n") == 1 and "Traceback" not in err
+    assert "case.toml" in err or "weather.csv" in err
+    assert key in err and words in err
+    assert not archive.exists() or not list(archive.iterdir())
+
+
+def test_materials_bad_values(tmp_path, capsys):
+    text = GOOD + '\n[materials.foam]\nconductivity = "-0.03 W/(m*K)"\ndensity = "30 kg/m3"\nspecific_heat = "1400 J/(kg*K)"\n'
+    code, _ = _run(tmp_path, text)
+    err = capsys.readouterr().err
+    assert code == 2 and "materials.foam.conductivity" in err
+    text = GOOD + '\n[materials.foam]\nconductivity = "0.03 W/(m*K)"\ndensity = "0 kg/m3"\nspecific_heat = "1400 J/(kg*K)"\n'
+    code, _ = _run(tmp_path, text)
+    err = capsys.readouterr().err
+    assert code == 2 and "materials.foam.density" in err
+
+
+def test_series_with_nan_is_refused(tmp_path, capsys):
+    code, archive = _run(tmp_path, GOOD, WEATHER.replace("2.0", "nan"))
+    err = capsys.readouterr().err
+    assert code == 2 and "weather.csv" in err and "row 3" in err and "T_out" in err
+
+
+def test_run_beyond_series_is_refused(tmp_path, capsys):
+    code, _ = _run(tmp_path, GOOD.replace('step = "1 h"', 'step = "1 h"\nduration = "10 h"'))
+    err = capsys.readouterr().err
+    assert code == 2 and "outside the series" in err
+
+
+def test_output_never_overwritten(tmp_path, capsys):
+    case = tmp_path / "case.toml"
+    case.write_text(GOOD)
+    (tmp_path / "weather.csv").write_text(WEATHER)
+    out = tmp_path / "out.nc"
+    out.write_bytes(b"precious")
+    code = main(["run", str(case), "-o", str(out), "--archive", str(tmp_path / "runs"), "--quiet"])
+    assert code == 2 and "exists" in capsys.readouterr().err
+    assert out.read_bytes() == b"precious"
+    assert not (tmp_path / "runs").exists()
+
+
+def test_archive_names_never_collide(tmp_path):
+    case = tmp_path / "case.toml"
+    case.write_text(GOOD)
+    (tmp_path / "weather.csv").write_text(WEATHER)
+    for _ in range(3):
+        assert main(["run", str(case), "--archive", str(tmp_path / "runs"), "--quiet"]) == 0
+    assert len(list((tmp_path / "runs").glob("case-*.nc"))) == 3
+    assert not list((tmp_path / "runs").glob(".*partial"))
+
+
+def test_missing_case_file(tmp_path, capsys):
+    assert main(["check", str(tmp_path / "nope.toml")]) == 2
+    assert "cannot read" in capsys.readouterr().err
