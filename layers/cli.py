@@ -77,7 +77,7 @@ def cmd_run(args: argparse.Namespace) -> int:
     written = archive(ds, case.stem, args.archive)
     extra = _write_output(ds, args.out)
     if not args.quiet:
-        print(run_summary(ds))
+        print(run_summary(ds, case))
         print(f"archived: {written}")
         if extra:
             print(f"written:  {extra}")

@@ -84,15 +84,19 @@ def check_report(case: Case) -> str:
         lines.append(
             f"U-value:   {1.0 / total:.4g} W/(m2*K)   (Rsi {r_si:.3g} + R {r_cond:.4g} + Rse {r_se:.3g} = {total:.4g} m2K/W, ISO 6946)"
         )
-    t_in = _boundary_temperature(case.inside)
-    t_out = _boundary_temperature(case.outside)
-    if case.geometry != "planar":
-        unit = "W/m" if case.geometry == "cylinder" else "W"
-        lines.append(f"resistance: {total:.4g} K/{unit[:-1] or 'W'}{'*m' if case.geometry == 'cylinder' else ''} surface to surface plus films")
-        if t_in is not None and t_out is not None:
-            lines.append(f"heat loss: {(t_in - t_out) / total:.4g} {unit} at {t_in:g} / {t_out:g} degC (steady, films as given)")
-    elif t_in is not None and t_out is not None:
-        lines.append(f"heat flow: {(t_in - t_out) / total:.4g} W/m2 at {t_in:g} / {t_out:g} degC (steady)")
+    try:
+        from layers.steady import steady_state
+
+        st = steady_state(case)
+        unit = {"planar": "W/m2", "cylinder": "W/m", "sphere": "W"}[case.geometry]
+        lines.append(
+            f"steady:    heat flow {float(st.heat_flow[0]):.4g} {unit} inside to outside at the start-time conditions; "
+            f"surfaces {float(st.surface_temperature_inside[0]):.2f} / {float(st.surface_temperature_outside[0]):.2f} degC"
+        )
+        if case.geometry == "cylinder" and not (case.inside.auto_film or case.outside.auto_film):
+            lines.append(f"           resistance per metre, fluid to air: {total:.4g} m*K/W (films as given; k at 10 degC)")
+    except CaseError:
+        pass  # flux or adiabatic boundaries: no steady heat flow to report
     for spec in (case.inside, case.outside):
         lines.append(f"{spec.side + ':':<10} {_describe_boundary(spec)}")
     plan = case.time
@@ -147,8 +151,51 @@ def _extreme(da: xr.DataArray, fn) -> tuple[float, str]:
     return float(da.values[i]), str(np.datetime_as_string(da["time"].values[i], unit="m"))
 
 
-def run_summary(ds: xr.Dataset) -> str:
-    """What ``layers run`` prints after a run: extremes, heat flows, energy through each surface."""
+def harmonic(values: np.ndarray, seconds: np.ndarray, period: float) -> complex:
+    """Complex amplitude of the fundamental over whole periods: values ~ mean + Re(A e^(i w t))."""
+    w = 2.0 * np.pi / period
+    return complex(2.0 * np.mean(values * np.exp(-1j * w * seconds)))
+
+
+def observed_periodic_response(ds: xr.Dataset, case: Case) -> tuple[float, float, float] | None:
+    """Observed decrement factor [-], lag [h] and period [s] over the last whole period of a run.
+
+    Applies to planar runs whose outside air follows a generated cycle and
+    whose inside air is constant; returns None otherwise.  The decrement is
+    |q_inside| / (U |theta_outside|) for the fundamental harmonic, the lag the
+    delay of the inward heat flow behind the outside air (ISO 13786 time
+    shift with the sign reversed).
+    """
+    out, ins = case.outside, case.inside
+    if case.geometry != "planar" or out.kind != "film" or ins.kind != "film" or out.auto_film or ins.auto_film:
+        return None
+    if not getattr(out.air_temperature, "is_cycle", False) or ins.air_temperature.value is None:
+        return None
+    if "air_temperature_outside" not in ds:
+        return None
+    period = 86400.0
+    seconds = (ds["time"].values - ds["time"].values[0]) / np.timedelta64(1, "s")
+    dt = float(seconds[1] - seconds[0]) if seconds.size > 1 else 0.0
+    if dt <= 0 or abs(period / dt - round(period / dt)) > 1e-9 or seconds[-1] < period:
+        return None
+    n = int(round(period / dt))
+    sel = slice(seconds.size - 1 - n, seconds.size - 1)
+    t = seconds[sel]
+    q_room = harmonic(-ds["heat_flow_inside"].values[sel], t, period)
+    t_out = harmonic(ds["air_temperature_outside"].values[sel], t, period)
+    if abs(t_out) == 0:
+        return None
+    mesh_r = ds.attrs.get("steady_resistance_total")
+    if not mesh_r:
+        return None
+    y = q_room / t_out
+    lag = (-np.angle(y) / (2 * np.pi) * period / 3600.0) % (period / 3600.0)
+    return abs(y) * mesh_r, float(lag), period
+
+
+def run_summary(ds: xr.Dataset, case: Case | None = None) -> str:
+    """What ``layers run`` prints after a run: extremes, heat flows, energy through each surface,
+    and for a periodic outside cycle the observed decrement and lag beside ISO 13786."""
     flow_units = ds["heat_flow_inside"].attrs["units"].replace(" ", "/").replace("-2", "2").replace("/-1", "").replace("m-1", "m")
     lines = [f"{ds.attrs.get('title', '')}: {ds.sizes['time']} records, {ds.sizes['x']} cells, scheme {ds.attrs['scheme']}"]
     for side in ("inside", "outside"):
@@ -172,6 +219,18 @@ def run_summary(ds: xr.Dataset) -> str:
         f"out through the outside surface {ds.attrs['heat_out_outside_total'] / scale:.4g} {unit}"
     )
     lines.append(f"  energy balance error (relative): {ds.attrs['energy_balance_error']:.1e}")
+    if case is not None:
+        observed = observed_periodic_response(ds, case)
+        if observed is not None:
+            decrement, lag, period = observed
+            try:
+                dc, _ = periodic_report(case, period)
+                lines.append(
+                    f"  daily cycle (last {period / 3600:g} h): observed decrement factor {decrement:.4f}, lag {lag:.2f} h;"
+                    f" ISO 13786 predicts {dc.decrement_factor:.4f}, {dc.time_lag:.2f} h"
+                )
+            except CaseError:
+                pass
     return "\n".join(lines)
 
 

@@ -842,6 +842,16 @@ class Forcing:
         self._origin = func.__doc__ or "generated cycle"
         return self
 
+    @property
+    def value(self) -> float | None:
+        """The value of a constant forcing [SI], None for a series or a cycle."""
+        return self._value
+
+    @property
+    def is_cycle(self) -> bool:
+        """True for a generated cycle."""
+        return self._func is not None
+
     def span(self) -> tuple[np.datetime64, np.datetime64] | None:
         """First and last time covered (UTC), or ``None`` when defined at all times."""
         if self._x is None:

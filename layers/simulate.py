@@ -260,5 +260,7 @@ def simulate(case: Case, progress: Callable[[int, int], None] | None = None) -> 
         extra=extra,
         periodic_cycles=cycles,
     )
+    if case.geometry == "planar" and all(sp.kind == "film" and not sp.auto_film for sp in (case.inside, case.outside)) and mesh.is_linear:
+        attrs["steady_resistance_total"] = float(mesh.steady_resistance() + case.inside.surface_resistance + case.outside.surface_resistance)
     ds.attrs.update(attrs)
     return ds
