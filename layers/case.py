@@ -450,14 +450,22 @@ def _parse_series(value: Any, file: str, base_dir: Path):
         max_interval = t.get("max_interval")
         max_s = _positive(max_interval, "duration", t, "max_interval") if max_interval is not None else None
         time_col = t.get("time", "time")
+        embed = t.get("embed_series", False)
+        if not isinstance(embed, bool):
+            raise t.error("embed_series", "must be true or false")
         path = Path(fname)
         if not path.is_absolute():
             path = base_dir / path
         series = read_series(
             path, specs, time=time_col, timezone=timezone, fill_gaps=fill_s, max_interval=max_s, case_file=file
         )
+        if embed:
+            raw = path.read_bytes()
+            if raw[:4] in (b"CDF\x01", b"CDF\x02", b"\x89HDF"):
+                raise t.error("embed_series", "embedding works for CSV series; keep the netCDF file beside the run")
+            series.embedded = raw.decode("utf-8", errors="replace")
     else:
-        for name in ("columns", "time", "fill_gaps", "max_interval"):
+        for name in ("columns", "time", "fill_gaps", "max_interval", "embed_series"):
             if t.has(name):
                 raise t.error(name, "needs series.file")
     t.finish()

@@ -65,7 +65,14 @@ def cmd_run(args: argparse.Namespace) -> int:
 
     if args.out and Path(args.out).exists():
         raise CaseError(args.out, "-o", "exists already; layers never overwrites a file (choose another name)")
-    case = load_case(args.case)
+    if args.again:
+        from layers.provenance import load_archived_case
+
+        case = load_archived_case(args.again)
+    elif args.case:
+        case = load_case(args.case)
+    else:
+        raise CaseError("(command line)", "CASE", "give a case file, or --again RUN.nc")
     if args.label:
         case.label = args.label
     progress = _Progress(args.quiet, case.stem)
@@ -73,7 +80,9 @@ def cmd_run(args: argparse.Namespace) -> int:
         ds = simulate(case, progress=progress)
     finally:
         progress.close()
-    ds.attrs["command"] = " ".join(["layers", *sys.argv[1:]]) if sys.argv else "layers run"
+    import shlex
+
+    ds.attrs["command"] = "layers " + shlex.join(args.argv)
     written = archive(ds, case.stem, args.archive)
     extra = _write_output(ds, args.out)
     if not args.quiet:
@@ -157,7 +166,8 @@ def build_parser() -> argparse.ArgumentParser:
     sub = p.add_subparsers(dest="command", required=True, metavar="COMMAND")
 
     r = sub.add_parser("run", help="run a case and archive the result")
-    r.add_argument("case", help="case file (TOML)")
+    r.add_argument("case", nargs="?", help="case file (TOML)")
+    r.add_argument("--again", metavar="RUN.nc", help="re-run the case archived in a run file")
     r.add_argument("-o", "--out", help="also write the result to this netCDF file (never overwritten)")
     r.add_argument("--archive", help="archive folder (default: $LAYERS_ARCHIVE or runs/)")
     r.add_argument("--label", help="a label stored with the run")
@@ -225,6 +235,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         args = parser.parse_args(argv)
     except SystemExit as exc:  # argparse: usage errors exit 2 already
         return int(exc.code or 0)
+    args.argv = list(argv) if argv is not None else sys.argv[1:]
     debug = bool(os.environ.get("LAYERS_DEBUG"))
     try:
         with warnings.catch_warnings():

@@ -117,6 +117,7 @@ def to_dataset(
         "history": f"{_now()} layers run {Path(case.path).name}",
         "case": case.text,
         "case_file": Path(case.path).name,
+        "case_path": str(Path(case.path).resolve()),
         "case_sha256": case.sha256,
         "software_version": __version__,
         "created": _now(),
@@ -138,6 +139,9 @@ def to_dataset(
     if case.series is not None:
         ds.attrs["series_file"] = Path(case.series.file).name
         ds.attrs["series_sha256"] = case.series.sha256
+        ds.attrs["series_path"] = str(case.series.file)
+        if case.series.embedded is not None:
+            ds.attrs["series_embedded"] = case.series.embedded
         filled = {k: v for k, v in case.series.filled.items() if v}
         if filled:
             ds.attrs["series_filled"] = ", ".join(f"{k}: {v} values" for k, v in filled.items())
@@ -173,7 +177,8 @@ def write_new(ds: xr.Dataset, path: str | os.PathLike) -> Path:
     if path.exists():
         raise FileExistsError(str(path))
     path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.stem}.", suffix=".partial", dir=path.parent)
+    _remove_stale_partials(path.parent)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.stem}.{os.getpid()}.", suffix=".partial", dir=path.parent)
     os.close(fd)
     try:
         ds.to_netcdf(tmp, engine="netcdf4")
@@ -184,6 +189,24 @@ def write_new(ds: xr.Dataset, path: str | os.PathLike) -> Path:
         except FileNotFoundError:
             pass
     return path
+
+
+def _remove_stale_partials(folder: Path) -> None:
+    """Delete temporary files left by writers that were killed (their process is gone)."""
+    for stale in folder.glob(".*.partial"):
+        parts = stale.name.split(".")
+        try:
+            pid = int(parts[-3])
+        except (ValueError, IndexError):
+            continue
+        if pid == os.getpid():
+            continue
+        try:
+            os.kill(pid, 0)
+        except ProcessLookupError:
+            stale.unlink(missing_ok=True)
+        except PermissionError:
+            continue
 
 
 def archive(ds: xr.Dataset, stem: str, folder: str | os.PathLike | None = None) -> Path:

@@ -144,6 +144,7 @@ class Series:
     kinds: dict[str, str]
     file: str
     sha256: str
+    embedded: str | None = field(default=None, kw_only=True)  # the file's text, when the case embeds it
     filled: dict[str, int] = field(default_factory=dict)
     units: dict[str, str] = field(default_factory=dict)
 

@@ -1,0 +1,114 @@
+"""Provenance: what a run records, and re-running an archived run."""
+
+from __future__ import annotations
+
+import os
+import signal
+import subprocess
+import sys
+import time
+
+import numpy as np
+import xarray as xr
+
+from layers.cli import main
+
+CASE = """
+title = "provenance"
+[[layers]]
+material = "brick"
+thickness = "240 mm"
+[series]
+file = "data/weather.csv"
+embed_series = {embed}
+[series.columns]
+t_out = {{column = "T_out", unit = "degC"}}
+[inside]
+type = "film"
+air_temperature = "20 degC"
+[outside]
+type = "film"
+air_temperature = "series:t_out"
+[time]
+step = "30 min"
+"""
+
+
+def _setup(tmp_path, embed: bool):
+    (tmp_path / "data").mkdir()
+    rows = [f"2026-02-01T{h:02d}:00,{5 + 3 * np.sin(h / 4):.2f}" for h in range(24)]
+    (tmp_path / "data" / "weather.csv").write_text("time,T_out\n" + "\n".join(rows) + "\n")
+    case = tmp_path / "wall.toml"
+    case.write_text(CASE.format(embed=str(embed).lower()))
+    return case
+
+
+def test_run_records_provenance_and_reruns_from_embedded_series(tmp_path, capsys):
+    case = _setup(tmp_path, embed=True)
+    runs = tmp_path / "runs"
+    assert main(["run", str(case), "--archive", str(runs), "--label", "first", "--quiet"]) == 0
+    (first,) = list(runs.glob("*.nc"))
+    with xr.open_dataset(first) as ds:
+        a = ds.load()
+    assert a.attrs["label"] == "first" and "layers run" in a.attrs["command"]
+    assert len(a.attrs["series_sha256"]) == 64 and "series_embedded" in a.attrs
+    # the original files are gone; the archived run alone reproduces the result
+    (tmp_path / "data" / "weather.csv").unlink()
+    case.unlink()
+    assert main(["run", "--again", str(first), "--archive", str(runs), "--quiet"]) == 0
+    second = [p for p in runs.glob("*.nc") if p != first]
+    assert len(second) == 1
+    with xr.open_dataset(second[0]) as b:
+        np.testing.assert_array_equal(b["temperature"].values, a["temperature"].values)
+        assert b.attrs["case_sha256"] == a.attrs["case_sha256"]
+        assert b.attrs["label"] == "first"
+
+
+def test_again_without_embedded_series_needs_unchanged_file(tmp_path, capsys):
+    case = _setup(tmp_path, embed=False)
+    runs = tmp_path / "runs"
+    assert main(["run", str(case), "--archive", str(runs), "--quiet"]) == 0
+    (first,) = list(runs.glob("*.nc"))
+    assert main(["run", "--again", str(first), "--archive", str(runs), "--quiet"]) == 0
+    (tmp_path / "data" / "weather.csv").write_text("time,T_out\n2026-02-01T00:00,1\n2026-02-02T00:00,2\n")
+    assert main(["run", "--again", str(first), "--archive", str(runs), "--quiet"]) == 2
+    assert "changed" in capsys.readouterr().err
+
+
+def test_killed_run_leaves_nothing_in_the_archive(tmp_path):
+    """A run killed with SIGKILL halfway leaves no file in the archive."""
+    case = tmp_path / "long.toml"
+    case.write_text(
+        """
+        [[layers]]
+        material = "brick"
+        thickness = "240 mm"
+        cells = 400
+        [inside]
+        type = "film"
+        air_temperature = "20 degC"
+        [outside]
+        type = "film"
+        air_temperature = "series:c"
+        film_coefficient = "auto"
+        [series.cycles.c]
+        mean = "5 degC"
+        amplitude = "5 K"
+        [time]
+        duration = "3650 d"
+        step = "10 min"
+        initial = "0 degC"
+        """.replace("\n        ", "\n")
+    )
+    runs = tmp_path / "runs"
+    runs.mkdir()
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "layers.cli", "run", str(case), "--archive", str(runs), "--quiet"],
+        stdout=subprocess.DEVNULL,
+        stderr=subprocess.DEVNULL,
+    )
+    time.sleep(3.0)
+    assert proc.poll() is None, "the run ended before it could be killed"
+    os.kill(proc.pid, signal.SIGKILL)
+    proc.wait()
+    assert list(runs.iterdir()) == []
