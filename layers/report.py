@@ -315,6 +315,9 @@ def cmd_periodic(args: argparse.Namespace) -> int:
     dc, text = periodic_report(case, period)
     ds = dc.to_dataset(title=case.title)
     ds.attrs.update({"case": case.text, "case_sha256": case.sha256, "caution": CAUTION})
+    from layers.results import cf_encoding
+
+    cf_encoding(ds, f"layers periodic {case.path}")
     print(text)
     written = _write_output(ds, args.out)
     if written:

@@ -96,7 +96,7 @@ def to_dataset(
         data_vars[name] = _point(values, units, long_name, **attrs)
     coords: dict[str, tuple] = {
         "time": ("time", times, {"long_name": "time", "standard_name": "time", "axis": "T"}),
-        "x": ("x", mesh.x, {"units": "m", "long_name": "distance of the cell centre from the inside surface", "axis": "X"}),
+        "x": ("x", mesh.x, {"units": "m", "long_name": "distance of the cell centre from the inside surface"}),
         "layer": ("x", mesh.layer.astype(np.int32), {"long_name": "layer number from the inside (1-based)", "units": "1"}),
         "material": ("x", np.array([m.name for m in mesh.materials], dtype=object), {"long_name": "material name"}),
     }
@@ -146,7 +146,17 @@ def to_dataset(
         if filled:
             ds.attrs["series_filled"] = ", ".join(f"{k}: {v} values" for k, v in filled.items())
     ds.attrs = {k: v for k, v in ds.attrs.items() if v != ""}
+    cf_encoding(ds)
     ds["time"].encoding.update({"units": f"seconds since {np.datetime_as_string(times[0], unit='s')}", "calendar": "proleptic_gregorian", "dtype": "float64"})
+    return ds
+
+
+def cf_encoding(ds: xr.Dataset, history: str | None = None) -> xr.Dataset:
+    """CF details every written Dataset needs: no _FillValue on coordinates, a history line."""
+    for name in ds.coords:
+        ds[name].encoding["_FillValue"] = None
+    if history is not None or not ds.attrs.get("history"):
+        ds.attrs["history"] = f"{_now()} {history or 'layers'}"
     return ds
 
 

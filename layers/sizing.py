@@ -18,7 +18,7 @@ import xarray as xr
 from layers import CAUTION, __version__
 from layers.case import Case
 from layers.errors import CaseError
-from layers.results import HEAT_FLOW_UNITS, _now
+from layers.results import HEAT_FLOW_UNITS, _now, cf_encoding
 from layers.steady import steady_state
 
 CAUTION_TOUCH = (
@@ -160,7 +160,7 @@ def size(case: Case, progress: Callable[[int, int], None] | None = None) -> xr.D
         "caution": " ".join(cautions(case)),
         **attrs,
     }
-    return ds
+    return cf_encoding(ds, f"layers size {case.path}")
 
 
 def criteria_table(ds: xr.Dataset) -> str:
