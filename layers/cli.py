@@ -32,7 +32,8 @@ class _Progress:
         if not quiet and sys.stderr.isatty():
             from tqdm import tqdm
 
-            self.bar = tqdm(total=0, desc=desc, unit="step", leave=False, file=sys.stderr, mininterval=0.5)
+            # delay: runs shorter than about a second show no bar at all
+            self.bar = tqdm(total=0, desc=desc, unit="step", leave=False, file=sys.stderr, mininterval=0.5, delay=1.0)
 
     def __call__(self, done: int, total: int) -> None:
         if self.bar is not None:
@@ -238,9 +239,17 @@ def main(argv: Sequence[str] | None = None) -> int:
     args.argv = list(argv) if argv is not None else sys.argv[1:]
     debug = bool(os.environ.get("LAYERS_DEBUG"))
     try:
-        with warnings.catch_warnings():
+        with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("default")
-            return int(args.func(args))
+            try:
+                return int(args.func(args))
+            finally:
+                seen = set()
+                for w in caught:
+                    text = str(w.message)
+                    if text not in seen and not issubclass(w.category, DeprecationWarning):
+                        seen.add(text)
+                        _err(f"warning: {text}")
     except CaseError as exc:
         _err(str(exc))
         return EXIT_INPUT

@@ -219,6 +219,20 @@ def run_summary(ds: xr.Dataset, case: Case | None = None) -> str:
         f"out through the outside surface {ds.attrs['heat_out_outside_total'] / scale:.4g} {unit}"
     )
     lines.append(f"  energy balance error (relative): {ds.attrs['energy_balance_error']:.1e}")
+    for side in ("inside", "outside"):
+        if f"dew_point_{side}" not in ds:
+            continue
+        margin = ds[f"surface_temperature_{side}"].values - ds[f"dew_point_{side}"].values
+        i = int(np.argmin(margin))
+        when = np.datetime_as_string(ds["time"].values[i], unit="m")
+        if margin[i] >= 0:
+            lines.append(f"  {side} surface stays at least {margin[i]:.2f} K above the air's dew point (closest at {when}Z)")
+        else:
+            below = ds["time"].values[margin < 0]
+            lines.append(
+                f"  CONDENSATION RISK: the {side} surface falls below the air's dew point "
+                f"(by up to {-margin[i]:.2f} K, at {when}Z; {below.size} of {margin.size} records)"
+            )
     if case is not None:
         observed = observed_periodic_response(ds, case)
         if observed is not None:

@@ -240,7 +240,17 @@ def simulate(case: Case, progress: Callable[[int, int], None] | None = None) -> 
                 extra[f"sol_air_temperature_{spec.side}"] = sol_air
     for spec in (case.inside, case.outside):
         if spec.kind == "film":
-            extra[f"air_temperature_{spec.side}"] = in_seconds(case, spec.air_temperature)(seconds)
+            air = in_seconds(case, spec.air_temperature)(seconds)
+            extra[f"air_temperature_{spec.side}"] = air
+            if spec.relative_humidity is not None:
+                from layers.psychrometrics import dew_point
+
+                rh = in_seconds(case, spec.relative_humidity)(seconds) * np.ones_like(air)
+                extra[f"dew_point_{spec.side}"] = (
+                    "degC",
+                    f"{spec.side} air dew point (ISO 13788:2012 saturation pressure)",
+                    np.asarray(dew_point(air, rh), dtype=float),
+                )
     net = heat_in + heat_out
     scale = max(heat_abs, abs(stored_end - stored0), 1e-300)
     balance = abs((stored_end - stored0) - net) / scale

@@ -186,3 +186,19 @@ def test_vectorised_steady_many_candidates(write_case):
     r1, r2 = 0.05715, 0.05715 + many
     exact = 275.0 / (np.log(r2 / r1) / (2 * math.pi * 0.05) + 1 / (10 * 2 * math.pi * r2))
     np.testing.assert_allclose(st.heat_flow, exact, rtol=1e-10)
+
+
+def test_run_reports_dew_point_margin(tmp_path, capsys):
+    """A run with relative humidity records the air's dew point (ISO 13788; psychrolib
+    agrees within 0.05 K at 30 degC / 80 %) and the summary states the surface margin."""
+    import psychrolib
+
+    psychrolib.SetUnitSystem(psychrolib.SI)
+    out = tmp_path / "chilled.nc"
+    assert main(["run", "cases/chilled-water-condensation.toml", "-o", str(out), "--archive", str(tmp_path / "r")]) == 0
+    text = capsys.readouterr().out
+    assert "dew point" in text
+    with xr.open_dataset(out) as ds:
+        assert float(ds["dew_point_outside"][0]) == pytest.approx(psychrolib.GetTDewPointFromRelHum(30.0, 0.8), abs=0.05)
+        margin = float((ds["surface_temperature_outside"] - ds["dew_point_outside"]).min())
+    assert f"{margin:.2f} K above" in text
