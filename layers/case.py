@@ -280,9 +280,9 @@ def parse_case(data: dict, *, file: str = "<case>", text: str = "", base_dir: Pa
                         f"the run ({_iso(time.start)} to {_iso(end)}) reaches outside the series "
                         f"{series.file if series else ''} ({_iso(span[0])} to {_iso(span[1])})",
                     )
-    if time.initial == "steady" and inside.kind in ("flux", "adiabatic") and outside.kind in ("flux", "adiabatic"):
+    if time.initial in INITIAL_WORDS and inside.kind in ("flux", "adiabatic") and outside.kind in ("flux", "adiabatic"):
         raise CaseError(
-            file, "time.initial", "'steady' needs a boundary that fixes a temperature (film or temperature)"
+            file, "time.initial", f"{time.initial!r} needs a boundary that fixes a temperature (film or temperature); give a starting temperature"
         )
 
     sizing = None
