@@ -174,6 +174,8 @@ class AutoFilm(SideModel):
         self.geometry = case.geometry
         self.diameter = 2.0 * (mesh.inner_radius + mesh.total_thickness)
         self.emissivity = jacket_emissivity(spec.jacket) if spec.jacket else spec.emissivity
+        self.f_sky = float(view_factor_sky(spec.tilt))
+        self.f_ground = float(view_factor_ground(spec.tilt))
         if case.geometry == "planar":
             from layers.convection import iso6946_internal_convection
 
@@ -230,10 +232,7 @@ class AutoFilm(SideModel):
         num = hc * air + forcing["solar"][k]
         total = hc
         if "sky" in forcing:
-            pairs = (
-                (float(view_factor_sky(self.spec.tilt)), forcing["sky"][k]),
-                (float(view_factor_ground(self.spec.tilt)), air),
-            )
+            pairs = ((self.f_sky, forcing["sky"][k]), (self.f_ground, air))
         else:
             pairs = ((1.0, forcing["radiant"][k]),)
         for view, t_rad in pairs:

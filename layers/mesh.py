@@ -23,6 +23,7 @@ heat capacity.
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass, field
 
@@ -208,12 +209,12 @@ class Mesh:
             out[idx] = mat.conductivity_at(temperature[idx])
         return out
 
-    @property
+    @functools.cached_property
     def is_linear(self) -> bool:
         """True when every material has a constant conductivity."""
         return all(m.is_constant for m in self.materials)
 
-    @property
+    @functools.cached_property
     def _groups(self) -> list[tuple[Material, np.ndarray]]:
         groups: dict[int, tuple[Material, list[int]]] = {}
         for i, m in enumerate(self.materials):
