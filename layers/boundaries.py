@@ -108,7 +108,7 @@ from layers.nonlinear import SideCoefficients, SideModel  # noqa: E402
 from layers.radiation import STEFAN_BOLTZMANN, sky_temperature_swinbank, view_factor_ground, view_factor_sky  # noqa: E402
 
 KELVIN = 273.15
-#: ISO 6946:2017 Annex C: wind speed behind the conventional Rse = 0.04 m2K/W [m s-1].
+#: ISO 6946:2017, annex on surface resistances: wind speed behind the conventional Rse = 0.04 m2K/W [m s-1].
 ISO6946_WIND_SPEED = 4.0
 
 
@@ -146,7 +146,7 @@ class LinearSide(SideModel):
 class AutoFilm(SideModel):
     """Film coefficient from convection and long-wave radiation at the surface temperature.
 
-    Planar surfaces use the ISO 6946:2017 Annex C convective coefficients
+    Planar surfaces use the ISO 6946:2017, annex on surface resistances convective coefficients
     (inside by heat-flow direction: 5.0 / 2.5 / 0.7 W m-2 K-1 up / horizontal /
     down; outside 4 + 4 v).  Cylinders and spheres outdoors or indoors use
     free convection (Churchill-Chu horizontal cylinder, Churchill sphere)

@@ -32,6 +32,8 @@ SCHEMES = ("backward-euler", "crank-nicolson", "tr-bdf2")
 ISO6946_RSI_HORIZONTAL = 0.13
 ISO6946_RSE = 0.04
 DEFAULT_START = "2026-01-01T00:00"
+#: Film keys that describe the surface exchange and only matter when it is computed.
+AUTO_ONLY_KEYS = ("emissivity", "wind_speed", "radiant_temperature", "sky_temperature", "jacket", "tilt", "heat_flow_direction")
 #: A single layer thicker than this is taken for a unit slip [m].
 MAX_LAYER_THICKNESS = 20.0
 
@@ -583,7 +585,15 @@ def _parse_boundary(value: Any, side: str, geometry: str, ctx: _ForcingContext, 
         args["tilt"] = float(tilt)
         jacket = t.get("jacket")
         if jacket is not None:
+            from layers.radiation import JACKET_EMISSIVITY
+
+            if jacket not in JACKET_EMISSIVITY:
+                raise t.error("jacket", f"unknown jacket {jacket!r}; use one of {', '.join(JACKET_EMISSIVITY)}")
             args["jacket"] = str(jacket)
+        if not args.get("auto_film"):
+            for name in AUTO_ONLY_KEYS:
+                if t.has(name):
+                    raise t.error(name, "applies only with film_coefficient = \"auto\" (a fixed film coefficient already includes it)")
     elif kind == "temperature":
         args["surface_temperature"] = forcing("surface_temperature", "temperature", required=True)
     elif kind == "flux":

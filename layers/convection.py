@@ -863,7 +863,7 @@ _ISO6946_INTERNAL = MappingProxyType({"up": 5.0, "horizontal": 2.5, "down": 0.7}
 
 
 def iso6946_internal_convection(direction: str) -> float:
-    """Internal convective surface coefficient hci of ISO 6946 Annex A.
+    """Internal convective surface coefficient hci of ISO 6946 annex on surface resistances.
 
     Parameters
     ----------
@@ -878,7 +878,7 @@ def iso6946_internal_convection(direction: str) -> float:
 
     References
     ----------
-    ISO 6946:2017, Annex A (hci values from memory; they reproduce the
+    ISO 6946:2017, annex on surface resistances (hci values from memory; they reproduce the
     tabulated Rsi with hr0 at 20 degC).
     """
     _choice("direction", direction, tuple(_ISO6946_INTERNAL))
@@ -886,7 +886,7 @@ def iso6946_internal_convection(direction: str) -> float:
 
 
 def iso6946_external_convection(wind_speed: ArrayLike) -> np.ndarray:
-    """External convective surface coefficient hce = 4 + 4 v of ISO 6946 Annex A.
+    """External convective surface coefficient hce = 4 + 4 v of ISO 6946 annex on surface resistances.
 
     Parameters
     ----------
@@ -900,7 +900,7 @@ def iso6946_external_convection(wind_speed: ArrayLike) -> np.ndarray:
 
     References
     ----------
-    ISO 6946:2017, Annex A (from memory; reproduces the tabulated Rse
+    ISO 6946:2017, annex on surface resistances (from memory; reproduces the tabulated Rse
     against wind speed with hr0 at 0 degC).
     """
     speed = _non_negative("wind_speed", wind_speed)

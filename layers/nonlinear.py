@@ -136,6 +136,7 @@ class NonlinearResult:
     stored: np.ndarray
     final: np.ndarray
     final_enthalpy: float
+    initial_enthalpy: float
     unconverged_steps: int
     max_iterations_used: int
     time_to_freezing: float = math.nan        # [s] contents first at 0 degC
@@ -413,6 +414,7 @@ def march_nonlinear(
         stored=rec["stored"],
         final=temp,
         final_enthalpy=h_w,
+        initial_enthalpy=water.enthalpy(initial_water) if water is not None else 0.0,
         unconverged_steps=st.unconverged,
         max_iterations_used=st.max_iter,
         time_to_freezing=freeze_t,

@@ -50,7 +50,7 @@ DPI = 120
 #: Line colours: navy, orange, sky blue, brick red, mid grey.  Own choice;
 #: the smallest CIELAB distance between any two, under simulated
 #: protanopia, deuteranopia and tritanopia (Machado et al. 2009, severity 1),
-#: is about 22, well above what readers confuse.
+#: is above 25 (normal vision: above 38).
 PALETTE = ("#1d3f73", "#e0902a", "#5fb0e6", "#8a2f1e", "#6b6b6b")
 #: Dash patterns that go with :data:`PALETTE`, so greyscale prints still read.
 LINESTYLES = ("solid", (0, (6, 2)), (0, (6, 2, 1.5, 2)), (0, (1.5, 1.5)), (0, (10, 2, 1.5, 2, 1.5, 2)))
@@ -193,13 +193,17 @@ def new_figure(ds: xr.Dataset, what: str, nrows: int = 1, sharex: bool = False):
 
     fig = Figure(figsize=FIGSIZE, dpi=DPI, layout="constrained")
     FigureCanvasAgg(fig)
-    # keep a strip at the bottom for the caution and at the top for the titles
-    fig.get_layout_engine().set(rect=(0.0, 0.045, 1.0, 0.905), h_pad=0.04, w_pad=0.04)
+    # keep a strip at the top for the titles and one at the bottom for the
+    # caution, tall enough for its wrapped lines (about 190 characters a line
+    # at 6.5 pt across 10 in, 0.02 of the height each)
+    caution = _caution(ds)
+    strip = 0.012 + 0.021 * max(1, math.ceil(len(caution) / 185))
+    fig.get_layout_engine().set(rect=(0.0, strip, 1.0, 0.92 - strip), h_pad=0.04, w_pad=0.04)
     axes = fig.subplots(nrows, 1, sharex=sharex, squeeze=False)[:, 0].tolist()
     fig.text(0.5, 0.992, str(ds.attrs.get("title") or "untitled run"), ha="center", va="top",
              fontsize=13, fontweight="bold")
-    fig.text(0.5, 0.955, _subtitle(ds, what), ha="center", va="bottom", fontsize=8.5, color="#444444")
-    fig.text(0.01, 0.006, _caution(ds), ha="left", va="bottom", fontsize=6.5, color="#444444",
+    fig.text(0.5, 0.952, _subtitle(ds, what), ha="center", va="top", fontsize=8.5, color="#444444")
+    fig.text(0.01, 0.006, caution, ha="left", va="bottom", fontsize=6.5, color="#444444",
              wrap=True, gid="caution")
     for ax in axes:
         _style(ax)
@@ -488,28 +492,46 @@ def plot_carpet(ds: xr.Dataset) -> Any:
     return fig
 
 
-#: What the surfaces plot draws on the left axis: (variable, legend label, colour, style index).
+#: The lines of the surfaces plot: (variable, legend label, colour index, dash index, marker, filled).
+#: One code throughout: the marker says the side (circle inside, square
+#: outside, diamond the contents of a pipe), the dash pattern the quantity
+#: (solid surface, dashed air, dotted sol-air, long dash-dot-dot dew point,
+#: dash-dot heat flow), so no two lines differ by colour alone.
 _SURFACE_LINES = (
-    ("air_temperature_inside", "inside air", 0, 1),
-    ("surface_temperature_inside", "inside surface", 0, 0),
-    ("surface_temperature_outside", "outside surface", 1, 0),
-    ("air_temperature_outside", "outside air", 1, 1),
-    ("sol_air_temperature_outside", "outside sol-air", 1, 3),
-    ("sol_air_temperature_inside", "inside sol-air", 0, 3),
+    ("air_temperature_inside", "inside air", 0, 1, "o", False),
+    ("surface_temperature_inside", "inside surface", 0, 0, "o", True),
+    ("sol_air_temperature_inside", "inside sol-air", 0, 3, "o", False),
+    ("surface_temperature_outside", "outside surface", 1, 0, "s", True),
+    ("air_temperature_outside", "outside air", 1, 1, "s", False),
+    ("sol_air_temperature_outside", "outside sol-air", 1, 3, "s", False),
+    ("dew_point_inside", "inside dew point", 0, 4, "o", False),
+    ("dew_point_outside", "outside dew point", 1, 4, "s", False),
+    ("contents_temperature", "contents of the bore", 4, 0, "D", True),
 )
 _FLOW_LINES = (
-    ("heat_flow_inside", "heat flow, inside surface", 2, 2),
-    ("heat_flow_outside", "heat flow, outside surface", 3, 4),
+    ("heat_flow_inside", "heat flow, inside surface", 2, 2, "^", False),
+    ("heat_flow_outside", "heat flow, outside surface", 3, 4, "v", False),
 )
+
+
+def _coded_line(colour: int, dash: int, marker: str, filled: bool) -> dict[str, Any]:
+    return {
+        "color": PALETTE[colour],
+        "linestyle": LINESTYLES[dash],
+        "marker": marker,
+        "markersize": 4.5,
+        "markerfacecolor": PALETTE[colour] if filled else "white",
+        "linewidth": 1.6,
+    }
 
 
 def plot_surfaces(ds: xr.Dataset) -> Any:
     """Air and surface temperatures on both sides, and the heat flows, over time.
 
-    Temperatures are on the left axis; the heat flows through the inside and
-    outside surfaces (positive from inside to outside) on the right axis.
-    Lines missing from the run (an air temperature where the boundary has
-    none) are left out.
+    Temperatures are on the left axis (air, sol-air, surfaces, dew points
+    and the contents of a pipe's bore, each where the run has it); the heat
+    flows through the inside and outside surfaces (positive from inside to
+    outside) on the right axis.
 
     Parameters
     ----------
@@ -529,15 +551,12 @@ def plot_surfaces(ds: xr.Dataset) -> Any:
     every = _markevery(time.size)
     handles = []
     t_units = None
-    for name, label, colour, style in _SURFACE_LINES:
+    for name, label, *code in _SURFACE_LINES:
         if name not in ds.variables:
             continue
         da = ds[name]
         t_units = t_units or _units(da, "degC")
-        kw = _line_style(style)
-        kw["color"] = PALETTE[colour]
-        kw["markerfacecolor"] = PALETTE[colour] if style % 2 == 0 else "white"
-        (line,) = ax.plot(time, da.values, label=label, markevery=every, **kw)
+        (line,) = ax.plot(time, da.values, label=label, markevery=every, **_coded_line(*code))
         handles.append(line)
     ax.set_ylabel(axis_label("temperature", t_units or "degC"))
     flows = [f for f in _FLOW_LINES if f[0] in ds.variables]
@@ -545,9 +564,9 @@ def plot_surfaces(ds: xr.Dataset) -> Any:
         right = ax.twinx()
         right.tick_params(labelsize=8.5)
         f_units = _units(ds[flows[0][0]])
-        for name, label, colour, style in flows:
-            kw = _line_style(style)
-            kw.update(color=PALETTE[colour], markerfacecolor="white", linewidth=1.3, markersize=4)
+        for name, label, *code in flows:
+            kw = _coded_line(*code)
+            kw.update(linewidth=1.3, markersize=4)
             (line,) = right.plot(time, ds[name].values, label=f"{label} (right axis)", markevery=every, **kw)
             handles.append(line)
         right.axhline(0.0, color="#999999", linewidth=0.8, linestyle=(0, (1, 3)))
@@ -556,8 +575,8 @@ def plot_surfaces(ds: xr.Dataset) -> Any:
         right.set_zorder(ax.get_zorder() - 1)
         ax.patch.set_visible(False)
     _time_axis(ax)
-    fig.legend(handles=handles, loc="outside lower center", ncols=min(4, len(handles)), fontsize=8.5,
-               frameon=False)
+    ax.legend(handles=handles, loc="upper center", bbox_to_anchor=(0.5, -0.11), ncols=min(4, len(handles)),
+              fontsize=8.5, frameon=False)
     return fig
 
 
@@ -678,7 +697,7 @@ def plot_profiles(ds: xr.Dataset, times: list[str] | None = None) -> Any:
         sec = ax.secondary_xaxis("top", functions=(lambda d: d + r0s, lambda r: r - r0s))
         sec.set_xlabel(axis_label("radius", depth_unit))
         sec.tick_params(labelsize=8.5)
-    ax.legend(loc="lower left", fontsize=8.5, framealpha=0.9, title="time", title_fontsize=8.5)
+    ax.legend(loc="best", fontsize=8.5, framealpha=0.9, title="time", title_fontsize=8.5)
     return fig
 
 
@@ -713,8 +732,11 @@ def plot_sizing(ds: xr.Dataset) -> Any:
     The limits found among the attributes are drawn as horizontal lines:
     ``max_surface_temperature`` and ``dew_point`` [same units as
     ``surface_temperature_outside``], ``max_heat_loss`` [units of
-    ``heat_flow``], ``min_freeze_time_h`` [h].  Candidates that pass every
-    ``passes_<criterion>`` are filled markers, others open; the attribute
+    ``heat_flow``], ``min_freeze_time_h`` [h]; with ``dew_point_margin``
+    [K] also the dew point plus the margin.  The heat loss is the magnitude
+    of ``heat_flow``, as the budget bounds it.  Candidates that pass every
+    criterion (``passes_all``, else every ``passes_<criterion>``) are filled
+    markers, others open; the attribute
     ``recommended_thickness`` [units of ``thickness``] is marked by a
     vertical line.  Optional variables and attributes may be absent.
 
@@ -742,7 +764,9 @@ def plot_sizing(ds: xr.Dataset) -> Any:
     thickness = np.asarray(ds["thickness"].values, dtype=float) * scale
 
     criteria = [name for name in ds.data_vars if name.startswith("passes_") and ds[name].dims == ("thickness",)]
-    if criteria:
+    if "passes_all" in criteria:
+        passes = np.asarray(ds["passes_all"].values).astype(bool)
+    elif criteria:
         passes = np.logical_and.reduce([np.asarray(ds[name].values).astype(bool) for name in criteria])
     else:
         passes = None
@@ -776,12 +800,17 @@ def plot_sizing(ds: xr.Dataset) -> Any:
             dew = _number(ds.attrs.get("dew_point"))
             if dew is None and "dew_point" in ds.variables and ds["dew_point"].size == 1:
                 dew = _number(ds["dew_point"].values)
-            limit(ax, dew, f"dew point {dew:g} {pretty_units(t_units)}" if dew is not None else "", 2, (0, (1.5, 1.5)))
+            limit(ax, dew, f"dew point {dew:.1f} {pretty_units(t_units)}" if dew is not None else "", 2, (0, (1.5, 1.5)))
+            margin = _number(ds.attrs.get("dew_point_margin"))
+            if dew is not None and margin:
+                limit(ax, dew + margin, f"dew point + {margin:g} K margin", 2, (0, (6, 2)))
             ax.set_ylabel(axis_label("surface temperature", t_units))
         elif panel == "heat_flow":
             da = ds[panel]
             values, note = _per_thickness(da)
             f_units = _units(da)
+            # the budget bounds the magnitude (a chilled line gains heat: negative flow)
+            values = np.abs(values)
             draw(ax, values, "heat loss" + note, 1, 1)
             cap = _number(ds.attrs.get("max_heat_loss"))
             limit(ax, cap, f"heat-loss budget {cap:g} {pretty_units(f_units)}" if cap is not None else "", 3,
@@ -816,7 +845,7 @@ def plot_sizing(ds: xr.Dataset) -> Any:
         for ax in axes:
             ax.axvline(recommended * scale, color="#222222", linewidth=1.4, linestyle=(0, (3, 1, 1, 1)),
                        label=f"recommended {recommended * scale:g} {unit}" if ax is axes[0] else None)
-    else:
+    elif "recommended_thickness" in ds.attrs or (passes is not None and not passes.any()):
         axes[0].text(0.99, 0.97, "no candidate passes every criterion", transform=axes[0].transAxes, ha="right",
                      va="top", fontsize=9, color=PALETTE[3], fontweight="bold")
     if passes is not None:
@@ -831,7 +860,9 @@ def plot_sizing(ds: xr.Dataset) -> Any:
         handles, _ = ax.get_legend_handles_labels()
         if i == 0:
             handles = handles + key
-        ax.legend(handles=handles, fontsize=8, loc="best", framealpha=0.9)
+        # beside the panel, where it cannot hide a candidate
+        ax.legend(handles=handles, fontsize=8, loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False,
+                  borderaxespad=0.0)
     axes[-1].set_xlabel(axis_label("insulation thickness", unit))
     return fig
 

@@ -189,7 +189,7 @@ def radiative_coefficient(
 
 
 def hr0(mean_temperature: ArrayLike) -> np.ndarray:
-    """Black-body radiative coefficient hr0 = 4 sigma Tm^3 of ISO 6946 Annex A.
+    """Black-body radiative coefficient hr0 = 4 sigma Tm^3 of ISO 6946 annex on surface resistances.
 
     Parameters
     ----------
@@ -203,7 +203,7 @@ def hr0(mean_temperature: ArrayLike) -> np.ndarray:
 
     References
     ----------
-    ISO 6946:2017, Annex A (from memory; reproduces the tabulated Rsi and Rse).
+    ISO 6946:2017, annex on surface resistances (from memory; reproduces the tabulated Rsi and Rse).
     """
     t = _kelvin("mean_temperature", mean_temperature)
     return (4.0 * STEFAN_BOLTZMANN * t**3)[()]
@@ -342,7 +342,7 @@ def view_factor_ground(tilt_deg: ArrayLike) -> np.ndarray:
 def iso6946_surface_resistance(
     direction: str, emissivity: ArrayLike = 0.9, mean_temperature: ArrayLike = 20.0
 ) -> np.ndarray:
-    """Internal surface resistance Rsi = 1/(hci + eps hr0) of ISO 6946 Annex A.
+    """Internal surface resistance Rsi = 1/(hci + eps hr0) of ISO 6946 annex on surface resistances.
 
     Parameters
     ----------
@@ -361,7 +361,7 @@ def iso6946_surface_resistance(
 
     References
     ----------
-    ISO 6946:2017, Annex A (from memory).
+    ISO 6946:2017, annex on surface resistances (from memory).
     """
     hc = iso6946_internal_convection(direction)
     return (1.0 / (hc + _emissivity(emissivity) * np.asarray(hr0(mean_temperature))))[()]
@@ -370,7 +370,7 @@ def iso6946_surface_resistance(
 def iso6946_external_surface_resistance(
     wind_speed: ArrayLike = 4.0, emissivity: ArrayLike = 0.9, mean_temperature: ArrayLike = 0.0
 ) -> np.ndarray:
-    """External surface resistance Rse = 1/(4 + 4 v + eps hr0) of ISO 6946 Annex A.
+    """External surface resistance Rse = 1/(4 + 4 v + eps hr0) of ISO 6946 annex on surface resistances.
 
     Parameters
     ----------
@@ -391,7 +391,7 @@ def iso6946_external_surface_resistance(
 
     References
     ----------
-    ISO 6946:2017, Annex A (from memory).
+    ISO 6946:2017, annex on surface resistances (from memory).
     """
     hc = np.asarray(iso6946_external_convection(wind_speed))
     return (1.0 / (hc + _emissivity(emissivity) * np.asarray(hr0(mean_temperature))))[()]

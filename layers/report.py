@@ -218,6 +218,22 @@ def run_summary(ds: xr.Dataset, case: Case | None = None) -> str:
         f"  energy in through the inside surface {ds.attrs['heat_in_inside_total'] / scale:.4g} {unit}, "
         f"out through the outside surface {ds.attrs['heat_out_outside_total'] / scale:.4g} {unit}"
     )
+    if "heat_from_contents_total" in ds.attrs:
+        lines[-1] = (
+            f"  heat given up by the contents {ds.attrs['heat_from_contents_total'] / scale:.4g} {unit}, "
+            f"out through the outside surface {ds.attrs['heat_out_outside_total'] / scale:.4g} {unit}"
+        )
+    if "freeze_time_h" in ds.attrs:
+        def _h(v: float) -> str:
+            return f"{v:.2f} h" if math.isfinite(v) else "not within the run"
+
+        lines.append(
+            f"  contents: first at 0 degC after {_h(ds.attrs['time_to_freezing_h'])}; "
+            f"{ds.attrs['max_ice_fraction']:g} ice after {_h(ds.attrs['freeze_time_h'])}"
+        )
+        lines.append(
+            "  caution: insulation alone only delays freezing of stagnant water; it cannot prevent it"
+        )
     lines.append(f"  energy balance error (relative): {ds.attrs['energy_balance_error']:.1e}")
     for side in ("inside", "outside"):
         if f"dew_point_{side}" not in ds:

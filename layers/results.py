@@ -79,7 +79,7 @@ def to_dataset(
             heat_flow_outside, flow_units, f"heat flow through the outside surface, positive outward, {per}"
         ),
         "stored_energy": _point(
-            stored_energy, ENERGY_UNITS[case.geometry], f"sensible heat stored in the construction relative to 0 degC, {per}"
+            stored_energy, ENERGY_UNITS[case.geometry], f"heat stored in the construction (and any contents, latent heat included) relative to 0 degC and liquid water, {per}"
         ),
     }
     names = {

@@ -213,6 +213,9 @@ def simulate(case: Case, progress: Callable[[int, int], None] | None = None) -> 
             attrs["time_to_freezing_h"] = res.time_to_freezing / 3600.0
             attrs["freeze_time_h"] = res.time_to_ice_fraction / 3600.0
             attrs["max_ice_fraction"] = _ice_target(case)
+            # heat given up by the contents to the bore over the run (the contents are part of
+            # the stored energy, so they do not enter the energy-balance boundary terms)
+            attrs["heat_from_contents_total"] = float(res.initial_enthalpy - res.final_enthalpy)
         attrs["nonlinear_tolerance_K"] = TOLERANCE
         attrs["nonlinear_unconverged_steps"] = res.unconverged_steps
         attrs["nonlinear_max_iterations"] = res.max_iterations_used

@@ -183,7 +183,7 @@ def test_sol_air_by_hand(write_case):
     """Steady wall, auto films, constant sun and sky: the outside surface temperature of a hand balance.
 
     Outside: a I + h_c (T_a - T_s) + eps sigma [F_sky (T_sky^4 - T_s^4) + F_gnd (T_a^4 - T_s^4)]
-    = q (the conduction to the inside), h_c = 4 + 4 v (ISO 6946:2017 Annex C),
+    = q (the conduction to the inside), h_c = 4 + 4 v (ISO 6946:2017, annex on surface resistances),
     F_sky = (1 + cos tilt)/2 (vertical wall: 1/2).  Inside: h_c = 2.5 plus
     radiation to surroundings at the air temperature.  Solved here with brentq
     on the exact fourth powers; the model solves the same balance by Picard
@@ -252,7 +252,7 @@ def test_auto_inside_film_reproduces_iso6946_table(write_case, direction, rsi):
     ISO 6946:2017 Table 7 Rsi (0.10 / 0.13 / 0.17 m2K/W, printed to 2 decimals).
 
     The run holds a tiny temperature difference so that h_r = 4 eps sigma T^3
-    at 20 degC (ISO 6946 Annex C: hr0 = 5.7); tolerance half the last printed digit.
+    at 20 degC (ISO 6946 annex on surface resistances: hr0 = 5.7); tolerance half the last printed digit.
     """
     ds = simulate(
         load_case(
@@ -281,7 +281,7 @@ def test_auto_inside_film_reproduces_iso6946_table(write_case, direction, rsi):
 
 def test_auto_outside_film_reproduces_iso6946_rse(write_case):
     """Outside auto film at the ISO 6946 default wind of 4 m/s, eps 0.9, near 0 degC: Rse = 0.04 m2K/W
-    (ISO 6946:2017 Table 7 and Annex C: h_c = 4 + 4v, hr0(0 degC) = 4.6); tolerance half the last digit."""
+    (ISO 6946:2017 Table 7 and its annex on surface resistances: h_c = 4 + 4v, hr0(0 degC) = 4.6); tolerance half the last digit."""
     ds = simulate(
         load_case(
             write_case(
