@@ -465,7 +465,7 @@ def test_surface_coefficients_reject_bad_input(call):
 
 
 def test_iso6946_convection_coefficients():
-    # ISO 6946 Annex A [FROM MEMORY; REFERENCES.md section 2]: hci 5.0/2.5/0.7, hce = 4 + 4v.
+    # ISO 6946 annex on surface resistances [FROM MEMORY; REFERENCES.md section 2]: hci 5.0/2.5/0.7, hce = 4 + 4v.
     assert iso6946_internal_convection("up") == 5.0
     assert iso6946_internal_convection("horizontal") == 2.5
     assert iso6946_internal_convection("down") == 0.7

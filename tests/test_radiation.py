@@ -76,7 +76,7 @@ def test_radiative_coefficient_at_equal_temperatures_is_eps_hr0():
 
 
 def test_hr0_values_of_iso6946():
-    # ISO 6946 Annex A lists hr0 = 4.6 at 0 degC and 5.7 at 20 degC [FROM MEMORY];
+    # ISO 6946 annex on surface resistances lists hr0 = 4.6 at 0 degC and 5.7 at 20 degC [FROM MEMORY];
     # 4 sigma T^3 gives 4.623 and 5.714 [COMPUTED, REFERENCES.md section 2].
     assert float(hr0(0.0)) == pytest.approx(4.623, abs=1e-3)
     assert float(hr0(20.0)) == pytest.approx(5.714, abs=1e-3)
@@ -99,7 +99,7 @@ def test_iso6946_external_surface_resistance_at_4_m_per_s(outside):
     assert rse == pytest.approx(0.04, abs=PRINTED_TO_2_DECIMALS)
 
 
-# Rse against wind speed [FOUND: Mc001 table reproducing ISO 6946 Annex A].
+# Rse against wind speed [FOUND: Mc001 table reproducing ISO 6946 annex on surface resistances].
 RSE_TABLE = {1.0: 0.08, 2.0: 0.06, 3.0: 0.05, 4.0: 0.04, 5.0: 0.04, 7.0: 0.03, 10.0: 0.02}
 
 
