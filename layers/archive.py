@@ -945,7 +945,7 @@ def _metrics(
     if "temperature_interface" in combined and combined.sizes.get("interface", 0):
         materials = combined.attrs.get("comparison_interface_names", "").split("; ")
         for k in range(combined.sizes["interface"]):
-            data = combined["temperature_interface"].values[:, :, k]
+            data = combined["temperature_interface"].values[:, k, :]
             where = materials[k] if k < len(materials) and materials[k] else f"interface {k + 1}"
             add(f"interface {k + 1} ({where}), max", "degC", np.nanmax, data)
             add(f"interface {k + 1} ({where}), min", "degC", np.nanmin, data)
@@ -961,7 +961,7 @@ def _metrics(
         data = combined["temperature_interface"].values
         for k in range(combined.sizes["interface"]):
             largest.append(
-                Metric(f"interface {k + 1} temperature", "K", tuple(float(np.nanmax(np.abs(row[:, k] - data[0][:, k]))) for row in data))
+                Metric(f"interface {k + 1} temperature", "K", tuple(float(np.nanmax(np.abs(row[k] - data[0][k]))) for row in data))
             )
     return tuple(metrics), tuple(largest)
 
@@ -1040,6 +1040,7 @@ def _combine(
     import xarray as xr
 
     from layers import __version__
+    from layers.results import cf_encoding
 
     n = len(datasets)
     first = datasets[0]
@@ -1098,7 +1099,8 @@ def _combine(
             face = interface_temperatures(ds)
             stack[i] = _interp_time(face.values, ds["time"].values, grid)
         attrs = dict(face.attrs)
-        data_vars["temperature_interface"] = (("run", "time", "interface"), stack, attrs)
+        # CF 2.4: dimensions other than T, Z, Y, X go left of time
+        data_vars["temperature_interface"] = (("run", "interface", "time"), stack.transpose(0, 2, 1), attrs)
         interface_names = "; ".join(_interface_name(first, k) for k in range(1, n_interfaces + 1))
     faces = max(len(ds["layer_interface"]) for ds in datasets)
     positions = np.full((n, faces), np.nan)
@@ -1144,6 +1146,7 @@ def _combine(
         "caution": CAUTION,
     }
     combined.attrs = {k: v for k, v in combined.attrs.items() if v != ""}
+    cf_encoding(combined)
     combined["time"].encoding.update({
         "units": f"seconds since {np.datetime_as_string(grid[0], unit='s')}",
         "calendar": "proleptic_gregorian",
