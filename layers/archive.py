@@ -238,8 +238,19 @@ class ArchiveEntry:
 _ENTRY_FIELDS = [f.name for f in dataclasses.fields(ArchiveEntry) if f.name != "path"]
 
 
-def _not_a_run(attrs: Sequence[str], variables: Sequence[str]) -> str | None:
+#: What ``layers list`` calls the other products of layers (global attribute
+#: ``product``, or, for files written before it, a telling variable).
+OTHER_PRODUCTS = {
+    "sizing": ("passes_all", "a sizing result (layers size), not a run"),
+    "periodic": ("periodic_transmittance", "dynamic characteristics (layers periodic), not a run"),
+}
+
+
+def _not_a_run(attrs: Sequence[str], variables: Sequence[str], product: str | None = None) -> str | None:
     """Why a readable netCDF file is not a layers run, or None if it is one."""
+    for name, (variable, reason) in OTHER_PRODUCTS.items():
+        if product == name or (product is None and variable in variables):
+            return reason
     missing_attrs = [a for a in RUN_ATTRIBUTES if a not in attrs]
     if missing_attrs:
         return "not a layers run (no " + ", ".join(repr(a) for a in missing_attrs) + " attribute)"
@@ -284,7 +295,7 @@ def read_entry(path: str | os.PathLike) -> ArchiveEntry:
 
 def _entry_from(nc: Any, path: Path) -> ArchiveEntry:
     names = nc.ncattrs()
-    problem = _not_a_run(names, nc.variables)
+    problem = _not_a_run(names, nc.variables, _text(nc, names, "product"))
     if problem:
         return ArchiveEntry(path, title=_text(nc, names, "title"), problem=problem)
     summary = {n[len(SUMMARY_PREFIX):]: nc.getncattr(n) for n in names if n.startswith(SUMMARY_PREFIX)}
@@ -605,7 +616,7 @@ def load_run(path: str | os.PathLike) -> xr.Dataset:
             ds = ds.load()
     except Exception as exc:  # noqa: BLE001 - any reader failure is bad input, not an internal error
         raise CaseError(str(path), "(file)", f"cannot read as netCDF ({type(exc).__name__}: {exc})") from None
-    problem = _not_a_run(list(ds.attrs), list(ds.variables))
+    problem = _not_a_run(list(ds.attrs), list(ds.variables), ds.attrs.get("product"))
     if problem:
         raise CaseError(str(path), "(file)", problem)
     if "temperature" not in ds or "x" not in ds.dims:

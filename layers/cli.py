@@ -172,7 +172,7 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("-o", "--out", help="also write the result to this netCDF file (never overwritten)")
     r.add_argument("--archive", help="archive folder (default: $LAYERS_ARCHIVE or runs/)")
     r.add_argument("--label", help="a label stored with the run")
-    r.add_argument("--quiet", action="store_true", help="no progress bar and no summary")
+    r.add_argument("-q", "--quiet", action="store_true", help="no progress bar and no summary")
     r.set_defaults(func=cmd_run)
 
     c = sub.add_parser("check", help="validate a case; print the mesh and the plan")
@@ -183,7 +183,7 @@ def build_parser() -> argparse.ArgumentParser:
     s.add_argument("case")
     s.add_argument("-o", "--out")
     s.add_argument("--archive", help="archive folder (default: $LAYERS_ARCHIVE or runs/)")
-    s.add_argument("--quiet", action="store_true", help="no progress bar")
+    s.add_argument("-q", "--quiet", action="store_true", help="no progress bar")
     s.set_defaults(func=cmd_size)
 
     d = sub.add_parser("periodic", help="ISO 13786 dynamic thermal characteristics")

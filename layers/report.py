@@ -344,8 +344,18 @@ def cmd_periodic(args: argparse.Namespace) -> int:
         raise CaseError("(command line)", "--period", "must be positive")
     dc, text = periodic_report(case, period)
     ds = dc.to_dataset(title=case.title)
-    ds.attrs.update({"case": case.text, "case_sha256": case.sha256, "caution": CAUTION})
-    from layers.results import cf_encoding
+    from layers import __version__
+    from layers.results import _now, cf_encoding
+
+    ds.attrs.update({
+        "product": "periodic",
+        "case": case.text,
+        "case_sha256": case.sha256,
+        "software_version": __version__,
+        "created": _now(),
+        "geometry": case.geometry,
+        "caution": CAUTION,
+    })
 
     cf_encoding(ds, f"layers periodic {case.path}")
     print(text)

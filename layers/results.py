@@ -17,6 +17,7 @@ import numpy as np
 import xarray as xr
 
 from layers import CAUTION, __version__
+from layers.archive import headline_attributes
 from layers.case import Case
 from layers.mesh import Mesh
 
@@ -111,6 +112,7 @@ def to_dataset(
     ds.attrs = {
         "Conventions": "CF-1.10",
         "title": case.title,
+        "product": "run",
         "label": case.label,
         "institution": "",
         "source": f"layers {__version__} finite-volume heat conduction",
@@ -146,6 +148,8 @@ def to_dataset(
         if filled:
             ds.attrs["series_filled"] = ", ".join(f"{k}: {v} values" for k, v in filled.items())
     ds.attrs = {k: v for k, v in ds.attrs.items() if v != ""}
+    # Headline results as attributes, so that `layers list` reads headers only.
+    ds.attrs.update(headline_attributes(ds))
     cf_encoding(ds)
     ds["time"].encoding.update({"units": f"seconds since {np.datetime_as_string(times[0], unit='s')}", "calendar": "proleptic_gregorian", "dtype": "float64"})
     return ds

@@ -149,6 +149,7 @@ def size(case: Case, progress: Callable[[int, int], None] | None = None) -> xr.D
     ds.attrs = {
         "Conventions": "CF-1.10",
         "title": case.title,
+        "product": "sizing",
         "case": case.text,
         "case_sha256": case.sha256,
         "software_version": __version__,

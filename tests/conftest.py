@@ -14,6 +14,14 @@ from layers.simulate import simulate
 ROOT = Path(__file__).resolve().parents[1]
 
 
+@pytest.fixture(autouse=True)
+def _private_archive_and_cache(tmp_path, monkeypatch):
+    """Every test archives into, and caches under, its own temporary folder,
+    never the checkout's ``runs/`` or the user's cache."""
+    monkeypatch.setenv("LAYERS_ARCHIVE", str(tmp_path / "archive"))
+    monkeypatch.setenv("LAYERS_CACHE_DIR", str(tmp_path / "cache"))
+
+
 @pytest.fixture
 def write_case(tmp_path):
     """Return a function that writes TOML text to a case file and returns its path."""

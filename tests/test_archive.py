@@ -19,6 +19,7 @@ import pytest
 import xarray as xr
 
 from layers import CAUTION
+from tests.conftest import ROOT
 from layers.archive import (
     ArchiveEntry,
     case_differences,
@@ -170,10 +171,24 @@ def test_list_reads_back_what_runs_wrote(make_run, tmp_path):
         assert e.surface_temperature_outside_min == pytest.approx(head["summary_surface_temperature_outside_min_degC"], rel=1e-12)
         assert e.heat_flow_inside_mean == pytest.approx(head["summary_heat_flow_inside_mean"], rel=1e-12)
         assert e.heat_flow_units == ds["heat_flow_inside"].attrs["units"]
-        assert e.headline_source == "variables"  # results.py does not write the summary attributes yet
+        assert e.headline_source == "attributes"  # to_dataset writes them
     assert by_path[path_a].label == "first try"
     assert by_path[path_b].label is None
     assert by_path[path_b].heat_flow_units == "W m-1"
+
+
+def test_list_reads_older_runs_without_headline_attributes(make_run, tmp_path):
+    """A run written before the summary attributes existed is listed from its
+    small time series, with the same values the attributes would carry."""
+    path, ds = make_run(wall_text())
+    with netCDF4.Dataset(path, "a") as nc:
+        for name in [n for n in nc.ncattrs() if n.startswith("summary_")]:
+            nc.delncattr(name)
+    (entry,) = list_runs(tmp_path / "runs")
+    head = headline_attributes(ds)
+    assert entry.headline_source == "variables"
+    assert entry.surface_temperature_outside_max == pytest.approx(head["summary_surface_temperature_outside_max_degC"], rel=1e-12)
+    assert entry.heat_flow_inside_mean == pytest.approx(head["summary_heat_flow_inside_mean"], rel=1e-12)
 
 
 def test_list_prefers_the_headline_attributes(make_run, tmp_path):
@@ -225,15 +240,31 @@ def test_corrupt_and_foreign_files_are_listed_with_a_reason(make_run, tmp_path, 
     assert "1 run in" in out and "2 other files" in out
 
 
-def test_a_sizing_result_is_not_a_run(tmp_path):
-    """A layers file without the time series (e.g. a sizing result) is named as not a run."""
-    path = tmp_path / "sizing.nc"
+def test_a_file_without_the_time_series_is_not_a_run(tmp_path):
+    """A file with the run attributes but not its time series is named as not a run."""
+    path = tmp_path / "partial.nc"
     xr.Dataset(
         {"surface_temperature_outside": ("thickness", [50.0, 40.0])},
         attrs={"geometry": "cylinder", "created": "2026-01-01T00:00:00Z", "case_sha256": "0" * 64},
     ).to_netcdf(path)
     entry = read_entry(path)
     assert not entry.is_run and "'time'" in entry.problem
+
+
+def test_sizing_and_periodic_results_are_named_for_what_they_are(tmp_path, capsys):
+    """`size -o` and `periodic -o` files in an archive are listed as such."""
+    folder = tmp_path / "runs"
+    folder.mkdir()
+    pipe = ROOT / "cases" / "hot-oil-line-touch.toml"
+    wall = ROOT / "cases" / "year-masonry-outside.toml"
+    assert main(["size", str(pipe), "-o", str(folder / "s.nc"), "--quiet"]) == 0
+    assert main(["periodic", str(wall), "-o", str(folder / "p.nc")]) == 0
+    entries = {e.path.name: e for e in list_runs(folder)}
+    assert "sizing result" in entries["s.nc"].problem
+    assert "layers periodic" in entries["p.nc"].problem
+    for name in ("s.nc", "p.nc"):
+        with netCDF4.Dataset(folder / name) as nc:
+            assert nc.getncattr("software_version") and nc.getncattr("created")
 
 
 def test_list_json_is_valid(make_run, tmp_path, capsys):
