@@ -208,7 +208,13 @@ def run_summary(ds: xr.Dataset, case: Case | None = None) -> str:
         lines.append(
             f"  {side:<7} surface  min {lo:7.2f} degC at {t_lo}Z   max {hi:7.2f} degC at {t_hi}Z"
         )
-        mean = float(np.trapezoid(q, seconds) / seconds[-1]) if seconds[-1] > 0 else float(q[0])
+        # The mean is the run's step-by-step total over the duration (the
+        # same figure `layers list` shows), not a mean of the kept samples.
+        total = ds.attrs.get("heat_in_inside_total" if side == "inside" else "heat_out_outside_total")
+        if total is not None and seconds[-1] > 0:
+            mean = float(total) / float(seconds[-1])
+        else:
+            mean = float(np.trapezoid(q, seconds) / seconds[-1]) if seconds[-1] > 0 else float(q[0])
         lines.append(
             f"          heat flow mean {mean:9.3g} {flow_units}   peak {q[peak_i]:9.3g} {flow_units}"
         )
