@@ -31,6 +31,8 @@ iteration count.
 
 from __future__ import annotations
 
+import abc
+
 import math
 import warnings
 from collections.abc import Callable
@@ -60,7 +62,7 @@ class SideCoefficients:
     t_eq: float = math.nan      # equivalent (sol-air) temperature [degC]
 
 
-class SideModel:
+class SideModel(abc.ABC):
     """A boundary as the nonlinear march sees it.
 
     Subclasses set :attr:`depends_on_temperature` and implement
@@ -69,11 +71,15 @@ class SideModel:
 
     depends_on_temperature = False
 
+    @abc.abstractmethod
     def prepare(self, seconds: np.ndarray) -> dict[str, np.ndarray]:
-        raise NotImplementedError
+        """Forcing arrays at every time of ``seconds`` [s], keyed by name."""
 
+    @abc.abstractmethod
     def coefficients(self, forcing: dict[str, np.ndarray], k: int, t_surface: float, r_half: float) -> SideCoefficients:
-        raise NotImplementedError
+        """The side's exchange at step ``k`` for the surface temperature
+        ``t_surface`` [degC]; ``r_half`` is the resistance from the surface to
+        the first cell centre [K W-1 per reference unit]."""
 
 
 @dataclass
