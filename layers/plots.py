@@ -31,7 +31,6 @@ import math
 import os
 import re
 import sys
-import tempfile
 import tomllib
 from dataclasses import dataclass
 from pathlib import Path
@@ -42,6 +41,7 @@ import xarray as xr
 
 from layers import CAUTION, __version__
 from layers.errors import CaseError
+from layers.results import write_once
 
 #: Figure size [in] and resolution [dots per inch] of every figure.
 FIGSIZE = (10.0, 6.0)
@@ -915,26 +915,13 @@ def save_figure(fig: Any, path: str | os.PathLike, metadata: dict[str, str] | No
     fmt = FORMATS.get(path.suffix.lower())
     if fmt is None:
         raise ValueError(f"unknown figure format {path.suffix!r}; use .png, .svg or .pdf")
-    if path.exists():
-        raise FileExistsError(str(path))
-    path.parent.mkdir(parents=True, exist_ok=True)
     meta = dict(metadata or {})
     keys = {"png": ("Title", "Description", "Software"),
             "svg": ("Title", "Description", "Creator"),
             "pdf": ("Title", "Subject", "Creator")}[fmt]
     info = dict(zip(keys, (meta.get("title", ""), meta.get("caution", ""), f"layers {__version__}")))
     info = {k: v for k, v in info.items() if v}
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.stem}.", suffix=path.suffix, dir=path.parent)
-    os.close(fd)
-    try:
-        fig.savefig(tmp, format=fmt, dpi=DPI, metadata=info)
-        os.link(tmp, path)
-    finally:
-        try:
-            os.unlink(tmp)
-        except FileNotFoundError:
-            pass
-    return path
+    return write_once(path, lambda tmp: fig.savefig(tmp, format=fmt, dpi=DPI, metadata=info))
 
 
 def open_run(path: str | os.PathLike) -> xr.Dataset:

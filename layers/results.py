@@ -10,6 +10,7 @@ from __future__ import annotations
 import datetime as dt
 import os
 import tempfile
+from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
@@ -178,9 +179,22 @@ def archive_dir(explicit: str | os.PathLike | None = None) -> Path:
 def write_new(ds: xr.Dataset, path: str | os.PathLike) -> Path:
     """Write ``ds`` to ``path`` atomically, never overwriting an existing file.
 
-    The file is written to a temporary name in the same folder and then
-    hard-linked into place (``link`` fails if the name exists), so an
-    interrupted write leaves no partial file under the final name.
+    Raises
+    ------
+    FileExistsError
+        If ``path`` exists.
+    """
+    return write_once(path, lambda tmp: ds.to_netcdf(tmp, engine="netcdf4"))
+
+
+def write_once(path: str | os.PathLike, write: Callable[[str], None]) -> Path:
+    """Create ``path`` with ``write(tmp)``, atomically and never over an existing file.
+
+    ``write`` fills a temporary file in the same folder, which is then
+    hard-linked into place (``link`` fails if the name exists meanwhile), so
+    an interrupted write leaves no partial file under the final name.  The
+    temporary name carries the process id, so a later writer can remove what
+    a killed one left behind.
 
     Raises
     ------
@@ -195,7 +209,7 @@ def write_new(ds: xr.Dataset, path: str | os.PathLike) -> Path:
     fd, tmp = tempfile.mkstemp(prefix=f".{path.stem}.{os.getpid()}.", suffix=".partial", dir=path.parent)
     os.close(fd)
     try:
-        ds.to_netcdf(tmp, engine="netcdf4")
+        write(tmp)
         os.link(tmp, path)
     finally:
         try:

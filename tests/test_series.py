@@ -9,7 +9,6 @@ by hand), never produced by the code under test.
 from __future__ import annotations
 
 import hashlib
-import time as clock
 
 import numpy as np
 import pytest
