@@ -88,10 +88,11 @@ def cmd_run(args: argparse.Namespace) -> int:
     extra = _write_output(ds, args.out)
     if not args.quiet:
         print(run_summary(ds, case))
-        print(f"archived: {written}")
-        if extra:
-            print(f"written:  {extra}")
-        print(f"caution: {CAUTION}")
+    # Even a quiet run says where its result went, and keeps the caution.
+    print(f"archived: {written}")
+    if extra:
+        print(f"written:  {extra}")
+    print(f"caution: {CAUTION}")
     return EXIT_OK
 
 
@@ -172,7 +173,7 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("-o", "--out", help="also write the result to this netCDF file (never overwritten)")
     r.add_argument("--archive", help="archive folder (default: $LAYERS_ARCHIVE or runs/)")
     r.add_argument("--label", help="a label stored with the run")
-    r.add_argument("-q", "--quiet", action="store_true", help="no progress bar and no summary")
+    r.add_argument("-q", "--quiet", action="store_true", help="no progress bar and no summary (the file written and the caution are still printed)")
     r.set_defaults(func=cmd_run)
 
     c = sub.add_parser("check", help="validate a case; print the mesh and the plan")

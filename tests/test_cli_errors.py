@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import pytest
 
+from layers import CAUTION
 from layers.cli import main
 
 GOOD = """
@@ -40,7 +41,10 @@ def _run(tmp_path, text, weather=WEATHER):
 def test_good_case_runs(tmp_path, capsys):
     code, archive = _run(tmp_path, GOOD)
     assert code == 0
-    assert len(list(archive.glob("*.nc"))) == 1
+    (written,) = archive.glob("*.nc")
+    # --quiet drops the bar and the summary, never the file name or the caution
+    out = capsys.readouterr().out.splitlines()
+    assert out == [f"archived: {written}", f"caution: {CAUTION}"]
 
 
 @pytest.mark.parametrize(
