@@ -149,8 +149,8 @@ class AutoFilm(SideModel):
     Planar surfaces use the ISO 6946:2017, annex on surface resistances convective coefficients
     (inside by heat-flow direction: 5.0 / 2.5 / 0.7 W m-2 K-1 up / horizontal /
     down; outside 4 + 4 v).  Cylinders and spheres outdoors or indoors use
-    free convection (Churchill-Chu horizontal cylinder, Churchill sphere)
-    combined with forced convection in the wind (Churchill-Bernstein,
+    free convection (Churchill-Chu horizontal cylinder, or the vertical-plate
+    form on the height of a vertical pipe; Churchill sphere) combined with forced convection in the wind (Churchill-Bernstein,
     Whitaker) by Churchill's cube rule (:mod:`layers.convection`).
     Radiation is exchanged with the surroundings at ``radiant_temperature``
     (default: the air) or, where a sky temperature is given, with the sky and
@@ -212,10 +212,15 @@ class AutoFilm(SideModel):
         return out
 
     def _correlation(self, t_surface, t_air, wind):
-        from layers.convection import combined_convection_coefficient
+        from layers.convection import body_convection_coefficient
 
-        shape = "sphere" if self.geometry == "sphere" else "horizontal-cylinder"
-        return np.asarray(combined_convection_coefficient(t_surface, t_air, self.diameter, wind, shape), dtype=float)
+        return np.asarray(
+            body_convection_coefficient(
+                self.geometry, t_surface, t_air, self.diameter, wind,
+                orientation=self.case.orientation, height=self.case.height,
+            ),
+            dtype=float,
+        )
 
     def convection(self, forcing, k: int, t_surface: float) -> float:
         if self.geometry == "planar":

@@ -33,6 +33,7 @@ ISO6946_RSI_HORIZONTAL = 0.13
 ISO6946_RSE = 0.04
 DEFAULT_START = "2026-01-01T00:00"
 #: Film keys that describe the surface exchange and only matter when it is computed.
+PIPE_ORIENTATIONS = ("horizontal", "vertical")
 AUTO_ONLY_KEYS = ("emissivity", "wind_speed", "radiant_temperature", "sky_temperature", "jacket", "tilt", "heat_flow_direction")
 #: A single layer thicker than this is taken for a unit slip [m].
 MAX_LAYER_THICKNESS = 20.0
@@ -171,6 +172,8 @@ class Case:
     sizing: SizingSpec | None = None
     materials: dict[str, Material] = field(default_factory=dict)
     label: str = ""
+    orientation: str = "horizontal"     # cylinders: horizontal | vertical
+    height: float | None = None         # vertical cylinder: height of the run [m]
 
     @property
     def stem(self) -> str:
@@ -243,8 +246,19 @@ def parse_case(data: dict, *, file: str = "<case>", text: str = "", base_dir: Pa
             raise geo.error("inner_radius", "must be positive")
     elif geo.has("inner_radius"):
         raise geo.error("inner_radius", "applies to cylinder and sphere geometry only")
+    pipe_orientation = geo.get("orientation", "horizontal")
+    height = None
+    if geo.has("orientation") and geometry != "cylinder":
+        raise geo.error("orientation", "applies to cylinder geometry only")
+    if pipe_orientation not in PIPE_ORIENTATIONS:
+        raise geo.error("orientation", f"unknown orientation {pipe_orientation!r}; use one of {', '.join(PIPE_ORIENTATIONS)}")
+    if pipe_orientation == "vertical":
+        height = parse_quantity(geo.get("height", required=True), "length", file=file, key=geo.key("height"))
+        if height <= 0:
+            raise geo.error("height", "must be positive")
+    elif geo.has("height"):
+        raise geo.error("height", "applies to a vertical pipe only (orientation = \"vertical\")")
     geo.finish()
-    pipe_orientation = "horizontal"
 
     # materials defined in the case
     materials: dict[str, Material] = {}
@@ -298,6 +312,8 @@ def parse_case(data: dict, *, file: str = "<case>", text: str = "", base_dir: Pa
         title=title or Path(file).stem,
         geometry=geometry,
         inner_radius=inner_radius,
+        orientation=pipe_orientation,
+        height=height,
         layers=layers,
         mesh_rule=rule,
         inside=inside,

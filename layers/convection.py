@@ -855,6 +855,59 @@ def combined_convection_coefficient(
     return ((h_free**exponent + h_forced**exponent) ** (1.0 / exponent))[()]
 
 
+def body_convection_coefficient(
+    geometry: str,
+    surface_temperature: ArrayLike,
+    air_temperature: ArrayLike,
+    diameter: ArrayLike,
+    wind_speed: ArrayLike,
+    *,
+    orientation: str = "horizontal",
+    height: float | None = None,
+) -> np.ndarray:
+    """Convection coefficient of the outside of a pipe or vessel in air, by
+    :func:`combined_convection_coefficient` with the body's own correlations.
+
+    - ``cylinder``, horizontal: Churchill-Chu cylinder (free, L = D) with
+      Churchill-Bernstein crossflow (forced);
+    - ``cylinder``, vertical: Churchill-Chu vertical plate on the ``height``
+      (free) with Churchill-Bernstein crossflow on the diameter (forced);
+    - ``sphere``: Churchill sphere (free) with Whitaker (forced).
+
+    Parameters
+    ----------
+    geometry : str
+        ``cylinder`` or ``sphere``.
+    surface_temperature, air_temperature : array_like
+        [degC]
+    diameter : array_like
+        Outside diameter, > 0 [m].
+    wind_speed : array_like
+        >= 0 [m s-1].
+    orientation : str, optional
+        Cylinders: ``horizontal`` (default) or ``vertical``.
+    height : float, optional
+        Height of a vertical cylinder, > 0 [m]; required for one.
+
+    Returns
+    -------
+    numpy.ndarray
+        [W m-2 K-1]
+    """
+    if geometry == "sphere":
+        return combined_convection_coefficient(surface_temperature, air_temperature, diameter, wind_speed, "sphere")
+    if geometry != "cylinder":
+        raise ValueError(f"geometry must be cylinder or sphere, got {geometry!r}")
+    if orientation == "vertical":
+        if height is None:
+            raise ValueError("height is required for a vertical cylinder")
+        return combined_convection_coefficient(
+            surface_temperature, air_temperature, height, wind_speed, "vertical-cylinder", forced_length=diameter
+        )
+    _choice("orientation", orientation, ("horizontal", "vertical"))
+    return combined_convection_coefficient(surface_temperature, air_temperature, diameter, wind_speed, "horizontal-cylinder")
+
+
 # ---------------------------------------------------------------------------
 # standards' fixed and simplified coefficients
 # ---------------------------------------------------------------------------

@@ -59,6 +59,8 @@ def check_report(case: Case) -> str:
     lines = [f"case:      {case.path}", f"title:     {case.title}", f"geometry:  {case.geometry}"]
     if case.geometry != "planar":
         lines[-1] += f", inner radius {case.inner_radius * 1000:g} mm"
+    if case.geometry == "cylinder":
+        lines[-1] += ", horizontal" if case.orientation == "horizontal" else f", vertical, {case.height:g} m high"
     lines.append("")
     lines.append(f"{'#':>2}  {'layer':<22} {'thickness':>10} {'k':>8} {'rho':>7} {'c':>6} {'cells':>5} {'min cell':>9} {'max cell':>9}")
     lines.append(f"{'':>2}  {'':<22} {'[mm]':>10} {'[W/mK]':>8} {'[kg/m3]':>7} {'[J/kgK]':>6} {'':>5} {'[mm]':>9} {'[mm]':>9}")

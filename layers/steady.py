@@ -83,7 +83,7 @@ def _film(case: Case, spec: BoundarySpec, area: np.ndarray, diameter: np.ndarray
     if not spec.auto_film:
         rs = spec.surface_resistance
         return np.full_like(t_surface, math.inf if rs == 0 else 1.0 / rs)
-    from layers.convection import combined_convection_coefficient, iso6946_external_convection, iso6946_internal_convection
+    from layers.convection import body_convection_coefficient, iso6946_external_convection, iso6946_internal_convection
     from layers.radiation import jacket_emissivity
 
     eps = jacket_emissivity(spec.jacket) if spec.jacket else spec.emissivity
@@ -94,8 +94,13 @@ def _film(case: Case, spec: BoundarySpec, area: np.ndarray, diameter: np.ndarray
         else:
             hc = np.full_like(t_surface, float(iso6946_external_convection(4.0 if wind is None else wind)))
     else:
-        shape = "sphere" if case.geometry == "sphere" else "horizontal-cylinder"
-        hc = np.asarray(combined_convection_coefficient(t_surface, t_air, diameter, 0.0 if wind is None else wind, shape), dtype=float)
+        hc = np.asarray(
+            body_convection_coefficient(
+                case.geometry, t_surface, t_air, diameter, 0.0 if wind is None else wind,
+                orientation=case.orientation, height=case.height,
+            ),
+            dtype=float,
+        )
     t_rad = _value(case, spec.radiant_temperature) if spec.radiant_temperature is not None else t_air
     ts, tr = t_surface + KELVIN, t_rad + KELVIN
     hr = eps * STEFAN_BOLTZMANN * (ts * ts + tr * tr) * (ts + tr)

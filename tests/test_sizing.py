@@ -202,3 +202,86 @@ def test_run_reports_dew_point_margin(tmp_path, capsys):
         assert float(ds["dew_point_outside"][0]) == pytest.approx(psychrolib.GetTDewPointFromRelHum(30.0, 0.8), abs=0.05)
         margin = float((ds["surface_temperature_outside"] - ds["dew_point_outside"]).min())
     assert f"{margin:.2f} K above" in text
+
+
+VERTICAL_PIPE = """
+title = "vertical riser"
+[geometry]
+kind = "cylinder"
+inner_radius = "25 mm"
+orientation = "vertical"
+height = "3 m"
+[materials.wool]
+conductivity = "0.04 W/(m*K)"
+density = "100 kg/m3"
+specific_heat = "840 J/(kg*K)"
+[[layers]]
+material = "wool"
+thickness = "40 mm"
+[inside]
+type = "temperature"
+surface_temperature = "90 degC"
+[outside]
+type = "film"
+air_temperature = "20 degC"
+film_coefficient = "auto"
+emissivity = 0.9
+[time]
+start = "2026-01-01T00:00"
+duration = "10 min"
+step = "10 min"
+initial = "steady"
+"""
+
+
+def test_vertical_pipe_uses_the_plate_correlation_on_its_height(write_case):
+    """A vertical pipe in still air: the steady surface balance closes with
+    h_c from ht's Churchill-Chu vertical plate on the height (free) combined by
+    Churchill's cube rule with ht's Churchill-Bernstein crossflow at Re = 0
+    (Nu 0.3 on the diameter), and h_r = eps sigma (Ts^2+Ta^2)(Ts+Ta). Air
+    properties are ours (tested against ht and Incropera in test_convection).
+    Tolerance 1e-5 relative: the steady iteration stops at 1e-6 K on a 15 K
+    surface-to-air difference."""
+    from ht.conv_external import Nu_cylinder_Churchill_Bernstein
+    from ht.conv_free_immersed import Nu_vertical_plate_Churchill
+
+    from layers.convection import air_properties
+    from layers.radiation import STEFAN_BOLTZMANN
+    from layers.simulate import simulate
+
+    case = load_case(write_case(VERTICAL_PIPE))
+    st = steady_state(case)
+    ts, ta, d, height = float(st.surface_temperature_outside[0]), 20.0, float(st.outer_diameter[0]), 3.0
+    air = air_properties(0.5 * (ts + ta))
+    nu_kin = float(air.kinematic_viscosity)
+    grashof = 9.80665 * float(air.expansion_coefficient) * (ts - ta) * height**3 / nu_kin**2
+    h_free = Nu_vertical_plate_Churchill(float(air.prandtl), grashof) * float(air.thermal_conductivity) / height
+    h_forced = Nu_cylinder_Churchill_Bernstein(0.0, float(air.prandtl)) * float(air.thermal_conductivity) / d
+    hc = (h_free**3 + h_forced**3) ** (1 / 3)
+    tsk, tak = ts + 273.15, ta + 273.15
+    hr = 0.9 * STEFAN_BOLTZMANN * (tsk**2 + tak**2) * (tsk + tak)
+    assert float(st.heat_flow[0]) == pytest.approx(math.pi * d * (ts - ta) * (hc + hr), rel=1e-5)
+    # and the conduction through the wool (exact logarithmic resistance)
+    assert float(st.heat_flow[0]) == pytest.approx(2 * math.pi * 0.04 * (90.0 - ts) / math.log(0.065 / 0.025), rel=1e-9)
+    # the finite-volume path reaches the same steady state (constant k: exact in a cylinder)
+    ds = simulate(case)
+    assert float(ds.surface_temperature_outside[0]) == pytest.approx(ts, abs=1e-4)
+    # a horizontal pipe of the same build is a different problem: the key is not ignored
+    horizontal = load_case(write_case(VERTICAL_PIPE.replace('orientation = "vertical"\nheight = "3 m"\n', ""), "h.toml"))
+    assert abs(float(steady_state(horizontal).heat_flow[0]) - float(st.heat_flow[0])) > 1e-3
+
+
+@pytest.mark.parametrize(
+    "change,key,words",
+    [
+        (('height = "3 m"\n', ""), "geometry.height", "required"),
+        (('orientation = "vertical"\n', ""), "geometry.height", "vertical pipe only"),
+        (('orientation = "vertical"', 'orientation = "slanted"'), "geometry.orientation", "unknown orientation"),
+        (('kind = "cylinder"', 'kind = "sphere"'), "geometry.orientation", "cylinder geometry only"),
+    ],
+)
+def test_pipe_orientation_errors(write_case, tmp_path, capsys, change, key, words):
+    path = write_case(VERTICAL_PIPE.replace(*change))
+    assert main(["check", str(path)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert key in err and words in err and "\n" not in err
