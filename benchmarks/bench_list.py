@@ -96,6 +96,9 @@ def make_archive(folder: Path, runs: int, with_headlines: bool) -> None:
             if with_headlines:
                 for name, value in headlines.items():
                     nc.setncattr(name, value + i * 0.01 if isinstance(value, float) else value)
+            else:  # a run written before the headline attributes existed
+                for name in headlines:
+                    nc.delncattr(name)
 
 
 def best_of(fn, repeat: int = 3) -> float:
