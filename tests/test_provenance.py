@@ -75,40 +75,123 @@ def test_again_without_embedded_series_needs_unchanged_file(tmp_path, capsys):
     assert "changed" in capsys.readouterr().err
 
 
-def test_killed_run_leaves_nothing_in_the_archive(tmp_path):
-    """A run killed with SIGKILL halfway leaves no file in the archive."""
-    case = tmp_path / "long.toml"
-    case.write_text(
-        """
-        [[layers]]
-        material = "brick"
-        thickness = "240 mm"
-        cells = 400
-        [inside]
-        type = "film"
-        air_temperature = "20 degC"
-        [outside]
-        type = "film"
-        air_temperature = "series:c"
-        film_coefficient = "auto"
-        [series.cycles.c]
-        mean = "5 degC"
-        amplitude = "5 K"
-        [time]
-        duration = "3650 d"
-        step = "10 min"
-        initial = "0 degC"
-        """.replace("\n        ", "\n")
-    )
+SHORT = """
+title = "already archived"
+[[layers]]
+material = "brick"
+thickness = "240 mm"
+[inside]
+type = "film"
+air_temperature = "20 degC"
+[outside]
+type = "film"
+air_temperature = "0 degC"
+[time]
+start = "2026-01-01T00:00"
+duration = "1 d"
+step = "1 h"
+initial = "steady"
+"""
+
+LONG = """
+[[layers]]
+material = "brick"
+thickness = "240 mm"
+cells = 400
+[inside]
+type = "film"
+air_temperature = "20 degC"
+[outside]
+type = "film"
+air_temperature = "series:c"
+film_coefficient = "auto"
+[series.cycles.c]
+mean = "5 degC"
+amplitude = "5 K"
+[time]
+duration = "3650 d"
+step = "10 min"
+initial = "0 degC"
+"""
+
+# Runs the command line with the netCDF write slowed down after the data are
+# in the temporary file, so that a test can kill the process mid-write.
+SLOW_WRITER = """
+import sys, time
+import xarray as xr
+_write = xr.Dataset.to_netcdf
+def slow(self, *args, **kwargs):
+    out = _write(self, *args, **kwargs)
+    time.sleep(60)
+    return out
+xr.Dataset.to_netcdf = slow
+from layers.cli import main
+sys.exit(main(sys.argv[1:]))
+"""
+
+
+def _archive_with_one_run(tmp_path):
+    """An archive holding one finished run; returns (folder, its listing, its files)."""
+    from layers.archive import list_runs
+
     runs = tmp_path / "runs"
-    runs.mkdir()
+    case = tmp_path / "short.toml"
+    case.write_text(SHORT)
+    assert main(["run", str(case), "--archive", str(runs), "--quiet"]) == 0
+    return runs, list_runs(runs), sorted(runs.iterdir())
+
+
+def _kill_when(proc: subprocess.Popen, ready, timeout: float = 60.0) -> None:
+    deadline = time.monotonic() + timeout
+    while not ready():
+        assert proc.poll() is None, "the run ended before it could be killed"
+        assert time.monotonic() < deadline, "the moment to kill never came"
+        time.sleep(0.02)
+    os.kill(proc.pid, signal.SIGKILL)
+    proc.wait()
+
+
+def test_killed_run_leaves_nothing_in_the_archive(tmp_path):
+    """A run killed with SIGKILL halfway through its time march leaves no file
+    in the archive, and the archive lists as before."""
+    from layers.archive import list_runs
+
+    runs, before, files = _archive_with_one_run(tmp_path)
+    case = tmp_path / "long.toml"
+    case.write_text(LONG)
     proc = subprocess.Popen(
         [sys.executable, "-m", "layers.cli", "run", str(case), "--archive", str(runs), "--quiet"],
         stdout=subprocess.DEVNULL,
         stderr=subprocess.DEVNULL,
     )
-    time.sleep(3.0)
-    assert proc.poll() is None, "the run ended before it could be killed"
-    os.kill(proc.pid, signal.SIGKILL)
-    proc.wait()
-    assert list(runs.iterdir()) == []
+    started = time.monotonic()
+    _kill_when(proc, lambda: time.monotonic() - started > 3.0)
+    assert sorted(runs.iterdir()) == files
+    assert list_runs(runs) == before
+
+
+def test_run_killed_while_writing_leaves_no_file_and_is_cleaned_up(tmp_path):
+    """SIGKILL while the result is being written (the temporary file exists
+    and holds the data) leaves no file under a run name; the archive lists as
+    before; the next run removes the dead writer's temporary file."""
+    from layers.archive import list_runs
+
+    runs, before, files = _archive_with_one_run(tmp_path)
+    case = tmp_path / "second.toml"
+    case.write_text(SHORT)
+    proc = subprocess.Popen(
+        [sys.executable, "-c", SLOW_WRITER, "run", str(case), "--archive", str(runs), "--quiet"],
+        stdout=subprocess.DEVNULL,
+        stderr=subprocess.DEVNULL,
+    )
+
+    def partial_written() -> bool:
+        return any(p.stat().st_size > 0 for p in runs.glob(".*.partial"))
+
+    _kill_when(proc, partial_written)
+    assert [p for p in sorted(runs.iterdir()) if not p.name.endswith(".partial")] == files
+    assert list_runs(runs) == before
+    # the next run cleans up what the killed writer left
+    assert main(["run", str(case), "--archive", str(runs), "--quiet"]) == 0
+    assert not list(runs.glob(".*.partial"))
+    assert len(list_runs(runs)) == len(before) + 1
