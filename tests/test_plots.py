@@ -107,7 +107,11 @@ max_cell = "10 mm"
 #: A figure saved as PNG is FIGSIZE x DPI pixels: 10 in x 120 = 1200 wide, 6 in x 120 = 720 high.
 PNG_SHAPE = (720, 1200)
 PNG_MAGIC = b"\x89PNG\r\n\x1a\n"
-UNIT_IN_BRACKETS = re.compile(r"[\[(][^\])]+[\])]")
+#: An axis label ends with its unit in brackets: one of the units the runs and
+#: sizing files carry, as plots.pretty_units shows them, lengths in mm, or
+#: UTC for a time axis.
+UNIT_AT_END = re.compile(r" \[([^\]]+)\]$")
+KNOWN_UNITS = {"°C", "K", "W/m²", "W/m", "W", "W/(m²·K)", "J/m²", "J/m", "J", "mm", "m", "h", "d", "UTC", "-"}
 RUN_KINDS = ("carpet", "surfaces", "profiles")
 
 
@@ -227,7 +231,8 @@ def assert_labels_have_units(fig) -> None:
     labels = [label for ax in all_axes(fig) for label in (ax.get_xlabel(), ax.get_ylabel()) if label]
     assert labels, "a figure without axis labels"
     for label in labels:
-        assert UNIT_IN_BRACKETS.search(label), f"axis label without a unit: {label!r}"
+        found = UNIT_AT_END.search(label)
+        assert found and found.group(1) in KNOWN_UNITS, f"axis label without a unit: {label!r}"
 
 
 def figure_texts(fig) -> list[str]:
@@ -242,6 +247,44 @@ def assert_png(path: Path) -> None:
 
     assert path.read_bytes()[:8] == PNG_MAGIC
     assert mpimg.imread(path).shape[:2] == PNG_SHAPE
+
+
+# --------------------------------------------------------------------------- #
+# every kind on every demo case, through the command line
+
+DEMO_CASES = sorted((Path(__file__).resolve().parents[1] / "cases").glob("*.toml"))
+
+
+@pytest.fixture(scope="module")
+def demo_runs(tmp_path_factory) -> dict[str, Path]:
+    """Each demo case of cases/ run once (and sized, where it has [sizing])."""
+    folder = tmp_path_factory.mktemp("demo")
+    found = {}
+    for case in DEMO_CASES:
+        assert main(["run", str(case), "--archive", str(folder / "runs"), "--quiet"]) == 0
+        (found[case.stem],) = (folder / "runs").glob(f"{case.stem}-2*.nc")
+        if load_case(case).sizing is not None:
+            assert main(["size", str(case), "--archive", str(folder / "sized"), "--quiet"]) in (0, 1)
+            (found[f"{case.stem} sizing"],) = (folder / "sized").glob(f"{case.stem}-size-*.nc")
+    return found
+
+
+def test_every_kind_on_every_demo_case(demo_runs, tmp_path, capsys):
+    """Each demo run gives a PNG of the expected size for carpet, surfaces and
+    profiles, each sizing result one for sizing; every axis label ends with a
+    unit and every figure carries the caution."""
+    assert len(demo_runs) >= len(DEMO_CASES)
+    for name, run in demo_runs.items():
+        kinds = ("sizing",) if name.endswith(" sizing") else RUN_KINDS
+        ds = plots.open_run(run)
+        for kind in kinds:
+            out = tmp_path / f"{run.stem}-{kind}.png"
+            assert main(["plot", str(run), "--kind", kind, "-o", str(out)]) == 0, (name, kind)
+            assert_png(out)
+            fig = plots.plot(ds, kind)
+            assert_labels_have_units(fig)
+            assert any(ds.attrs["caution"][:40] in text for text in figure_texts(fig)), (name, kind)
+    capsys.readouterr()
 
 
 # --------------------------------------------------------------------------- #
