@@ -25,6 +25,19 @@ def _powers(text: str) -> str:
     return _POWER.sub(r"**\1", text.replace("²", "2").replace("³", "3"))
 
 
+_OFFSET_UNIT = re.compile(r"(?<![A-Za-z_])(degC|°C|celsius|degree_Celsius|degF|°F|fahrenheit|degree_Fahrenheit)(?![A-Za-z_])")
+
+
+def _as_intervals(text: str) -> str:
+    """Read degC and degF in a quantity that is not a temperature as intervals.
+
+    ``"1 degC"`` as a temperature difference, or ``"0.035 W/(m*degC)"``, means
+    a step of one degree, not the temperature 1 degC (274.15 K), which is what
+    pint's offset-unit conversion would make of it.
+    """
+    return _OFFSET_UNIT.sub(lambda m: "delta_degF" if m.group(1).lower().endswith(("f", "fahrenheit")) else "delta_degC", text)
+
+
 ureg = pint.UnitRegistry(
     autoconvert_offset_to_baseunit=True, preprocessors=[_powers], cache_folder=None
 )
@@ -82,7 +95,7 @@ def parse_quantity(value: Any, kind: str, *, file: str = "<case>", key: str = "?
             number = float(text)  # a bare number written as a string: SI
         except ValueError:
             try:
-                q = ureg.Quantity(text)
+                q = ureg.Quantity(_as_intervals(text))
             except Exception as exc:  # pint raises several unrelated types
                 _fail(file, key, f"cannot read {value!r} as a quantity ({exc})")
             if not isinstance(q, pint.Quantity) or (q.dimensionless and kind != "fraction" and str(q.units) == "dimensionless"):
@@ -146,6 +159,7 @@ def unit_factor(unit: str, kind: str, *, file: str, key: str) -> tuple[float, fl
             q1 = ureg.Quantity(1.0, unit).to(ureg.degC).magnitude
         else:
             target = KINDS[kind][0]
+            unit = _as_intervals(unit)
             q0 = ureg.Quantity(0.0, unit).to(target).magnitude
             q1 = ureg.Quantity(1.0, unit).to(target).magnitude
     except (pint.DimensionalityError, pint.UndefinedUnitError, AttributeError, ValueError) as exc:

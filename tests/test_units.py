@@ -1,0 +1,97 @@
+"""Quantities at the edge: degrees in a quantity that is not a temperature are intervals."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from layers.case import load_case
+from layers.errors import CaseError
+from layers.units import parse_quantity, parse_temperature, unit_factor
+
+# Conversion factors of NIST Special Publication 811 (2008), Appendix B.8
+# (from memory, to the 7 digits printed there):
+#   1 Btu_IT/(h ft2 degF)     = 5.678263 W/(m2 K)
+#   1 h ft2 degF/Btu_IT       = 0.1761102 m2 K/W
+#   1 Btu_IT in/(h ft2 degF)  = 0.1442279 W/(m K)
+# Tolerance 1e-6 relative: the factors are printed to 7 significant digits.
+NIST = 1e-6
+
+
+@pytest.mark.parametrize(
+    "text, kind, si",
+    [
+        ("1 degC", "temperature_difference", 1.0),
+        ("1 K", "temperature_difference", 1.0),
+        ("9 degF", "temperature_difference", 5.0),
+        ("0.035 W/(m*degC)", "conductivity", 0.035),
+        ("0.035 W/(m*°C)", "conductivity", 0.035),
+        ("10 W/(m2*degC)", "film_coefficient", 10.0),
+        ("0.13 m2*degC/W", "areal_resistance", 0.13),
+        ("1000 J/(kg*degC)", "specific_heat", 1000.0),
+        ("1 Btu/(h*ft2*degF)", "film_coefficient", 5.678263),
+        ("1 h*ft2*degF/Btu", "areal_resistance", 0.1761102),
+        ("1 Btu*in/(h*ft2*degF)", "conductivity", 0.1442279),
+    ],
+)
+def test_degrees_inside_other_quantities_are_intervals(text, kind, si):
+    """A degree Celsius or Fahrenheit inside a conductivity, a film
+    coefficient or a difference is a step of one degree (1 degC = 1 K,
+    1 degF = 5/9 K), never the temperature 1 degC = 274.15 K."""
+    assert parse_quantity(text, kind) == pytest.approx(si, rel=NIST)
+
+
+def test_series_column_units_follow_the_same_rule():
+    assert unit_factor("W/(m*degC)", "conductivity", file="f", key="k") == pytest.approx((1.0, 0.0))
+    assert unit_factor("degF", "temperature_difference", file="f", key="k") == pytest.approx((5 / 9, 0.0))
+    # a temperature column keeps its offset: 32 degF is 0 degC
+    scale, offset = unit_factor("degF", "temperature", file="f", key="k")
+    assert scale * 32.0 + offset == pytest.approx(0.0, abs=1e-12)
+
+
+def test_temperatures_keep_their_offset():
+    assert parse_temperature("68 degF") == pytest.approx(20.0, abs=1e-12)
+    assert parse_temperature("293.15 K") == pytest.approx(20.0, abs=1e-12)
+    assert parse_temperature(20) == 20.0
+
+
+def test_a_length_in_degrees_is_refused():
+    with pytest.raises(CaseError, match="is not a length"):
+        parse_quantity("3 degC", "length", file="case.toml", key="layers[1].thickness")
+
+
+def test_cycle_amplitude_and_dew_margin_in_degC_equal_kelvin(write_case):
+    text = """
+    [geometry]
+    kind = "cylinder"
+    inner_radius = "20 mm"
+    [[layers]]
+    material = "elastomeric-foam"
+    thickness = "19 mm"
+    [series.cycles.air]
+    mean = "25 degC"
+    amplitude = "AMP"
+    [inside]
+    type = "temperature"
+    surface_temperature = "6 degC"
+    [outside]
+    type = "film"
+    air_temperature = "series:air"
+    film_coefficient = "9 W/(m2*K)"
+    relative_humidity = "70 %"
+    [time]
+    start = "2026-07-01T00:00"
+    duration = "1 d"
+    step = "1 h"
+    initial = "steady"
+    [sizing]
+    layer = 1
+    thicknesses = ["9 mm", "19 mm"]
+    dew_point_margin = "MARGIN"
+    """
+    kelvin = load_case(write_case(text.replace("AMP", "7 K").replace("MARGIN", "1 K"), "k.toml"))
+    celsius = load_case(write_case(text.replace("AMP", "7 degC").replace("MARGIN", "1 degC"), "c.toml"))
+    assert celsius.sizing.dew_point_margin == kelvin.sizing.dew_point_margin == 1.0
+    times = kelvin.time.start + np.arange(24) * np.timedelta64(1, "h")
+    np.testing.assert_array_equal(celsius.outside.air_temperature(times), kelvin.outside.air_temperature(times))
+    assert kelvin.outside.air_temperature(times).max() == pytest.approx(32.0)
