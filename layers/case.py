@@ -11,6 +11,7 @@ from __future__ import annotations
 import datetime as dt
 import hashlib
 import math
+import re
 import tomllib
 from collections.abc import Callable
 from dataclasses import dataclass, field
@@ -22,7 +23,7 @@ import numpy as np
 from layers.errors import CaseError
 from layers.materials import Material, material_from_table, resolve
 from layers.mesh import GEOMETRIES, LayerSpec, MeshRule
-from layers.series import ColumnSpec, Forcing, Series, daily_cycle, read_series
+from layers.series import RANGES, ColumnSpec, Forcing, Series, daily_cycle, read_series
 from layers.units import parse_quantity, parse_temperature
 
 BOUNDARY_TYPES = ("film", "temperature", "flux", "adiabatic", "contents")
@@ -300,6 +301,13 @@ def parse_case(data: dict, *, file: str = "<case>", text: str = "", base_dir: Pa
         raise CaseError(
             file, "time.initial", f"{time.initial!r} needs a boundary that fixes a temperature (film or temperature); give a starting temperature"
         )
+    if time.initial == "periodic" and inside.kind == "contents":
+        raise CaseError(
+            file,
+            "time.initial",
+            "'periodic' does not apply with stagnant contents (they only cool: there is no repeating state); "
+            "use 'steady' (the insulation in steady state with the contents at their initial_temperature) or a temperature",
+        )
 
     sizing = None
     if top.has("sizing"):
@@ -502,6 +510,8 @@ class _ForcingContext:
 
     def forcing(self, value: Any, kind: str, key: str) -> Forcing:
         """A constant or a ``"series:NAME"`` reference -> Forcing in SI."""
+        if isinstance(value, str) and value.strip().lower().startswith("series:") and not value.strip().startswith("series:"):
+            raise CaseError(self.file, key, f"write the series reference in lower case: 'series:NAME' (got {value!r})")
         if isinstance(value, str) and value.strip().startswith("series:"):
             name = value.strip()[len("series:"):].strip()
             known = sorted(self.kinds)
@@ -519,6 +529,12 @@ class _ForcingContext:
         if kind == "temperature":
             return Forcing.constant(parse_temperature(value, file=self.file, key=key))
         number = parse_quantity(value, kind, file=self.file, key=key)
+        if kind in RANGES and kind != "temperature":
+            low, high, shown = RANGES[kind]
+            if not low <= number <= high:
+                if kind == "fraction":
+                    raise CaseError(self.file, key, f"{value!r} is not a fraction from 0 to 1 (a bare number is a fraction; write a percentage with its unit, e.g. '70 %')")
+                raise CaseError(self.file, key, f"{value!r} is outside the plausible range {low:g} to {high:g} {shown}")
         return Forcing.constant(number)
 
 
@@ -714,6 +730,8 @@ def _parse_time(t: _Table, series: Series | None, timezone: str) -> TimePlan:
     initial = t.get("initial", "steady")
     if isinstance(initial, str) and initial.strip() in INITIAL_WORDS:
         initial_value: float | str = initial.strip()
+    elif isinstance(initial, str) and not re.match(r"\s*[-+]?[\d.]", initial):
+        raise t.error("initial", f"must be a temperature, \"steady\" or \"periodic\"; got {initial!r}")
     else:
         initial_value = parse_temperature(initial, file=file, key=t.key("initial"))
     scheme = t.get("scheme", "backward-euler")

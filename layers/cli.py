@@ -151,14 +151,6 @@ def cmd_materials(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
-def _not_yet(name: str) -> Callable[[argparse.Namespace], int]:
-    def run(args: argparse.Namespace) -> int:
-        _err(f"'{name}' is not available in this version")
-        return EXIT_INTERNAL
-
-    return run
-
-
 def build_parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(
         prog="layers",
@@ -220,13 +212,7 @@ def _dispatch(module: str, name: str) -> Callable[[argparse.Namespace], int]:
     def run(args: argparse.Namespace) -> int:
         import importlib
 
-        try:
-            mod = importlib.import_module(module)
-        except ModuleNotFoundError as exc:
-            if exc.name == module:
-                return _not_yet(args.command)(args)
-            raise
-        return getattr(mod, name)(args)
+        return getattr(importlib.import_module(module), name)(args)
 
     return run
 
@@ -257,6 +243,12 @@ def main(argv: Sequence[str] | None = None) -> int:
     except KeyboardInterrupt:
         _err("interrupted; nothing was written")
         return 130
+    except BrokenPipeError:
+        # The reader went away (`layers list | head`): stop quietly, as Unix
+        # tools do, with 128 + SIGPIPE; silence the flush at interpreter exit.
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return 141
     except Exception as exc:  # noqa: BLE001 - last line of defence: no traceback for users
         if debug:
             raise

@@ -210,6 +210,9 @@ def write_once(path: str | os.PathLike, write: Callable[[str], None]) -> Path:
     os.close(fd)
     try:
         write(tmp)
+        # mkstemp makes the file private (0600); give it the mode an ordinary
+        # new file gets, so that colleagues can read a shared archive.
+        os.chmod(tmp, 0o666 & ~_umask())
         os.link(tmp, path)
     finally:
         try:
@@ -217,6 +220,12 @@ def write_once(path: str | os.PathLike, write: Callable[[str], None]) -> Path:
         except FileNotFoundError:
             pass
     return path
+
+
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
 
 
 def _remove_stale_partials(folder: Path) -> None:

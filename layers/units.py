@@ -63,6 +63,14 @@ KINDS: dict[str, tuple[str, str]] = {
 }
 
 
+def _why(exc: Exception) -> str:
+    """A pint parse failure in plain words."""
+    if isinstance(exc, pint.UndefinedUnitError):
+        names = ", ".join(repr(n) for n in getattr(exc, "unit_names", ()) or ())
+        return f"unknown unit {names}" if names else "unknown unit"
+    return "not a number with a unit"
+
+
 def _fail(file: str, key: str, reason: str) -> None:
     raise CaseError(file, key, reason)
 
@@ -97,13 +105,15 @@ def parse_quantity(value: Any, kind: str, *, file: str = "<case>", key: str = "?
             try:
                 q = ureg.Quantity(_as_intervals(text))
             except Exception as exc:  # pint raises several unrelated types
-                _fail(file, key, f"cannot read {value!r} as a quantity ({exc})")
+                _fail(file, key, f"cannot read {value!r} as a quantity ({_why(exc)}); write a number and a unit like {shown}")
             if not isinstance(q, pint.Quantity) or (q.dimensionless and kind != "fraction" and str(q.units) == "dimensionless"):
                 _fail(file, key, f"{value!r} has no unit; write it in {shown}")
             try:
                 number = float(q.to(unit).magnitude)
             except pint.DimensionalityError:
-                _fail(file, key, f"{value!r} is not a {kind.replace('_', ' ')} (expected a unit like {shown})")
+                noun = kind.replace("_", " ")
+                article = "an" if noun[0] in "aeiou" else "a"
+                _fail(file, key, f"{value!r} is not {article} {noun} (expected a unit like {shown})")
     else:
         _fail(file, key, f"expected a quantity in {shown}, got {type(value).__name__} {value!r}")
     if not math.isfinite(number):
@@ -129,7 +139,7 @@ def parse_temperature(value: Any, *, file: str = "<case>", key: str = "?") -> fl
         try:
             q = ureg.Quantity(value.strip())
         except Exception as exc:
-            _fail(file, key, f"cannot read {value!r} as a temperature ({exc})")
+            _fail(file, key, f"cannot read {value!r} as a temperature ({_why(exc)}); write e.g. '20 degC', '68 degF' or '293.15 K'")
         if not isinstance(q, pint.Quantity) or q.dimensionless:
             magnitude = q.magnitude if isinstance(q, pint.Quantity) else q
             number = float(magnitude)

@@ -2,6 +2,12 @@
 
 from __future__ import annotations
 
+import os
+import stat
+import subprocess
+import sys
+from pathlib import Path
+
 import pytest
 
 from layers import CAUTION
@@ -65,6 +71,13 @@ def test_good_case_runs(tmp_path, capsys):
         (('unit = "degC"', 'unit = "W/m2"'), "outside.air_temperature", "irradiance"),
         (('air_temperature = "20 degC"', 'air_temperature = "20 m"'), "inside.air_temperature", "not a temperature"),
         (('air_temperature = "series:t_out"', 'air_temperature = "series:t_in"'), "outside.air_temperature", "no series named"),
+        (('air_temperature = "series:t_out"', 'air_temperature = "Series:t_out"'), "outside.air_temperature", "lower case"),
+        (('air_temperature = "20 degC"', 'air_temperature = "warm"'), "inside.air_temperature", "unknown unit 'warm'"),
+        (('step = "1 h"', 'step = "1 h"\ninitial = "cold"'), "time.initial", "must be a temperature"),
+        (('type = "film"\nair_temperature = "series:t_out"', 'type = "film"\nair_temperature = "series:t_out"\nfilm_coefficient = "auto"\nwind_speed = "-3 m/s"'),
+         "outside.wind_speed", "plausible range"),
+        (('air_temperature = "20 degC"', 'air_temperature = "20 degC"\nrelative_humidity = 80'), "inside.relative_humidity", "write a percentage"),
+        (('thickness = "200 mm"', 'thickness = "0.2 m2*K/W"'), "layers[1].thickness", "not a length"),
     ],
 )
 def test_bad_case_exit_2_one_line_nothing_written(tmp_path, capsys, change, key, words):
@@ -130,3 +143,73 @@ def test_archive_names_never_collide(tmp_path):
 def test_missing_case_file(tmp_path, capsys):
     assert main(["check", str(tmp_path / "nope.toml")]) == 2
     assert "cannot read" in capsys.readouterr().err
+
+
+def test_degC_difference_in_a_conductivity_is_an_interval(tmp_path, capsys):
+    """0.035 W/(m*degC) is 0.035 W/(m*K): the U-value of `check` is that of 0.035."""
+    text = GOOD + '\n[materials.foam]\nconductivity = "CONDUCTIVITY"\ndensity = "30 kg/m3"\nspecific_heat = "1400 J/(kg*K)"\n'
+    text = text.replace('material = "concrete"', 'material = "foam"')
+    outputs = []
+    for unit in ("0.035 W/(m*K)", "0.035 W/(m*degC)"):
+        case = tmp_path / "case.toml"
+        case.write_text(text.replace("CONDUCTIVITY", unit))
+        (tmp_path / "weather.csv").write_text(WEATHER)
+        assert main(["check", str(case)]) == 0
+        outputs.append([line for line in capsys.readouterr().out.splitlines() if "U" in line and "W/" in line])
+    assert outputs[0] and outputs[0] == outputs[1]
+
+
+def test_periodic_start_with_contents_is_refused(tmp_path, capsys):
+    case = tmp_path / "freeze.toml"
+    case.write_text(
+        """
+[geometry]
+kind = "cylinder"
+inner_radius = "10 mm"
+[[layers]]
+material = "elastomeric-foam"
+thickness = "20 mm"
+[inside]
+type = "contents"
+initial_temperature = "8 degC"
+[outside]
+type = "film"
+air_temperature = "-10 degC"
+film_coefficient = "10 W/(m2*K)"
+[time]
+start = "2026-01-01T00:00"
+duration = "12 h"
+step = "5 min"
+initial = "periodic"
+"""
+    )
+    assert main(["run", str(case), "--quiet"]) == 2
+    err = capsys.readouterr().err
+    assert "time.initial" in err and "contents" in err
+
+
+def test_written_files_are_readable_by_others_under_the_usual_umask(tmp_path):
+    """An archive is shared: runs get the mode an ordinary new file gets (0644 under umask 022)."""
+    case = tmp_path / "case.toml"
+    case.write_text(GOOD)
+    (tmp_path / "weather.csv").write_text(WEATHER)
+    old = os.umask(0o022)
+    try:
+        assert main(["run", str(case), "--archive", str(tmp_path / "runs"), "-o", str(tmp_path / "copy.nc"), "--quiet"]) == 0
+    finally:
+        os.umask(old)
+    for path in [*(tmp_path / "runs").glob("*.nc"), tmp_path / "copy.nc"]:
+        assert stat.S_IMODE(path.stat().st_mode) == 0o644, path
+
+
+def test_a_closed_pipe_ends_quietly():
+    """`layers materials | head -1`: when the reader goes away the command stops
+    quietly with 141 (128 + SIGPIPE, as Unix tools do), not an internal error."""
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "layers.cli", "materials"],
+        stdout=subprocess.PIPE, stderr=subprocess.PIPE, cwd=Path(__file__).resolve().parents[1],
+    )
+    proc.stdout.close()  # long before the interpreter has started and printed
+    err = proc.stderr.read().decode()
+    assert proc.wait() == 141
+    assert "internal error" not in err and "Traceback" not in err
