@@ -38,6 +38,8 @@ PIPE_ORIENTATIONS = ("horizontal", "vertical")
 AUTO_ONLY_KEYS = ("emissivity", "wind_speed", "radiant_temperature", "sky_temperature", "jacket", "tilt", "heat_flow_direction")
 #: A single layer thicker than this is taken for a unit slip [m].
 MAX_LAYER_THICKNESS = 20.0
+#: The tables and keys of the top level of a case file.
+TOP_LEVEL_KEYS = ("title", "label", "geometry", "materials", "layers", "mesh", "series", "inside", "outside", "time", "sizing")
 
 
 class _Table:
@@ -50,18 +52,25 @@ class _Table:
         self.file = file
         self.where = where
         self.used: set[str] = set()
+        self.known: set[str] = set()  # every key asked about: the vocabulary for "did you mean"
 
     def key(self, name: str) -> str:
         return f"{self.where}.{name}" if self.where else name
 
     def has(self, name: str) -> bool:
+        self.known.add(name)
         return name in self.data
 
     def get(self, name: str, default: Any = None, required: bool = False) -> Any:
         self.used.add(name)
+        self.known.add(name)
         if name not in self.data:
             if required:
-                raise CaseError(self.file, self.key(name), "is required")
+                import difflib
+
+                typo = difflib.get_close_matches(name, [k for k in self.data if k not in self.known], n=1)
+                hint = f" (is {typo[0]!r} a misspelling of it?)" if typo else ""
+                raise CaseError(self.file, self.key(name), f"is required{hint}")
             return default
         return self.data[name]
 
@@ -74,7 +83,7 @@ class _Table:
             import difflib
 
             name = unknown[0]
-            close = difflib.get_close_matches(name, sorted(self.used), n=1)
+            close = difflib.get_close_matches(name, sorted(self.known | set(allowed_extra)), n=1)
             hint = f" (did you mean {close[0]!r}?)" if close else ""
             raise CaseError(self.file, self.key(name), f"unknown key{hint}")
 
@@ -229,6 +238,12 @@ def parse_case(data: dict, *, file: str = "<case>", text: str = "", base_dir: Pa
     """Validate an already-parsed TOML document (see :func:`load_case`)."""
     base_dir = base_dir or Path(".")
     top = _Table(data, file, "")
+    # unknown top-level keys first, so that a misspelt table is named before
+    # anything that depends on it complains
+    top.known.update(TOP_LEVEL_KEYS)
+    for name in data:
+        if name not in TOP_LEVEL_KEYS:
+            top.finish(allowed_extra=tuple(k for k in data if k != name))
     title = top.get("title", "")
     if not isinstance(title, str):
         raise top.error("title", "must be a string")

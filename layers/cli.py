@@ -66,6 +66,8 @@ def cmd_run(args: argparse.Namespace) -> int:
 
     if args.out and Path(args.out).exists():
         raise CaseError(args.out, "-o", "exists already; layers never overwrites a file (choose another name)")
+    if args.again and args.case:
+        raise CaseError("(command line)", "--again", f"give a case file or --again RUN.nc, not both (got {args.case})")
     if args.again:
         from layers.provenance import load_archived_case
 

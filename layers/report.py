@@ -95,6 +95,8 @@ def check_report(case: Case) -> str:
             f"steady:    heat flow {float(st.heat_flow[0]):.4g} {unit} inside to outside at the start-time conditions; "
             f"surfaces {float(st.surface_temperature_inside[0]):.2f} / {float(st.surface_temperature_outside[0]):.2f} degC"
         )
+        if any(sp.solar_irradiance is not None or sp.sky_temperature is not None or sp.values.get("sky_auto") for sp in (case.inside, case.outside)):
+            lines.append("           (without sun and sky exchange; a run's steady start includes them)")
         if case.geometry == "cylinder" and not (case.inside.auto_film or case.outside.auto_film):
             lines.append(f"           resistance per metre, fluid to air: {total:.4g} m*K/W (films as given; k at 10 degC)")
     except CaseError:
@@ -195,6 +197,14 @@ def observed_periodic_response(ds: xr.Dataset, case: Case) -> tuple[float, float
     return abs(y) * mesh_r, float(lag), period
 
 
+def _starts_from_a_temperature(ds: xr.Dataset) -> bool:
+    try:
+        float(ds.attrs.get("initial", "steady"))
+    except ValueError:
+        return False
+    return True
+
+
 def run_summary(ds: xr.Dataset, case: Case | None = None) -> str:
     """What ``layers run`` prints after a run: extremes, heat flows, energy through each surface,
     and for a periodic outside cycle the observed decrement and lag beside ISO 13786."""
@@ -206,7 +216,10 @@ def run_summary(ds: xr.Dataset, case: Case | None = None) -> str:
         hi, t_hi = _extreme(s, np.argmax)
         q = ds[f"heat_flow_{side}"].values
         seconds = (ds["time"].values - ds["time"].values[0]) / np.timedelta64(1, "s")
-        peak_i = int(np.argmax(np.abs(q)))
+        # A run that starts from a given temperature has a jump at the surfaces
+        # at t = 0 whose flux depends on the mesh; the peak is taken after it.
+        first = 1 if _starts_from_a_temperature(ds) and len(q) > 1 else 0
+        peak_i = first + int(np.argmax(np.abs(q[first:])))
         lines.append(
             f"  {side:<7} surface  min {lo:7.2f} degC at {t_lo}Z   max {hi:7.2f} degC at {t_hi}Z"
         )
@@ -219,6 +232,7 @@ def run_summary(ds: xr.Dataset, case: Case | None = None) -> str:
             mean = float(np.trapezoid(q, seconds) / seconds[-1]) if seconds[-1] > 0 else float(q[0])
         lines.append(
             f"          heat flow mean {mean:9.3g} {flow_units}   peak {q[peak_i]:9.3g} {flow_units}"
+            + (" (of the kept samples after the start)" if first else "")
         )
     per = ds.attrs.get("heat_total_units", "J m-2")
     scale, unit = (3.6e6, "kWh/m2") if per == "J m-2" else ((3.6e6, "kWh/m") if per == "J m-1" else (3.6e6, "kWh"))
