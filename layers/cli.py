@@ -190,7 +190,7 @@ def build_parser() -> argparse.ArgumentParser:
     pl = sub.add_parser("plot", help="plot a run")
     pl.add_argument("run", help="a run's netCDF file")
     pl.add_argument("-o", "--out")
-    pl.add_argument("--kind", default="surfaces", choices=["carpet", "surfaces", "profiles", "sizing"])
+    pl.add_argument("--kind", default=None, help="default: sizing for a sizing file, else surfaces", choices=["carpet", "surfaces", "profiles", "sizing"])
     pl.add_argument("--times", nargs="*", help="profiles: times to draw (ISO 8601)")
     pl.set_defaults(func=_dispatch("layers.plots", "cmd_plot"))
 

@@ -884,19 +884,27 @@ def plot(ds: xr.Dataset, kind: str, times: list[str] | None = None) -> Any:
 
 
 def output_path(run: str | os.PathLike, kind: str, out: str | os.PathLike | None = None) -> Path:
-    """Where a plot goes: ``out``, else ``<run stem>-<kind>.png`` next to the run.
+    """Where a plot goes: ``out``, else ``<run stem>-<kind>.png`` next to the run
+    (``-2``, ``-3``... when that name is taken).
 
     Raises
     ------
     CaseError
         An unknown extension, or a file that exists already (key ``-o``).
     """
-    path = Path(out) if out else Path(run).with_name(f"{Path(run).stem}-{kind}.png")
+    if not out:
+        # next to the run, under the first free name: <stem>-<kind>.png, -2.png, ...
+        stem = f"{Path(run).stem}-{kind}"
+        for n in range(1, 10000):
+            path = Path(run).with_name(f"{stem}.png" if n == 1 else f"{stem}-{n}.png")
+            if not path.exists():
+                return path
+        raise CaseError(str(path), "-o", "no free default name; choose a name with -o")
+    path = Path(out)
     if path.suffix.lower() not in FORMATS:
         raise CaseError(str(path), "-o", f"unknown figure format {path.suffix or '(none)'!r}; use .png, .svg or .pdf")
     if path.exists():
-        how = "choose another name" if out else "choose a name with -o"
-        raise CaseError(str(path), "-o", f"exists already; layers never overwrites a file ({how})")
+        raise CaseError(str(path), "-o", "exists already; layers never overwrites a file (choose another name)")
     return path
 
 
@@ -939,7 +947,8 @@ def open_run(path: str | os.PathLike) -> xr.Dataset:
         with xr.open_dataset(path) as ds:
             ds = ds.load()
     except Exception as exc:  # noqa: BLE001 - whatever the netCDF reader says, the file is not a run
-        raise CaseError(str(path), "run", f"cannot read it as netCDF ({type(exc).__name__}: {exc})") from None
+        reason = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
+        raise CaseError(str(path), "run", f"cannot read it as netCDF ({reason})") from None
     ds.encoding["source"] = str(path)
     return ds
 
@@ -947,11 +956,11 @@ def open_run(path: str | os.PathLike) -> xr.Dataset:
 def cmd_plot(args: argparse.Namespace) -> int:
     """``layers plot RUN.nc [-o OUT] [--kind ...] [--times ...]``: draw, save, print the path."""
     _use_agg()
-    kind = getattr(args, "kind", None) or "surfaces"
+    ds = open_run(args.run)
+    kind = getattr(args, "kind", None) or ("sizing" if _is_sizing(ds) else "surfaces")
     if kind not in KINDS:
         raise CaseError(str(args.run), "--kind", f"unknown kind {kind!r}; choose one of {', '.join(KINDS)}")
     target = output_path(args.run, kind, args.out)
-    ds = open_run(args.run)
     if _is_sizing(ds) and kind != "sizing":
         raise CaseError(str(args.run), "--kind", "this is a sizing Dataset (dimension thickness); use --kind sizing")
     times = getattr(args, "times", None)

@@ -318,10 +318,9 @@ def test_default_name_next_to_the_run_and_no_overwrite(run_copy, capsys):
     assert_png(expected)
     before = expected.read_bytes()
     capsys.readouterr()
-    # a second plot of the same kind would land on the same name: refused, file untouched
-    assert main(["plot", str(run), "--kind", "carpet"]) == 2
-    err = capsys.readouterr().err
-    assert "-o" in err and expected.name in err
+    # a second plot of the same kind goes to the next free name; the first is untouched
+    assert main(["plot", str(run), "--kind", "carpet"]) == 0
+    assert_png(run.with_name(f"{run.stem}-carpet-2.png"))
     assert expected.read_bytes() == before
 
 
@@ -544,6 +543,8 @@ def test_sizing_from_a_file_through_the_command_line(tmp_path, capsys):
     assert out.read_bytes()[:5] == b"%PDF-"
     assert main(["plot", str(path), "--kind", "sizing"]) == 0
     assert_png(tmp_path / "sizing-sizing.png")
+    assert main(["plot", str(path)]) == 0  # a sizing file's default kind is sizing
+    assert_png(tmp_path / "sizing-sizing-2.png")
     capsys.readouterr()
     # a sizing Dataset is not a run, and a run is not a sizing Dataset
     assert main(["plot", str(path), "--kind", "carpet"]) == 2
