@@ -253,6 +253,10 @@ def test_auto_inside_film_reproduces_iso6946_table(write_case, direction, rsi):
 
     The run holds a tiny temperature difference so that h_r = 4 eps sigma T^3
     at 20 degC (ISO 6946 annex on surface resistances: hr0 = 5.7); tolerance half the last printed digit.
+    The check is made near 20 degC, not 10 degC, because the table's values are those of
+    hr0 at about 20 degC inside: at 10 degC the same ISO 6946 formulas give Rsi = 0.104 /
+    0.140 / 0.187 (hr0 = 5.15, computed), which print as 0.10 / 0.14 / 0.19, not the table's
+    0.13 and 0.17, while at 20 degC they give 0.099 / 0.131 / 0.171 (computed).
     """
     ds = simulate(
         load_case(
@@ -281,7 +285,12 @@ def test_auto_inside_film_reproduces_iso6946_table(write_case, direction, rsi):
 
 def test_auto_outside_film_reproduces_iso6946_rse(write_case):
     """Outside auto film at the ISO 6946 default wind of 4 m/s, eps 0.9, near 0 degC: Rse = 0.04 m2K/W
-    (ISO 6946:2017 Table 7 and its annex on surface resistances: h_c = 4 + 4v, hr0(0 degC) = 4.6); tolerance half the last digit."""
+    (ISO 6946:2017 Table 7 and its annex on surface resistances: h_c = 4 + 4v, hr0(0 degC) = 4.6); tolerance half the last digit.
+
+    The check is made near 0 degC because the standard's outside values correspond to hr0
+    at 0 degC (here 1/(20 + 0.9 * 4.62) = 0.0414, computed; its Rse-against-wind table is
+    reproduced at 0 degC and not at 10 degC, see test_radiation).
+    """
     ds = simulate(
         load_case(
             write_case(

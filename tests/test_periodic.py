@@ -129,14 +129,20 @@ def test_u_value_iso6946_worked_example():
 
 @pytest.mark.parametrize("layer", [(0.20, *CONCRETE), (0.10, 0.035, 20, 1450), (1.0, *CONCRETE)])
 def test_det_single_layer_is_one(layer):
-    # cosh^2 cos^2 + ... identity: det Z = 1 exactly; round-off grows with |Z11|^2.
+    # ISO 13786:2017 sec. 6 layer matrix (formulas from memory): with k d = (1 + i) xi it is
+    # [[cosh kd, -sinh kd/(lam k)], [-lam k sinh kd, cosh kd]], so det Z = Z11 Z22 - Z12 Z21
+    # = cosh^2 kd - sinh^2 kd = 1 exactly (an identity of the standard's formulas, derived
+    # here, not a clause of the standard).  Round-off grows with |Z11|^2.
     z = layer_matrix(*layer, DAY)
     assert abs(np.linalg.det(z) - 1) < 1e-14 * max(1.0, abs(z[0, 0]) ** 2)
 
 
 @pytest.mark.parametrize("name", WALLS)
 def test_det_wall_is_one(name):
-    # A product of unimodular matrices is unimodular; round-off scales with the terms.
+    # ISO 13786:2017 sec. 6 (from memory): the wall matrix is the product
+    # Z_se Z_N ... Z_1 Z_si; each layer matrix has det 1 (above) and each surface-resistance
+    # matrix [[1, -R], [0, 1]] has det 1, so det Z = 1 (derived, as above).  Round-off
+    # scales with the terms.
     z = wall_matrix(WALLS[name], R_SI, R_SE, DAY)
     scale = max(abs(z[0, 0] * z[1, 1]), abs(z[0, 1] * z[1, 0]), 1.0)
     assert abs(np.linalg.det(z) - 1) < 1e-13 * scale
@@ -154,7 +160,10 @@ def test_penetration_depth_matches_carslaw_jaeger():
 
 @pytest.mark.parametrize("name", WALLS)
 def test_long_period_tends_to_steady_state(name):
-    # As T -> infinity, Y12 -> U; the first correction is a phase of order
+    # ISO 13786:2017 sec. 6 (from memory): as T -> infinity, xi = d/delta -> 0 and each layer
+    # matrix tends to [[1, -d/lam], [0, 1]], so Z12 -> -(Rsi + sum d/lam + Rse) = -1/U with U
+    # the ISO 6946:2017 sec. 6.7.1 transmittance, and Y12 = -1/Z12 -> U, f = |Y12|/U -> 1
+    # (a limit of the standard's formulas, derived here).  The first correction is a phase of order
     # omega R C ~ 1e-6 rad at T = 1e12 s, so |Y12| is within 1e-9 of U (second
     # order) and the phase under 1e-5 rad.  (The time shift in hours tends to a
     # constant, the wall's mean delay, not to zero: only the phase vanishes.)
@@ -165,7 +174,10 @@ def test_long_period_tends_to_steady_state(name):
 
 
 def test_thin_layer_is_pure_resistance():
-    # xi = d / delta ~ 7e-4: Z = [[1, -R], [0, 1]] up to terms of order xi^2 ~ 4e-7.
+    # ISO 13786:2017 sec. 6 (from memory): for xi = d/delta -> 0 the layer matrix tends to the
+    # matrix of a pure resistance R = d/lam, [[1, -R], [0, 1]], the form the standard gives
+    # surface resistances and air layers (a limit of its formulas, derived here).
+    # xi = d / delta ~ 7e-4: equal up to terms of order xi^2 ~ 4e-7.
     d = 1e-4
     z = layer_matrix(d, *CONCRETE, DAY)
     np.testing.assert_allclose(z[0, 1], -d / CONCRETE[0], rtol=1e-6)
@@ -174,7 +186,10 @@ def test_thin_layer_is_pure_resistance():
 
 
 def test_purely_resistive_wall():
-    # No heat capacity: Y11 = Y22 = Y12 = U, no time shift, no areal heat capacity.
+    # ISO 13786:2017 sec. 6 (from memory): resistance-only elements have matrices
+    # [[1, -R], [0, 1]], whose product is [[1, -R_T], [0, 1]]; hence Y12 = -1/Z12 = 1/R_T = U
+    # and Y11 = -Z11/Z12 = 1/R_T (real: time shifts 0), kappa = (T/2pi)|(Z11 - 1)/Z12| = 0
+    # (derived here).
     wall = [PeriodicElement.resistive(0.18, "air layer"), PeriodicElement.resistive(0.5)]
     dc = dynamic_characteristics(wall, R_SI, R_SE, DAY)
     assert dc.time_shift == 0.0

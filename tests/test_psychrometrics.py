@@ -2,13 +2,15 @@
 
 Two independent oracles:
 
-- the ISO 13788 (Annex E) Magnus-type expressions, evaluated by hand for three
-  check points (COMPUTED from the published formula, not printed numbers);
+- the ISO 13788:2012 saturation-pressure expressions (Magnus type; the
+  constants 610.5, 17.269/237.3 over water and 21.875/265.5 over ice, and their
+  place in Annex E, are FROM MEMORY), evaluated by hand for four check points
+  (COMPUTED from that expression, not numbers printed in the standard);
 - psychrolib 2.5 (ASHRAE Handbook of Fundamentals 2017, ch. 1, eqs. 5-6,
   Hyland-Wexler), a different formula family.
 
-Tolerance 0.05 K against psychrolib: at the three check points the two
-families differ by at most 0.003 K, and for air at 0-35 degC and 30-100 % RH
+Tolerance 0.05 K against psychrolib: at the four check points the two
+families differ by at most 0.0035 K, and for air at 0-35 degC and 30-100 % RH
 by about 0.02 K, so 0.05 K leaves room for neither formula's rounding to
 matter while still catching a wrong branch (water instead of ice below 0 degC
 moves the 0 degC/80 % frost point by about 0.35 K).
@@ -19,15 +21,17 @@ from __future__ import annotations
 import math
 
 import numpy as np
+import psychrolib
 import pytest
 
 from layers.psychrometrics import dew_point, saturation_vapour_pressure, vapour_pressure
 
-psychrolib = pytest.importorskip("psychrolib")
+# psychrolib is a declared test extra (pyproject.toml): imported plainly so that a
+# missing extra fails the run instead of skipping this module.
 psychrolib.SetUnitSystem(psychrolib.SI)
 
-# (temperature degC, RH fraction, ISO 13788 dew point degC [COMPUTED from the
-# standard's expression, REFERENCES.md section 7]).
+# (temperature degC, RH fraction, dew point degC COMPUTED by hand from the ISO 13788:2012
+# saturation-pressure expression, itself FROM MEMORY; not values printed in the standard).
 ISO13788_CHECKS = [
     (20.0, 0.50, 9.269),
     (20.0, 0.60, 12.004),
@@ -38,8 +42,8 @@ ISO13788_CHECKS = [
 
 @pytest.mark.parametrize(("temperature", "rh", "expected"), ISO13788_CHECKS)
 def test_dew_point_matches_iso13788_expression(temperature, rh, expected):
-    # The expected values are printed to 3 decimals: 1e-3 K is their rounding.
-    assert float(dew_point(temperature, rh)) == pytest.approx(expected, abs=1e-3)
+    # The expected values are rounded to 3 decimals: half a unit of the 3rd decimal.
+    assert float(dew_point(temperature, rh)) == pytest.approx(expected, abs=5e-4)
 
 
 @pytest.mark.parametrize(("temperature", "rh", "_"), ISO13788_CHECKS)
@@ -58,8 +62,8 @@ def test_dew_point_matches_psychrolib_over_a_grid():
 
 
 def test_saturation_pressure_against_iso13788_and_psychrolib():
-    # psat(20 degC): ISO 13788 610.5 exp(17.269*20/257.3) = 2337.0 Pa
-    # [COMPUTED]; psychrolib gives 2338.8 Pa. 0.1 % separates the two families.
+    # psat(20 degC): ISO 13788:2012 expression (FROM MEMORY) 610.5 exp(17.269*20/257.3)
+    # = 2337.0 Pa [COMPUTED]; psychrolib gives 2338.8 Pa. 0.1 % separates the two families.
     assert float(saturation_vapour_pressure(20.0)) == pytest.approx(
         610.5 * math.exp(17.269 * 20.0 / 257.3), rel=1e-12
     )
@@ -73,7 +77,7 @@ def test_saturation_pressure_against_iso13788_and_psychrolib():
 
 
 def test_saturation_pressure_uses_ice_below_zero():
-    # Over ice: 610.5 exp(21.875 theta / (265.5 + theta)) [ISO 13788].
+    # Over ice: 610.5 exp(21.875 theta / (265.5 + theta)) [ISO 13788:2012, FROM MEMORY].
     expected = 610.5 * math.exp(21.875 * -10.0 / 255.5)
     assert float(saturation_vapour_pressure(-10.0)) == pytest.approx(expected, rel=1e-12)
     # Continuous at 0 degC (both branches give 610.5 Pa).

@@ -190,7 +190,10 @@ scheme = "tr-bdf2"
 
 
 def slab_centre_exact(fo: float, terms: int = 200) -> float:
-    """Centre of a slab -L<x<L, initially 1, faces at 0 (Carslaw & Jaeger 1959, sec. 3.3, eq. 3.3(7))."""
+    """Centre of a slab -L<x<L, initially 1, faces at 0 (Carslaw & Jaeger 1959, sec. 3.3; series from memory).
+
+    theta* = sum_n 4 (-1)^n / ((2n+1) pi) exp(-(2n+1)^2 pi^2 Fo / 4) at x = 0.
+    """
     n = np.arange(terms)
     return float(np.sum(4 * (-1) ** n / ((2 * n + 1) * np.pi) * np.exp(-((2 * n + 1) ** 2) * np.pi**2 * fo / 4)))
 
@@ -198,7 +201,10 @@ def slab_centre_exact(fo: float, terms: int = 200) -> float:
 def test_slab_faces_stepped_fourier_series(run_text):
     """Slab with both faces stepped to 0: centre temperature against the Fourier series.
 
-    Reference: Carslaw & Jaeger, Conduction of Heat in Solids (1959), sec. 3.3.
+    Reference: Carslaw & Jaeger, Conduction of Heat in Solids (1959), sec. 3.3
+    (the series is from memory; the same series is in Incropera et al., 6th ed.,
+    sec. 5.5, also from memory).  The expected values are computed from the
+    series (200 terms), not printed in the source.
     Half-thickness L = 0.1 m, alpha = 1e-6 m2/s, so Fo = alpha t / L^2 = 1e-4 t.
     With 100 uniform cells (dx = 2 mm) and a 10 s TR-BDF2 step the second-order
     errors are about (pi dx / 4L)^2 / 12 ~ 2e-5 of the first mode in space and
@@ -213,16 +219,19 @@ def test_slab_faces_stepped_fourier_series(run_text):
         i = int(np.argmin(np.abs(seconds * 1e-4 - fo)))
         assert abs(seconds[i] * 1e-4 - fo) < 1e-12
         assert centre[i] == pytest.approx(slab_centre_exact(fo), abs=5e-4)
-    # published rounded values of the same series (computed: 0.94931, 0.77231, 0.37078)
-    assert slab_centre_exact(0.2) == pytest.approx(0.77231, abs=1e-5)
+    # check values computed independently from the same series (not printed in the
+    # source), to 5 decimals: they guard the series code above; half a unit of the 5th decimal
+    for fo, computed in ((0.1, 0.94931), (0.2, 0.77231), (0.5, 0.37078)):
+        assert slab_centre_exact(fo) == pytest.approx(computed, abs=5e-6)
 
 
 def test_thick_slab_periodic_surface(run_text):
     """Periodic surface temperature on a thick slab: amplitude e^(-x/d), lag x/(w d), d = sqrt(2 alpha / w).
 
-    Reference: Carslaw & Jaeger (1959), sec. 2.6, eq. (6); the same delta is the
-    ISO 13786 periodic penetration depth.  Concrete (alpha = 8.33e-7 m2/s) 1 m
-    thick: the wave reflected from the adiabatic back face is damped by
+    Reference: Carslaw & Jaeger (1959), sec. 2.6 (formula from memory); the same
+    delta is the ISO 13786 periodic penetration depth.  Expected amplitudes and
+    lags are computed here from the formula, not printed in the source.
+    Concrete (alpha = 8.33e-7 m2/s) 1 m thick: the wave reflected from the adiabatic back face is damped by
     e^(-2 * 6.6) ~ 2e-6, negligible.  2 mm cells and a 5 min Crank-Nicolson
     step give second-order errors below 1e-3 in amplitude ratio (dx/delta ~
     0.013) and below 0.01 h in lag; tolerances 2e-3 and 0.02 h.
@@ -275,6 +284,77 @@ def test_thick_slab_periodic_surface(run_text):
         assert lag_h == pytest.approx(x / (omega * delta) / 3600.0, abs=0.02)
 
 
+DAY = 86400.0  # the daily cycle, ISO 13786 period T [s]
+
+
+def iso13786_layer_matrix(d: float, lam: float, rho: float, c: float, period: float = DAY) -> np.ndarray:
+    """Heat transfer matrix of one homogeneous layer, ISO 13786:2017 sec. 6 (formulas from memory).
+
+    delta = sqrt(lam T / (pi rho c)) (periodic penetration depth), xi = d / delta:
+    Z11 = Z22 = cosh xi cos xi + i sinh xi sin xi,
+    Z12 = -(delta / 2 lam) [sinh xi cos xi + cosh xi sin xi + i (cosh xi sin xi - sinh xi cos xi)],
+    Z21 = -(lam / delta) [sinh xi cos xi - cosh xi sin xi + i (sinh xi cos xi + cosh xi sin xi)].
+    Written out independently of layers.periodic; test_iso13786_formulas_solve_the_heat_equation
+    checks them against the general periodic solution of the heat equation.
+    """
+    delta = math.sqrt(lam * period / (math.pi * rho * c))
+    xi = d / delta
+    ch, sh, co, si = math.cosh(xi), math.sinh(xi), math.cos(xi), math.sin(xi)
+    z11 = complex(ch * co, sh * si)
+    z12 = -delta / (2 * lam) * complex(sh * co + ch * si, ch * si - sh * co)
+    z21 = -lam / delta * complex(sh * co - ch * si, sh * co + ch * si)
+    return np.array([[z11, z12], [z21, z11]])
+
+
+def iso13786_resistance_matrix(r: float) -> np.ndarray:
+    """Matrix of a surface resistance (or air layer) R, ISO 13786:2017 sec. 6: [[1, -R], [0, 1]] (from memory)."""
+    return np.array([[1.0, -r], [0.0, 1.0]], dtype=complex)
+
+
+def iso13786_wall(layers, r_si: float, r_se: float, period: float = DAY) -> dict:
+    """Z = Z_se Z_N ... Z_1 Z_si for layers (d, lam, rho, c) listed inside first (ISO 13786:2017 sec. 6).
+
+    Returns U = 1 / (R_si + sum d/lam + R_se) (ISO 6946:2017 sec. 6.7.1), Y12 = -1/Z12 and the
+    time shift dt12 = (T / 2 pi) arg(Y12) [h] (ISO 13786:2017 sec. 6, from memory; negative for
+    a delay).  arg is the principal value in (-pi, pi], which is the delay itself only while the
+    delay is under half a period; both walls checked here stay below 12 h, so no 24 h is added.
+    """
+    z = iso13786_resistance_matrix(r_si)
+    for d, lam, rho, c in layers:
+        z = iso13786_layer_matrix(d, lam, rho, c, period) @ z
+    z = iso13786_resistance_matrix(r_se) @ z
+    y12 = -1.0 / z[0, 1]
+    u = 1.0 / (r_si + sum(d / lam for d, lam, _, _ in layers) + r_se)
+    shift_h = period / (2 * math.pi) * float(np.angle(y12)) / 3600.0
+    return {"Z": z, "U": u, "Y12": y12, "shift_h": shift_h}
+
+
+CONCRETE = [(0.20, 2.0, 2400.0, 1000.0)]  # d [m], lambda, rho, c: ISO 10456 concrete 2400 kg/m3
+MULTILAYER = [  # inside first: gypsum plaster, concrete, EPS, render
+    (0.015, 0.40, 1000.0, 1000.0),
+    (0.20, 2.0, 2400.0, 1000.0),
+    (0.10, 0.035, 20.0, 1450.0),
+    (0.010, 0.8, 1600.0, 1000.0),
+]
+
+
+@pytest.mark.parametrize("layer", [CONCRETE[0], *MULTILAYER, (1.0, 2.0, 2400.0, 1000.0)])
+def test_iso13786_formulas_solve_the_heat_equation(layer):
+    """The recalled ISO 13786 layer matrix equals the general periodic solution of the heat equation.
+
+    For theta ~ exp(i w t) the heat equation becomes theta'' = k^2 theta, k = sqrt(i w rho c / lam)
+    (the periodic solution of Carslaw & Jaeger 1959, sec. 2.6, from memory); with
+    q = -lam theta' its general solution carries [theta; q] across a layer by
+    [[cosh kd, -sinh kd / (lam k)], [-lam k sinh kd, cosh kd]], derived here.
+    With kd = (1 + i) xi the two forms agree identically, so only round-off separates them:
+    tolerance 1e-12 relative (a few operations on terms of the size of each entry; xi <= 6.6 here).
+    """
+    d, lam, rho, c = layer
+    k = np.sqrt(1j * (2 * np.pi / DAY) * rho * c / lam)
+    general = np.array([[np.cosh(k * d), -np.sinh(k * d) / (lam * k)], [-lam * k * np.sinh(k * d), np.cosh(k * d)]])
+    np.testing.assert_allclose(iso13786_layer_matrix(*layer), general, rtol=1e-12)
+
+
 CONCRETE_WALL = """
 [materials.conc]
 conductivity = "2.0 W/(m*K)"
@@ -307,42 +387,143 @@ scheme = "{scheme}"
 """
 
 
-def _y12(ds) -> complex:
-    """Inside heat flow into the room per kelvin of outside air swing (complex)."""
+def _one_day(ds, day: int = 0) -> np.ndarray:
+    """Mask of the output times in day ``day`` (0 = the first) of a run, last sample excluded."""
     sec = (ds.time.values - ds.time.values[0]) / np.timedelta64(1, "s")
-    keep = sec < 86400.0
-    q_room = harmonic(-ds["heat_flow_inside"].values[keep], sec[keep], 86400.0)
-    t_out = harmonic(ds["air_temperature_outside"].values[keep], sec[keep], 86400.0)
+    return (sec >= day * DAY) & (sec < (day + 1) * DAY)
+
+
+def _y12(ds, day: int = 0) -> complex:
+    """Inside heat flow into the room per kelvin of outside air swing (complex), over one day."""
+    sec = (ds.time.values - ds.time.values[0]) / np.timedelta64(1, "s")
+    keep = _one_day(ds, day)
+    q_room = harmonic(-ds["heat_flow_inside"].values[keep], sec[keep], DAY)
+    t_out = harmonic(ds["air_temperature_outside"].values[keep], sec[keep], DAY)
     return q_room / t_out
+
+
+def _shift_h(y: complex) -> float:
+    """Time shift (T / 2 pi) arg(Y) [h], negative for a delay (ISO 13786 convention)."""
+    return DAY / (2 * np.pi) * float(np.angle(y)) / 3600.0
 
 
 def test_concrete_wall_matches_iso13786(run_text):
     """Inside heat flow under a sinusoidal outside air temperature against ISO 13786.
 
-    Reference: the ISO 13786:2017 sec. 6 layer transfer-matrix solution, here
-    computed independently in the test (cosh/sinh form).  For 0.20 m of concrete
-    (2.0, 2400, 1000) with Rsi/Rse 0.13/0.04 it gives |Y12| = 1.9531 W/m2K and a
-    time shift of -5.475 h (computed values, not a published worked example).
-    With 5 mm graded cells and a 5 min CN step the simulation's errors are
-    second order, about 0.1 % in amplitude; tolerances 0.5 % and 0.02 h.
+    Reference: the ISO 13786:2017 sec. 6 transfer-matrix product written out in
+    this file (iso13786_wall).  For 0.20 m of concrete (2.0, 2400, 1000) with
+    Rsi/Rse 0.13/0.04 it gives U = 3.7037 W/m2K, |Y12| = 1.9531 W/m2K and a
+    time shift of -5.475 h, a 5.475 h delay (computed values, not a published
+    worked example; checked to half a unit in their last printed digit).
+    The outside air swings 10 K about 0 degC with the inside at 20 degC, so the
+    daily mean inside heat flow is U * 20 K: the mean of a discrete periodic
+    state is the steady state of the mean drive, which the finite volumes give
+    exactly on any mesh.  Only the periodic start-up residual enters: the start
+    stops when a cycle changes no cell by more than 1e-3 K, and the slowest mode
+    decays with about C (R_in || R_out) = 480 kJ/m2K * 0.06 m2K/W ~ 0.33 d, so
+    the residual is ~1e-3 K * e^-3 ~ 5e-5 K, through the 0.18 m2K/W inside path
+    ~3e-4 W/m2, 4e-6 of the 74 W/m2 mean: tolerance 1e-5 relative.
+    With 5 mm graded cells and a 5 min CN step the simulation's harmonic errors
+    are second order, about 0.1 % in amplitude; tolerances 0.5 % and 0.02 h.
     """
-    ds = run_text(CONCRETE_WALL.format(max_cell="5 mm", step="5 min", scheme="crank-nicolson"))
+    text = CONCRETE_WALL.format(max_cell="5 mm", step="5 min", scheme="crank-nicolson")
+    ds = run_text(text.replace('mean = "20 degC"', 'mean = "0 degC"'))
+    iso = iso13786_wall(CONCRETE, 0.13, 0.04)
+    assert iso["U"] == pytest.approx(3.7037, abs=5e-5)
+    assert abs(iso["Y12"]) == pytest.approx(1.9531, abs=5e-5)
+    assert iso["shift_h"] == pytest.approx(-5.475, abs=5e-4)
     y = _y12(ds)
-    # independent transfer matrix (general solution of the heat equation)
-    omega = 2 * np.pi / 86400.0
-    lam, rc, d = 2.0, 2400.0 * 1000.0, 0.20
-    k = np.sqrt(1j * omega * rc / lam)
-    z = np.array([[np.cosh(k * d), -np.sinh(k * d) / (lam * k)], [-lam * k * np.sinh(k * d), np.cosh(k * d)]])
-    zs = lambda r: np.array([[1, -r], [0, 1]])  # noqa: E731
-    zt = zs(0.04) @ z @ zs(0.13)
-    y12 = -1 / zt[0, 1]
-    assert abs(y12) == pytest.approx(1.9531, abs=1e-4)
-    assert 86400 / (2 * np.pi) * np.angle(y12) / 3600 - 24 == pytest.approx(-5.475, abs=1e-3) or (
-        86400 / (2 * np.pi) * np.angle(y12) / 3600 == pytest.approx(-5.475, abs=1e-3)
-    )
-    assert abs(y) == pytest.approx(abs(y12), rel=5e-3)
-    lag_sim = -np.angle(y) / omega / 3600.0
-    assert lag_sim == pytest.approx(5.475, abs=0.02)
+    assert abs(y) == pytest.approx(abs(iso["Y12"]), rel=5e-3)
+    assert _shift_h(y) == pytest.approx(iso["shift_h"], abs=0.02)
+    mean_flow = float(np.mean(ds["heat_flow_inside"].values[_one_day(ds)]))
+    assert mean_flow == pytest.approx(iso["U"] * 20.0, rel=1e-5)
+
+
+MULTILAYER_WALL = """
+[materials.plaster-b]
+conductivity = "0.40 W/(m*K)"
+density = "1000 kg/m3"
+specific_heat = "1000 J/(kg*K)"
+[materials.concrete-b]
+conductivity = "2.0 W/(m*K)"
+density = "2400 kg/m3"
+specific_heat = "1000 J/(kg*K)"
+[materials.eps-b]
+conductivity = "0.035 W/(m*K)"
+density = "20 kg/m3"
+specific_heat = "1450 J/(kg*K)"
+[materials.render-b]
+conductivity = "0.8 W/(m*K)"
+density = "1600 kg/m3"
+specific_heat = "1000 J/(kg*K)"
+[[layers]]
+material = "plaster-b"
+thickness = "15 mm"
+[[layers]]
+material = "concrete-b"
+thickness = "200 mm"
+[[layers]]
+material = "eps-b"
+thickness = "100 mm"
+[[layers]]
+material = "render-b"
+thickness = "10 mm"
+[mesh]
+max_cell = "5 mm"
+[series.cycles.out]
+mean = "0 degC"
+amplitude = "10 K"
+peak_hour = 15
+[inside]
+type = "film"
+air_temperature = "20 degC"
+surface_resistance = "0.13 m2*K/W"
+[outside]
+type = "film"
+air_temperature = "series:out"
+surface_resistance = "0.04 m2*K/W"
+[time]
+start = "2026-07-01T00:00"
+duration = "5 d"
+step = "5 min"
+output_every = "5 min"
+initial = "periodic"
+scheme = "crank-nicolson"
+"""
+
+
+def test_multilayer_wall_matches_iso13786(run_text):
+    """Plaster, concrete, EPS and render under a sinusoidal outside air temperature against ISO 13786.
+
+    Reference: the ISO 13786:2017 sec. 6 transfer-matrix product written out in
+    this file (iso13786_wall), layers inside first: gypsum plaster 15 mm
+    (0.40, 1000, 1000), concrete 200 mm (2.0, 2400, 1000), EPS 100 mm
+    (0.035, 20, 1450), render 10 mm (0.8, 1600, 1000), Rsi/Rse 0.13/0.04.  It
+    gives U = 0.31475 W/m2K, |Y12| = 0.04401 W/m2K and a time shift of
+    -8.214 h, an 8.214 h delay (computed with the ISO 13786 formulas, not a
+    published worked example; checked to half a unit in their last printed digit).
+    The periodic start stops when a cycle changes no cell by more than 1e-3 K,
+    and the slowest free mode of this wall decays with a time constant of about
+    C_concrete (R_in || R_out) = 480 kJ/m2K * 0.20 m2K/W ~ 1.1 d, so the run goes
+    5 days and only the last is analysed: the residual left by the start
+    (per-cycle decay e^(-1/1.1) ~ 0.4), ~1e-3 K * 0.4/(1 - 0.4) ~ 7e-4 K, is then down to ~7e-4 K * e^(-4/1.1) ~ 2e-5 K.
+    The daily mean inside heat flow is U * 20 K, exact on any mesh for the mean
+    of a periodic state; the residual, through the ~0.2 m2K/W inside path, is
+    ~1e-4 W/m2, 2e-5 of the 6.29 W/m2 mean: tolerance 1e-4 relative (and
+    ~2e-4 of the 0.44 W/m2 flow amplitude).  5 mm graded cells (dx/delta <= 0.05
+    in every layer) and a 5 min CN step give second-order errors of about 0.1 % in
+    amplitude and below 0.01 h in shift; tolerances 0.5 % and 0.02 h.
+    """
+    ds = run_text(MULTILAYER_WALL)
+    iso = iso13786_wall(MULTILAYER, 0.13, 0.04)
+    assert iso["U"] == pytest.approx(0.31475, abs=5e-6)
+    assert abs(iso["Y12"]) == pytest.approx(0.04401, abs=5e-6)
+    assert iso["shift_h"] == pytest.approx(-8.214, abs=5e-4)
+    y = _y12(ds, day=4)
+    assert abs(y) == pytest.approx(abs(iso["Y12"]), rel=5e-3)
+    assert _shift_h(y) == pytest.approx(iso["shift_h"], abs=0.02)
+    mean_flow = float(np.mean(ds["heat_flow_inside"].values[_one_day(ds, day=4)]))
+    assert mean_flow == pytest.approx(iso["U"] * 20.0, rel=1e-4)
 
 
 def _observed_order(errors: list[float], ratio: float = 2.0) -> np.ndarray:
@@ -352,12 +533,15 @@ def _observed_order(errors: list[float], ratio: float = 2.0) -> np.ndarray:
 
 @pytest.mark.parametrize("scheme,order", [("backward-euler", 1.0), ("crank-nicolson", 2.0), ("tr-bdf2", 2.0)])
 def test_time_order_of_convergence(run_text, scheme, order):
-    """Observed order in time, measured against the ISO 13786 exact periodic response.
+    """Observed order in time, measured against a fine-step reference run (not a closed form).
 
-    On one fixed mesh the reference is the same run with a 1-minute TR-BDF2 step,
-    which removes the spatial error from the comparison.  Steps of 2, 1 and 0.5 h
-    are in the asymptotic range (omega h <= 0.52); the observed order must lie
-    within 0.25 of the formal order (1 for backward Euler, 2 for CN and TR-BDF2).
+    On one fixed mesh (the concrete wall, graded cells of at most 20 mm) the reference is the
+    same case run with a 1-minute TR-BDF2 step; comparing with it removes the
+    spatial error, and its own time error (omega h ~ 4e-3, second order) is far
+    below the errors measured.  The error is that of the complex Y12 over the
+    first day.  Steps of 2, 1 and 0.5 h are in the asymptotic range
+    (omega h <= 0.52); the observed order must lie within 0.25 of the formal
+    order (1 for backward Euler, 2 for CN and TR-BDF2).
     """
     ref = _y12(run_text(CONCRETE_WALL.format(max_cell="20 mm", step="1 min", scheme="tr-bdf2")))
     errors = [
@@ -371,20 +555,21 @@ def test_time_order_of_convergence(run_text, scheme, order):
 def test_space_order_of_convergence_graded(run_text):
     """Observed order in space on graded meshes: about 2.
 
-    The layer is cut into N = 12, 24, 48 cells graded geometrically toward both
-    faces with growth 2^(1/2), 2^(1/4), 2^(1/8): each mesh halves every cell of
-    the previous one, so the sequence is a true refinement of one strongly
-    graded mesh.  The error of the complex Y12 is measured against the exact
-    ISO 13786 transfer-matrix value.  A 1-minute CN step keeps the time error
-    (~(omega h)^2/12 ~ 2e-6 relative) two orders below the finest spatial
-    error.  Required: observed order within 1.8-2.2 (second-order finite volumes).
+    The 0.20 m concrete layer is cut into N = 12, 24, 48 cells with growth
+    2^(1/2), 2^(1/4), 2^(1/8) and a 10 m cell cap, so the cell size grows
+    geometrically from each face over N/3 cells to 4 times the face cell and
+    is uniform over the middle N/3 cells (largest/smallest = 4 on every mesh).
+    Each mesh samples the same grading pattern at twice the resolution, so
+    every cell shrinks by a factor of about 2 (face cells 6.56, 3.14, 1.54 mm;
+    core cells 26.2, 12.6, 6.1 mm); the meshes are not nested (the faces of one
+    are not all faces of the next), but they are one mesh family refined
+    consistently, which is what an observed order needs.  The error of the
+    complex Y12 is measured against the ISO 13786 transfer-matrix value written out in this file.  A 1-minute CN
+    step keeps the time error (~(omega h)^2/12 ~ 2e-6 relative) two orders
+    below the finest spatial error.  Required: observed order within 1.8-2.2
+    (second-order finite volumes).
     """
-    omega = 2 * np.pi / 86400.0
-    lam, rc, d = 2.0, 2.4e6, 0.20
-    k = np.sqrt(1j * omega * rc / lam)
-    z = np.array([[np.cosh(k * d), -np.sinh(k * d) / (lam * k)], [-lam * k * np.sinh(k * d), np.cosh(k * d)]])
-    zs = lambda r: np.array([[1, -r], [0, 1]])  # noqa: E731
-    exact = -1 / (zs(0.04) @ z @ zs(0.13))[0, 1]
+    exact = iso13786_wall(CONCRETE, 0.13, 0.04)["Y12"]
     errors = []
     for cells, growth in ((12, 2**0.5), (24, 2**0.25), (48, 2**0.125)):
         text = CONCRETE_WALL.format(max_cell="10 m", step="1 min", scheme="crank-nicolson")
@@ -396,7 +581,7 @@ def test_space_order_of_convergence_graded(run_text):
 
 
 def cylinder_centre_exact(fo: float, terms: int = 60) -> float:
-    """Solid cylinder, surface stepped to 0: centre value (Carslaw & Jaeger 1959, sec. 7.4, eq. (4))."""
+    """Solid cylinder, surface stepped to 0: centre value (Carslaw & Jaeger 1959, sec. 7.4; series from memory)."""
     lam = jn_zeros(0, terms)
     return float(np.sum(2 / (lam * j1(lam)) * j0(0 * lam) * np.exp(-(lam**2) * fo)))
 
@@ -423,8 +608,9 @@ def test_energy_balance_closes(run_text, scheme):
 def test_solid_cylinder_surface_stepped_fourier_bessel(run_text):
     """Cylinder with its surface stepped to 0: centre against the Fourier-Bessel series.
 
-    Reference: Carslaw & Jaeger (1959), sec. 7.4: theta* = sum 2 J0(l r/R) /
-    (l J1(l)) exp(-l^2 Fo), J0(l) = 0.  The solid cylinder (R = 0.1 m,
+    Reference: Carslaw & Jaeger (1959), sec. 7.4 (series from memory): theta* =
+    sum 2 J0(l r/R) / (l J1(l)) exp(-l^2 Fo), J0(l) = 0; expected values computed
+    from the series (60 terms), not printed in the source.  The solid cylinder (R = 0.1 m,
     alpha = 1e-6 m2/s) is modelled with an adiabatic bore of radius R/1000,
     whose effect is of order (1e-3)^2.  The cell next to the bore sits at
     r ~ 0.6 mm, where the exact profile differs from the centre value by
@@ -461,10 +647,11 @@ def test_solid_cylinder_surface_stepped_fourier_bessel(run_text):
         """
     )
     sec = (ds.time.values - ds.time.values[0]) / np.timedelta64(1, "s")
-    for fo, published in ((0.1, 0.84836), (0.2, 0.50149), (0.5, 0.08889)):
+    for fo, computed in ((0.1, 0.84836), (0.2, 0.50149), (0.5, 0.08889)):
         i = int(np.argmin(np.abs(sec * 1e-4 - fo)))
-        # the published rounded values are computed from the same series
-        assert cylinder_centre_exact(fo) == pytest.approx(published, abs=1e-5)
+        # check values computed independently from the same series (not printed in the
+        # source), to 5 decimals: they guard the series code; half a unit of the 5th decimal
+        assert cylinder_centre_exact(fo) == pytest.approx(computed, abs=5e-6)
         assert ds.temperature.values[i, 0] / 100.0 == pytest.approx(cylinder_centre_exact(fo), abs=1e-3)
 
 
