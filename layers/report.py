@@ -7,12 +7,13 @@ from __future__ import annotations
 
 import argparse
 import math
+from pathlib import Path
 
 import numpy as np
 import xarray as xr
 
 from layers import CAUTION
-from layers.case import Case, load_case
+from layers.case import BoundarySpec, Case, load_case
 from layers.errors import CaseError
 from layers.mesh import Mesh
 
@@ -321,16 +322,49 @@ def periodic_elements(case: Case):
 
 
 def surface_resistances(case: Case) -> tuple[float, float]:
-    """Rsi and Rse [m2 K W-1] of a planar case for ISO 13786 (auto films: ISO 6946 conventional values)."""
+    """Rsi and Rse [m2 K W-1] of a planar case for ISO 13786.
+
+    A fixed film gives its own resistance. An ``"auto"`` film, whose
+    coefficient varies in a run, gets the ISO 6946 expression at the case's
+    emissivity: inside by its heat-flow direction, outside at its constant
+    wind speed or, for a wind series, the standard's 4 m/s (see
+    :func:`auto_film_note`).
+    """
+    from layers.radiation import iso6946_external_surface_resistance, iso6946_surface_resistance
+
     out = []
-    for spec, default in ((case.inside, 0.13), (case.outside, 0.04)):
-        if spec.kind == "film":
-            out.append(spec.surface_resistance if spec.surface_resistance is not None else default)
+    for spec in (case.inside, case.outside):
+        if spec.kind == "film" and spec.auto_film:
+            if spec.side == "inside":
+                out.append(float(iso6946_surface_resistance(spec.heat_flow_direction, spec.emissivity)))
+            else:
+                out.append(float(iso6946_external_surface_resistance(_design_wind(case, spec), spec.emissivity)))
+        elif spec.kind == "film":
+            out.append(spec.surface_resistance)
         elif spec.kind == "temperature":
             out.append(0.0)
         else:
             raise CaseError(case.path, f"{spec.side}.type", f"ISO 13786 needs a film or temperature boundary, not {spec.kind!r}")
     return out[0], out[1]
+
+
+def _design_wind(case: Case, spec: BoundarySpec) -> float:
+    """A constant wind speed of the case [m s-1], else ISO 6946's design 4 m/s."""
+    wind = spec.wind_speed
+    return float(wind.value) if wind is not None and wind.value is not None else 4.0
+
+
+def auto_film_note(case: Case) -> str | None:
+    """How ``layers periodic`` treats ``"auto"`` films, or None without any."""
+    parts = []
+    for spec in (case.inside, case.outside):
+        if spec.kind == "film" and spec.auto_film:
+            how = (f"heat flow {spec.heat_flow_direction}" if spec.side == "inside"
+                   else f"wind {_design_wind(case, spec):g} m/s")
+            parts.append(f"{spec.side}: ISO 6946 expression, emissivity {spec.emissivity:g}, {how}")
+        if spec.kind == "film" and (spec.solar_irradiance is not None or spec.sky_temperature is not None):
+            parts.append(f"{spec.side}: sun and sky do not enter the dynamic characteristics")
+    return "  (auto films as fixed resistances: " + "; ".join(parts) + ")" if parts else None
 
 
 def periodic_report(case: Case, period: float):
@@ -342,7 +376,7 @@ def periodic_report(case: Case, period: float):
     r_si, r_se = surface_resistances(case)
     dc = dynamic_characteristics(periodic_elements(case), r_si, r_se, period)
     lines = [
-        f"ISO 13786 dynamic thermal characteristics, period {_fmt_duration(period)}  (Rsi {r_si:g}, Rse {r_se:g} m2K/W)",
+        f"ISO 13786 dynamic thermal characteristics, period {_fmt_duration(period)}  (Rsi {r_si:.3g}, Rse {r_se:.3g} m2K/W)",
         f"  thermal transmittance U            {dc.thermal_transmittance:10.4g} W/(m2*K)",
         f"  periodic transmittance |Y12|       {abs(dc.periodic_transmittance):10.4g} W/(m2*K)   time shift {dc.time_shift:7.2f} h",
         f"  decrement factor f                 {dc.decrement_factor:10.4g}",
@@ -351,6 +385,7 @@ def periodic_report(case: Case, period: float):
         f"  areal heat capacity inside  k1     {dc.areal_heat_capacity_inside / 1000:10.4g} kJ/(m2*K)",
         f"  areal heat capacity outside k2     {dc.areal_heat_capacity_outside / 1000:10.4g} kJ/(m2*K)",
         "  (time shifts follow ISO 13786: negative is a delay)",
+        *([note] if (note := auto_film_note(case)) else []),
     ]
     return dc, "\n".join(lines)
 
@@ -360,6 +395,8 @@ def cmd_periodic(args: argparse.Namespace) -> int:
     from layers.cli import _write_output
     from layers.units import parse_quantity
 
+    if args.out and Path(args.out).exists():
+        raise CaseError(args.out, "-o", "exists already; layers never overwrites a file (choose another name)")
     case = load_case(args.case)
     period = parse_quantity(args.period, "duration", file="(command line)", key="--period")
     if period <= 0:

@@ -213,3 +213,26 @@ def test_a_closed_pipe_ends_quietly():
     err = proc.stderr.read().decode()
     assert proc.wait() == 141
     assert "internal error" not in err and "Traceback" not in err
+
+
+def test_periodic_refuses_an_existing_output_before_any_work(tmp_path, capsys):
+    out = tmp_path / "dc.nc"
+    out.write_bytes(b"precious")
+    wall = Path(__file__).resolve().parents[1] / "cases" / "masonry-wall-hot-week.toml"
+    assert main(["periodic", str(wall), "-o", str(out)]) == 2
+    captured = capsys.readouterr()
+    assert captured.out == "" and "exists already" in captured.err
+    assert out.read_bytes() == b"precious"
+
+
+def test_periodic_says_how_it_treats_auto_films(capsys):
+    """The year demo has an auto outside film with sun and sky: the ISO 13786
+    table states the fixed Rse it used and that sun and sky are left out.
+    Rse is the ISO 6946 expression 1/(4 + 4 v + eps hr0) at v = 4 m/s,
+    eps = 0.9, hr0 = 4.6 W/(m2 K) at 0 degC (ISO 6946:2017, annex on surface
+    resistances, from memory): 1/(20 + 4.14) = 0.0414 m2K/W."""
+    wall = Path(__file__).resolve().parents[1] / "cases" / "year-masonry-outside.toml"
+    assert main(["periodic", str(wall)]) == 0
+    out = capsys.readouterr().out
+    assert "auto films as fixed resistances" in out and "sun and sky" in out
+    assert "Rse 0.0414" in out

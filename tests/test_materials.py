@@ -26,7 +26,7 @@ from layers.materials import (
     search,
 )
 
-ht_insulation = pytest.importorskip("ht.insulation")
+import ht.insulation as ht_insulation  # noqa: E402  (test extra: fails loudly if missing)
 
 FILE = "case.toml"
 

@@ -502,7 +502,8 @@ def test_long_caution_keeps_its_own_strip(tmp_path):
 
 def test_sizing_of_a_real_size_run(write_case, tmp_path, capsys):
     """The Dataset `layers size` writes plots with its limits and recommendation."""
-    sizing = pytest.importorskip("layers.sizing")
+    from layers import sizing
+
     ds = sizing.size(load_case(write_case(SIZING_CASE, "sizing.toml")))
     fig = plots.plot_sizing(ds)
     assert_labels_have_units(fig)

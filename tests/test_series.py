@@ -401,7 +401,8 @@ def test_fill_gaps_fills_missing_rows(tmp_path):
 
 
 def _weather_dataset(n: int = 24):
-    xr = pytest.importorskip("xarray")
+    import xarray as xr
+
     t = utc("2026-07-01T00:00") + np.arange(n) * np.timedelta64(1, "h")
     ds = xr.Dataset(
         {
