@@ -638,9 +638,16 @@ def _parse_boundary(value: Any, side: str, geometry: str, ctx: _ForcingContext, 
                 raise t.error("jacket", f"unknown jacket {jacket!r}; use one of {', '.join(JACKET_EMISSIVITY)}")
             args["jacket"] = str(jacket)
         if not args.get("auto_film"):
-            for name in AUTO_ONLY_KEYS:
-                if t.has(name):
-                    raise t.error(name, "applies only with film_coefficient = \"auto\" (a fixed film coefficient already includes it)")
+            unused = [name for name in AUTO_ONLY_KEYS if t.has(name)]
+            if unused:
+                import warnings
+
+                warnings.warn(
+                    f"{file}: {side}: {', '.join(unused)} not used with a fixed film coefficient "
+                    "(it already includes convection and radiation); use film_coefficient = \"auto\" for them to matter",
+                    UserWarning,
+                    stacklevel=2,
+                )
     elif kind == "temperature":
         args["surface_temperature"] = forcing("surface_temperature", "temperature", required=True)
     elif kind == "flux":

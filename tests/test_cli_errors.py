@@ -236,3 +236,17 @@ def test_periodic_says_how_it_treats_auto_films(capsys):
     out = capsys.readouterr().out
     assert "auto films as fixed resistances" in out and "sun and sky" in out
     assert "Rse 0.0414" in out
+
+
+def test_auto_only_keys_with_a_fixed_film_warn_and_run(tmp_path, capsys):
+    """As in the contract's example case: emissivity and wind_speed beside a
+    fixed film coefficient are accepted, unused, and said to be unused."""
+    text = GOOD.replace(
+        'air_temperature = "series:t_out"',
+        'air_temperature = "series:t_out"\nfilm_coefficient = "7.7 W/(m2*K)"\nemissivity = 0.9\nwind_speed = "3 m/s"',
+    )
+    code, archive = _run(tmp_path, text)
+    err = capsys.readouterr().err
+    assert code == 0
+    assert err.count("\n") == 1 and "warning" in err and "emissivity, wind_speed not used" in err
+    assert len(list(archive.glob("*.nc"))) == 1
