@@ -85,7 +85,13 @@ def to_dataset(
         ),
     }
     names = {
-        "air_temperature_inside": ("degC", "inside air temperature", {"standard_name": "air_temperature"}),
+        # In the bore of a pipe or vessel the "air" is the process fluid (steam,
+        # oil, water): no CF standard name applies there.
+        "air_temperature_inside": (
+            ("degC", "inside air temperature", {"standard_name": "air_temperature"})
+            if case.geometry == "planar"
+            else ("degC", "temperature of the fluid in the bore, beyond its film", {})
+        ),
         "air_temperature_outside": ("degC", "outside air temperature", {"standard_name": "air_temperature"}),
         "sol_air_temperature_inside": ("degC", "inside sol-air temperature", {}),
         "sol_air_temperature_outside": ("degC", "outside sol-air temperature", {}),

@@ -87,37 +87,40 @@ def size(case: Case, progress: Callable[[int, int], None] | None = None) -> xr.D
     data: dict[str, tuple] = {}
     attrs: dict[str, object] = {}
     passes: dict[str, np.ndarray] = {}
-    steady_needed = any(v is not None for v in (s.max_surface_temperature, s.dew_point_margin, s.max_heat_loss))
-    if steady_needed or s.min_freeze_time is None:
-        st = steady_state(case, s.layer, thick)
-        ts = st.surface_temperature_outside
-        q = st.heat_flow
-        data["surface_temperature_outside"] = ("thickness", ts, {"units": "degC", "long_name": "outside surface temperature at steady design conditions"})
-        data["heat_flow"] = ("thickness", q, {"units": flow_units, "long_name": "steady heat flow from inside to outside at design conditions"})
-        data["surface_temperature_inside"] = ("thickness", st.surface_temperature_inside, {"units": "degC", "long_name": "inside surface temperature at steady design conditions"})
-        if s.max_surface_temperature is not None:
-            margin = s.max_surface_temperature - ts
-            passes["max_surface_temperature"] = margin >= 0
-            data["margin_max_surface_temperature"] = ("thickness", margin, {"units": "K", "long_name": "touch limit minus outside surface temperature"})
-            attrs["max_surface_temperature"] = s.max_surface_temperature
-        if s.dew_point_margin is not None:
-            from layers.psychrometrics import dew_point
-            from layers.steady import _value
+    # The steady block is always written (a freeze-only sizing too: contents
+    # held at their initial temperature), so every sizing file has the
+    # surface temperature and heat flow of each candidate.
+    st = steady_state(case, s.layer, thick)
+    if case.inside.kind == "contents":
+        attrs["steady_conditions"] = "contents held at their initial_temperature (the moment the flow stops)"
+    ts = st.surface_temperature_outside
+    q = st.heat_flow
+    data["surface_temperature_outside"] = ("thickness", ts, {"units": "degC", "long_name": "outside surface temperature at steady design conditions"})
+    data["heat_flow"] = ("thickness", q, {"units": flow_units, "long_name": "steady heat flow from inside to outside at design conditions"})
+    data["surface_temperature_inside"] = ("thickness", st.surface_temperature_inside, {"units": "degC", "long_name": "inside surface temperature at steady design conditions"})
+    if s.max_surface_temperature is not None:
+        margin = s.max_surface_temperature - ts
+        passes["max_surface_temperature"] = margin >= 0
+        data["margin_max_surface_temperature"] = ("thickness", margin, {"units": "K", "long_name": "touch limit minus outside surface temperature"})
+        attrs["max_surface_temperature"] = s.max_surface_temperature
+    if s.dew_point_margin is not None:
+        from layers.psychrometrics import dew_point
+        from layers.steady import _value
 
-            t_air = _value(case, case.outside.air_temperature)
-            rh = _value(case, case.outside.relative_humidity)
-            td = float(dew_point(t_air, rh))
-            margin = ts - (td + s.dew_point_margin)
-            passes["dew_point_margin"] = margin >= 0
-            data["margin_dew_point_margin"] = ("thickness", margin, {"units": "K", "long_name": "outside surface temperature minus (dew point + margin)"})
-            attrs["dew_point"] = td
-            attrs["dew_point_margin"] = s.dew_point_margin
-            attrs["dew_point_source"] = "ISO 13788:2012 saturation vapour pressure (over water, over ice below 0 degC)"
-        if s.max_heat_loss is not None:
-            margin = s.max_heat_loss - np.abs(q)
-            passes["max_heat_loss"] = margin >= 0
-            data["margin_max_heat_loss"] = ("thickness", margin, {"units": flow_units, "long_name": "heat-loss budget minus the magnitude of the heat flow"})
-            attrs["max_heat_loss"] = s.max_heat_loss
+        t_air = _value(case, case.outside.air_temperature)
+        rh = _value(case, case.outside.relative_humidity)
+        td = float(dew_point(t_air, rh))
+        margin = ts - (td + s.dew_point_margin)
+        passes["dew_point_margin"] = margin >= 0
+        data["margin_dew_point_margin"] = ("thickness", margin, {"units": "K", "long_name": "outside surface temperature minus (dew point + margin)"})
+        attrs["dew_point"] = td
+        attrs["dew_point_margin"] = s.dew_point_margin
+        attrs["dew_point_source"] = "ISO 13788:2012 saturation vapour pressure (over water, over ice below 0 degC)"
+    if s.max_heat_loss is not None:
+        margin = s.max_heat_loss - np.abs(q)
+        passes["max_heat_loss"] = margin >= 0
+        data["margin_max_heat_loss"] = ("thickness", margin, {"units": flow_units, "long_name": "heat-loss budget minus the magnitude of the heat flow"})
+        attrs["max_heat_loss"] = s.max_heat_loss
     if s.min_freeze_time is not None:
         if case.time.duration < s.min_freeze_time:
             raise CaseError(case.path, "time.duration", "must be at least sizing.min_freeze_time to test the freeze time")
@@ -137,6 +140,9 @@ def size(case: Case, progress: Callable[[int, int], None] | None = None) -> xr.D
         attrs["min_freeze_time_h"] = s.min_freeze_time / 3600.0
         attrs["max_ice_fraction"] = s.max_ice_fraction
         attrs["run_duration_h"] = case.time.duration / 3600.0
+        attrs["scheme"] = case.time.scheme
+        attrs["time_step"] = float(case.time.step)
+        attrs["time_step_units"] = "s"
     for name, ok in passes.items():
         data[f"passes_{name}"] = ("thickness", ok.astype(bool), {"long_name": f"candidate meets {name.replace('_', ' ')}"})
     all_ok = np.logical_and.reduce(list(passes.values())) if passes else np.zeros(thick.size, bool)

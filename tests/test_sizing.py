@@ -174,6 +174,19 @@ def test_freeze_sizing_picks_thinnest_passing(write_case):
     i = int(np.argmin(np.abs(ds.thickness.values - rec)))
     assert ft[i] >= 12.0 and ft[i - 1] < 12.0
     assert np.all(ds["time_to_freezing"].values < ft)
+    # Every sizing file carries the steady block; for contents it is the steady
+    # state with the water at its initial temperature, which is also the
+    # run's "steady" start: the heat flow of the 50 mm candidate equals the
+    # transient run's heat flow at t = 0 within 0.2 % (k(T) evaluated at cell
+    # centres in the run vs the exact Kirchhoff integral, as in
+    # test_steady_solver_agrees_with_finite_volumes_for_k_of_t).
+    from layers.simulate import simulate
+    from layers.sizing import with_thickness
+
+    assert {"surface_temperature_outside", "heat_flow"} <= set(ds.data_vars)
+    j = int(np.argmin(np.abs(ds.thickness.values - 0.05)))
+    run = simulate(with_thickness(case, case.sizing.layer, 0.05))
+    assert float(run["heat_flow_outside"][0]) == pytest.approx(float(ds["heat_flow"][j]), rel=2e-3)
 
 
 def test_vectorised_steady_many_candidates(write_case):
