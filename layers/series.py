@@ -405,7 +405,14 @@ def _read_csv(data: bytes, file: str, time: str, columns: list[str], clock: _Clo
     need = max([ti, *indices])
     rows: list[list[str]] = []
     lines: list[int] = []
+    width = len(header)
     for row in reader:
+        if len(row) > width and any(c.strip() for c in row[width:]) and not row[0].lstrip().startswith("#"):
+            raise SeriesError(
+                file,
+                f"row {reader.line_num}",
+                f"has {len(row)} fields but the header names {width} columns (a stray delimiter, or a shifted row?)",
+            )
         rows.append(row)
         lines.append(reader.line_num)
     if not all(len(row) > need and row[ti] and row[0][:1] != "#" for row in rows):

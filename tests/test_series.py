@@ -104,6 +104,23 @@ def test_duplicate_time(tmp_path):
     assert "duplicate" in err.reason and "row 4" in err.reason
 
 
+def test_row_with_more_fields_than_the_header(tmp_path):
+    """A stray delimiter shifts a row's values under the wrong columns: refused."""
+    rows = hourly(3)
+    text = "time,T_out\n" + f"{rows[0]},1.0\n{rows[1]},4.08,99\n{rows[2]},2.0\n"
+    path = write(tmp_path, text)
+    err = refused(path)
+    assert err.key == "row 3" and "3 fields" in err.reason and "2 columns" in err.reason
+
+
+def test_trailing_empty_cells_are_accepted(tmp_path):
+    """Spreadsheet exports often end rows with empty cells: harmless."""
+    rows = hourly(3)
+    path = write(tmp_path, "time,T_out\n" + "".join(f"{t},{k},,\n" for k, t in enumerate(rows)))
+    series = read_series(path, [T_OUT])
+    np.testing.assert_array_equal(series.values["t_air"], [0.0, 1.0, 2.0])
+
+
 def test_unsorted_time(tmp_path):
     rows = hourly(4)
     rows[1], rows[2] = rows[2], rows[1]
