@@ -38,6 +38,9 @@ PIPE_ORIENTATIONS = ("horizontal", "vertical")
 AUTO_ONLY_KEYS = ("emissivity", "wind_speed", "radiant_temperature", "sky_temperature", "jacket", "tilt", "heat_flow_direction")
 #: A single layer thicker than this is taken for a unit slip [m].
 MAX_LAYER_THICKNESS = 20.0
+#: Most cells a case may have: far beyond what any layered construction needs,
+#: low enough to catch a max_cell written in the wrong unit.
+MAX_CELLS = 20000
 #: The tables and keys of the top level of a case file.
 TOP_LEVEL_KEYS = ("title", "label", "geometry", "materials", "layers", "mesh", "series", "inside", "outside", "time", "sizing")
 
@@ -287,6 +290,16 @@ def parse_case(data: dict, *, file: str = "<case>", text: str = "", base_dir: Pa
 
     layers = _parse_layers(top.get("layers", required=True), materials, file)
     rule = _parse_mesh(_Table(top.get("mesh", {}), file, "mesh"))
+    cells = sum(
+        layer.cells if layer.cells else max(rule.min_cells, math.ceil(layer.thickness / rule.max_cell))
+        for layer in layers
+        if layer.material is not None
+    )
+    if cells > MAX_CELLS:
+        raise CaseError(
+            file, "mesh.max_cell",
+            f"gives at least {cells} cells (the limit is {MAX_CELLS}; a few hundred resolve any wall or pipe); use a larger max_cell",
+        )
 
     # series and cycles
     series, cycles, columns_kind, timezone = _parse_series(top.get("series"), file, base_dir)
