@@ -1305,9 +1305,9 @@ def cmd_compare(args: argparse.Namespace) -> int:
     print(format_comparison(comparison))
     if out:
         if Path(out).suffix.lower() == ".nc":
-            from layers.cli import _write_output
+            from layers.results import write_output
 
-            written = _write_output(comparison.dataset, out)
+            written = write_output(comparison.dataset, out)
         else:
             written = plot_comparison(comparison, out)
         print(f"written: {written}")

@@ -47,21 +47,10 @@ class _Progress:
             self.bar.close()
 
 
-def _write_output(ds, out: str | None) -> Path | None:
-    from layers.results import write_new
-
-    if not out:
-        return None
-    try:
-        return write_new(ds, out)
-    except FileExistsError:
-        raise CaseError(out, "-o", "exists already; layers never overwrites a file (choose another name)") from None
-
-
 def cmd_run(args: argparse.Namespace) -> int:
     from layers.case import load_case
     from layers.report import run_summary
-    from layers.results import archive
+    from layers.results import archive, write_output
     from layers.simulate import simulate
 
     if args.out and Path(args.out).exists():
@@ -87,7 +76,7 @@ def cmd_run(args: argparse.Namespace) -> int:
 
     ds.attrs["command"] = "layers " + shlex.join(args.argv)
     written = archive(ds, case.stem, args.archive)
-    extra = _write_output(ds, args.out)
+    extra = write_output(ds, args.out)
     if not args.quiet:
         print(run_summary(ds, case))
     # Even a quiet run says where its result went, and keeps the caution.
@@ -102,7 +91,7 @@ def cmd_size(args: argparse.Namespace) -> int:
     import math
 
     from layers.case import load_case
-    from layers.results import archive
+    from layers.results import archive, write_output
     from layers.sizing import cautions, criteria_table, size
 
     if args.out and Path(args.out).exists():
@@ -116,7 +105,7 @@ def cmd_size(args: argparse.Namespace) -> int:
     finally:
         progress.close()
     written = archive(ds, f"{case.stem}-size", args.archive)
-    extra = _write_output(ds, args.out)
+    extra = write_output(ds, args.out)
     layer = case.sizing.layer
     print(f"{case.title}: sizing layer {layer} ({case.layers[layer - 1].name})")
     print(criteria_table(ds))

@@ -392,7 +392,7 @@ def periodic_report(case: Case, period: float):
 
 def cmd_periodic(args: argparse.Namespace) -> int:
     """``layers periodic CASE [--period 24h] [-o OUT.nc]``."""
-    from layers.cli import _write_output
+    from layers.results import write_output
     from layers.units import parse_quantity
 
     if args.out and Path(args.out).exists():
@@ -418,7 +418,7 @@ def cmd_periodic(args: argparse.Namespace) -> int:
 
     cf_encoding(ds, f"layers periodic {case.path}")
     print(text)
-    written = _write_output(ds, args.out)
+    written = write_output(ds, args.out)
     if written:
         print(f"written: {written}")
     print(f"caution: {CAUTION}")

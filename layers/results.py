@@ -20,6 +20,7 @@ import xarray as xr
 from layers import CAUTION, __version__
 from layers.archive import headline_attributes
 from layers.case import Case
+from layers.errors import CaseError
 from layers.mesh import Mesh
 
 ARCHIVE_ENV = "LAYERS_ARCHIVE"
@@ -191,6 +192,22 @@ def write_new(ds: xr.Dataset, path: str | os.PathLike) -> Path:
         If ``path`` exists.
     """
     return write_once(path, lambda tmp: ds.to_netcdf(tmp, engine="netcdf4"))
+
+
+def write_output(ds: xr.Dataset, out: str | os.PathLike | None) -> Path | None:
+    """The ``-o`` copy of a command's Dataset, if asked for (never over a file).
+
+    Raises
+    ------
+    CaseError
+        If ``out`` exists (key ``-o``).
+    """
+    if not out:
+        return None
+    try:
+        return write_new(ds, out)
+    except FileExistsError:
+        raise CaseError(str(out), "-o", "exists already; layers never overwrites a file (choose another name)") from None
 
 
 def write_once(path: str | os.PathLike, write: Callable[[str], None]) -> Path:
