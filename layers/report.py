@@ -8,6 +8,7 @@ from __future__ import annotations
 import argparse
 import math
 from pathlib import Path
+from typing import TYPE_CHECKING, NamedTuple
 
 import numpy as np
 import xarray as xr
@@ -16,6 +17,9 @@ from layers import CAUTION
 from layers.case import BoundarySpec, Case, load_case
 from layers.errors import CaseError
 from layers.mesh import Mesh
+
+if TYPE_CHECKING:
+    from layers.periodic import DynamicCharacteristics
 
 
 def _fmt_duration(seconds: float) -> str:
@@ -33,23 +37,43 @@ def _constant(forcing) -> float | None:
     return None
 
 
-def design_resistance(case: Case, mesh: Mesh) -> tuple[float, float, float]:
+class DesignResistance(NamedTuple):
+    """Resistances in series for the U-value or the heat loss per metre [K W-1 per reference unit]."""
+
+    inside: float
+    conduction: float
+    outside: float
+
+
+def design_resistance(case: Case, mesh: Mesh) -> DesignResistance:
     """Film, conduction and film resistances [K W-1 per reference unit] for the U-value.
 
-    Films use the case's surface resistance; an ``"auto"`` film or a
-    non-film boundary counts as the ISO 6946 conventional value on walls and
-    as zero on pipes (reported as such).
+    Films use the case's surface resistance; an ``"auto"`` film on a wall
+    counts as its ISO 6946 expression (:func:`auto_film_resistance`); other
+    boundaries, and auto films on pipes, as zero (reported as such).
     """
     conduction = mesh.steady_resistance()
     films = []
     for spec, area in ((case.inside, mesh.area_inside), (case.outside, mesh.area_outside)):
-        if spec.kind == "film" and spec.surface_resistance is not None:
+        if spec.kind == "film" and not spec.auto_film:
             films.append(spec.surface_resistance / area)
         elif spec.kind == "film" and case.geometry == "planar":
-            films.append((0.13 if spec.side == "inside" else 0.04) / area)
+            films.append(auto_film_resistance(case, spec) / area)
         else:
             films.append(0.0)
-    return films[0], conduction, films[1]
+    return DesignResistance(films[0], conduction, films[1])
+
+
+def auto_film_resistance(case: Case, spec: BoundarySpec) -> float:
+    """The ISO 6946 surface resistance [m2 K W-1] that stands for an ``"auto"``
+    film on a wall where one fixed value is needed (U-value, ISO 13786): inside
+    by its heat-flow direction, outside at its constant wind speed or the
+    standard's 4 m/s, both at the case's emissivity."""
+    from layers.radiation import iso6946_external_surface_resistance, iso6946_surface_resistance
+
+    if spec.side == "inside":
+        return float(iso6946_surface_resistance(spec.heat_flow_direction, spec.emissivity))
+    return float(iso6946_external_surface_resistance(_design_wind(case, spec), spec.emissivity))
 
 
 def check_report(case: Case) -> str:
@@ -162,7 +186,15 @@ def harmonic(values: np.ndarray, seconds: np.ndarray, period: float) -> complex:
     return complex(2.0 * np.mean(values * np.exp(-1j * w * seconds)))
 
 
-def observed_periodic_response(ds: xr.Dataset, case: Case) -> tuple[float, float, float] | None:
+class ObservedResponse(NamedTuple):
+    """A run's response to a daily outside cycle, over its last whole period."""
+
+    decrement_factor: float  # [-]
+    lag: float               # delay of the inward heat flow behind the outside air [h]
+    period: float            # [s]
+
+
+def observed_periodic_response(ds: xr.Dataset, case: Case) -> ObservedResponse | None:
     """Observed decrement factor [-], lag [h] and period [s] over the last whole period of a run.
 
     Applies to planar runs whose outside air follows a generated cycle and
@@ -195,7 +227,7 @@ def observed_periodic_response(ds: xr.Dataset, case: Case) -> tuple[float, float
         return None
     y = q_room / t_out
     lag = (-np.angle(y) / (2 * np.pi) * period / 3600.0) % (period / 3600.0)
-    return abs(y) * mesh_r, float(lag), period
+    return ObservedResponse(float(abs(y) * mesh_r), float(lag), period)
 
 
 def _starts_from_a_temperature(ds: xr.Dataset) -> bool:
@@ -330,15 +362,10 @@ def surface_resistances(case: Case) -> tuple[float, float]:
     wind speed or, for a wind series, the standard's 4 m/s (see
     :func:`auto_film_note`).
     """
-    from layers.radiation import iso6946_external_surface_resistance, iso6946_surface_resistance
-
     out = []
     for spec in (case.inside, case.outside):
         if spec.kind == "film" and spec.auto_film:
-            if spec.side == "inside":
-                out.append(float(iso6946_surface_resistance(spec.heat_flow_direction, spec.emissivity)))
-            else:
-                out.append(float(iso6946_external_surface_resistance(_design_wind(case, spec), spec.emissivity)))
+            out.append(auto_film_resistance(case, spec))
         elif spec.kind == "film":
             out.append(spec.surface_resistance)
         elif spec.kind == "temperature":
@@ -367,7 +394,14 @@ def auto_film_note(case: Case) -> str | None:
     return "  (auto films as fixed resistances: " + "; ".join(parts) + ")" if parts else None
 
 
-def periodic_report(case: Case, period: float):
+class PeriodicReport(NamedTuple):
+    """What ``layers periodic`` computes and prints."""
+
+    characteristics: DynamicCharacteristics
+    text: str
+
+
+def periodic_report(case: Case, period: float) -> PeriodicReport:
     """Dynamic characteristics of the case's construction and their text table."""
     from layers.periodic import dynamic_characteristics
 
@@ -387,7 +421,7 @@ def periodic_report(case: Case, period: float):
         "  (time shifts follow ISO 13786: negative is a delay)",
         *([note] if (note := auto_film_note(case)) else []),
     ]
-    return dc, "\n".join(lines)
+    return PeriodicReport(dc, "\n".join(lines))
 
 
 def cmd_periodic(args: argparse.Namespace) -> int:

@@ -11,6 +11,7 @@ from __future__ import annotations
 import dataclasses
 import math
 from collections.abc import Callable
+from typing import NamedTuple
 
 import numpy as np
 import xarray as xr
@@ -57,7 +58,14 @@ def with_thickness(case: Case, layer: int, thickness: float) -> Case:
     return dataclasses.replace(case, layers=tuple(layers))
 
 
-def freeze_times(case: Case, thickness: float, progress: Callable[[int, int], None] | None = None) -> tuple[float, float]:
+class FreezeTimes(NamedTuple):
+    """Freeze times of one candidate [s] (NaN: not within the run)."""
+
+    to_freezing: float       # until the contents first reach 0 degC
+    to_ice_fraction: float   # until max_ice_fraction of the water is ice
+
+
+def freeze_times(case: Case, thickness: float, progress: Callable[[int, int], None] | None = None) -> FreezeTimes:
     """Time to 0 degC and time to ``max_ice_fraction`` [s] for one candidate (NaN: not within the run)."""
     from layers.mesh import build_mesh
     from layers.simulate import run_nonlinear
@@ -65,7 +73,7 @@ def freeze_times(case: Case, thickness: float, progress: Callable[[int, int], No
     trial = with_thickness(case, case.sizing.layer, thickness)
     mesh = build_mesh(trial.layers, trial.mesh_rule, trial.geometry, trial.inner_radius)
     result, _ = run_nonlinear(trial, mesh, progress)
-    return result.time_to_freezing, result.time_to_ice_fraction
+    return FreezeTimes(result.time_to_freezing, result.time_to_ice_fraction)
 
 
 def size(case: Case, progress: Callable[[int, int], None] | None = None) -> xr.Dataset:
