@@ -924,12 +924,16 @@ def _peak(values: np.ndarray) -> float:
 
 
 def _metrics(
-    combined: xr.Dataset, exact_means: dict[str, list[float]] | None = None
+    combined: xr.Dataset,
+    exact_means: dict[str, list[float]] | None = None,
+    run_attrs: Sequence[dict] = (),
 ) -> tuple[tuple[Metric, ...], tuple[Metric, ...]]:
     """Headline metrics over the common window, and the largest differences from the first run.
 
     ``exact_means`` (per heat-flow variable, one value per run) replaces the
     trapezoidal mean of the kept samples when every run spans the window.
+    ``run_attrs`` (each run's global attributes) add the freeze times of
+    runs with contents (over each whole run, NaN where not reached).
     """
     seconds = (combined["time"].values - combined["time"].values[0]) / np.timedelta64(1, "s")
     metrics: list[Metric] = []
@@ -960,6 +964,13 @@ def _metrics(
             where = materials[k] if k < len(materials) and materials[k] else f"interface {k + 1}"
             add(f"interface {k + 1} ({where}), max", "degC", np.nanmax, data)
             add(f"interface {k + 1} ({where}), min", "degC", np.nanmin, data)
+    if "contents_temperature" in combined:
+        add("contents temperature, min", "degC", np.nanmin, combined["contents_temperature"].values)
+    if "ice_fraction" in combined:
+        add("ice fraction, max", "1", np.nanmax, combined["ice_fraction"].values)
+    for key, name in (("time_to_freezing_h", "contents reach 0 degC after"), ("freeze_time_h", "freeze time (max_ice_fraction)")):
+        if run_attrs and any(key in a for a in run_attrs):
+            metrics.append(Metric(name, "h", tuple(float(a.get(key, math.nan)) for a in run_attrs)))
     for var, name in (
         ("surface_temperature_outside", "outside surface temperature"),
         ("surface_temperature_inside", "inside surface temperature"),
@@ -1022,7 +1033,7 @@ def compare_runs(paths: Sequence[str | os.PathLike]) -> Comparison:
     labels, keys = run_labels(datasets, files)
     combined, same_mesh, n_interfaces = _combine(datasets, files, labels, keys, grid, source)
     exact = _exact_means(datasets, start, end)
-    metrics, largest = _metrics(combined, exact)
+    metrics, largest = _metrics(combined, exact, [dict(ds.attrs) for ds in datasets])
     return Comparison(
         files=files,
         labels=tuple(labels),

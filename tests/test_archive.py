@@ -588,3 +588,16 @@ def test_archive_entry_json_has_units_in_the_keys():
     row = ArchiveEntry(Path("x.nc"), surface_temperature_outside_max=float("nan")).to_json()
     assert row["surface_temperature_outside_max_degC"] is None
     assert json.loads(json.dumps(row)) == row
+
+
+def test_compare_of_freeze_runs_shows_their_freeze_times(make_run):
+    """Runs with contents: the comparison carries each run's freeze times and
+    the largest ice fraction, as the runs recorded them."""
+    text = (ROOT / "cases" / "outdoor-water-freeze.toml").read_text()
+    thin, ds_thin = make_run(text, name="thin")
+    thick, ds_thick = make_run(text.replace('thickness = "40 mm"', 'thickness = "60 mm"'), name="thick")
+    metrics = {m.name: m for m in compare_runs([thin, thick]).metrics}
+    freeze = metrics["freeze time (max_ice_fraction)"]
+    assert freeze.values == (ds_thin.attrs["freeze_time_h"], ds_thick.attrs["freeze_time_h"])
+    assert freeze.values[1] > freeze.values[0]  # thicker insulation, later freezing
+    assert metrics["ice fraction, max"].values[0] == pytest.approx(float(ds_thin["ice_fraction"].max()))
