@@ -28,7 +28,6 @@ import json
 import math
 import os
 import tempfile
-import textwrap
 import tomllib
 from collections.abc import Sequence
 from dataclasses import dataclass, field
@@ -59,11 +58,6 @@ CACHE_FORMAT = 1
 #: Output suffixes of ``layers compare -o``.
 IMAGE_SUFFIXES = (".png", ".svg", ".pdf")
 
-#: Okabe-Ito colour-blind-safe palette (Okabe, M. and Ito, K. (2008), *Color
-#: Universal Design (CUD): how to make figures and presentations that are
-#: friendly to colorblind people*), black first, yellow last (weak on white).
-PALETTE = ("#000000", "#0072B2", "#D55E00", "#009E73", "#CC79A7", "#56B4E9", "#E69F00", "#F0E442")
-LINESTYLES = ("-", "--", "-.", ":")
 
 _DISPLAY_UNITS = {"W m-2": "W/m2", "W m-1": "W/m", "W": "W", "degC": "degC", "K": "K"}
 
@@ -1249,60 +1243,6 @@ def _num(value: float, signed: bool = False) -> str:
     return text
 
 
-def plot_comparison(comparison: Comparison, out: str | os.PathLike) -> Path:
-    """Overlay the runs' surface temperatures and inside heat flow; never overwrites ``out``.
-
-    Colours: the Okabe-Ito palette, with a line style per run as a second cue.
-
-    Raises
-    ------
-    CaseError
-        If ``out`` exists or its suffix is not .png, .svg or .pdf.
-    """
-    import matplotlib
-
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
-    out = Path(out)
-    suffix = out.suffix.lower()
-    if suffix not in IMAGE_SUFFIXES:
-        raise CaseError(str(out), "-o", "use a .png, .svg or .pdf file for a plot, or .nc for the combined Dataset")
-    ds = comparison.dataset
-    panels = ["surface_temperature_outside", "surface_temperature_inside", "heat_flow_inside"]
-    fig, axes = plt.subplots(len(panels), 1, figsize=(9, 8.5), sharex=True, layout="constrained")
-    tags = _letters(len(comparison.files))
-    for ax, name in zip(axes, panels):
-        var = ds[name]
-        for i in range(ds.sizes["run"]):
-            label = _clip(f"{tags[i]}: {comparison.labels[i]}", 120)
-            ax.plot(
-                ds["time"].values,
-                var.values[i],
-                color=PALETTE[i % len(PALETTE)],
-                linestyle=LINESTYLES[(i // len(PALETTE) + i) % len(LINESTYLES)],
-                linewidth=1.4,
-                label=label,
-            )
-        ylabel = "\n".join(textwrap.wrap(str(var.attrs.get("long_name", name)), 34))
-        ax.set_ylabel(f"{ylabel} [{var.attrs.get('units', '')}]", fontsize=8)
-        ax.grid(True, color="0.88", linewidth=0.6)
-    axes[0].legend(loc="lower left", bbox_to_anchor=(0.0, 1.02), fontsize=7, frameon=False, borderaxespad=0.0)
-    axes[-1].set_xlabel("time (UTC)")
-    fig.suptitle(f"{ds.attrs['title']} over the common window", fontsize=11)
-    fig.autofmt_xdate()
-    # the caution as the figure's bottom label, so the layout reserves room for it
-    fig.supxlabel("\n".join(textwrap.wrap(f"Caution: {CAUTION}", 130)), fontsize=7, color="0.25")
-    try:
-        with open(out, "xb") as handle:  # "x": never overwrite, even in a race
-            fig.savefig(handle, format=suffix[1:], dpi=150)
-    except FileExistsError:
-        raise CaseError(str(out), "-o", "exists already; layers never overwrites a file (choose another name)") from None
-    finally:
-        plt.close(fig)
-    return out
-
-
 def cmd_compare(args: argparse.Namespace) -> int:
     """``layers compare RUN_A RUN_B [...] [-o OUT.png|.svg|.pdf|.nc]``."""
     out = getattr(args, "out", None)
@@ -1320,7 +1260,13 @@ def cmd_compare(args: argparse.Namespace) -> int:
 
             written = write_output(comparison.dataset, out)
         else:
-            written = plot_comparison(comparison, out)
+            from layers.plots import plot_comparison, save_figure
+
+            fig = plot_comparison(comparison.dataset, [f"{t}: {lab}" for t, lab in zip(_letters(len(comparison.files)), comparison.labels)])
+            try:
+                written = save_figure(fig, out, {"title": str(comparison.dataset.attrs.get("title", "")), "caution": CAUTION})
+            except FileExistsError:
+                raise CaseError(out, "-o", "exists already; layers never overwrites a file (choose another name)") from None
         print(f"written: {written}")
     print(f"caution: {CAUTION}")
     return 0

@@ -580,6 +580,43 @@ def plot_surfaces(ds: xr.Dataset) -> Any:
     return fig
 
 
+def plot_comparison(combined: xr.Dataset, labels: list[str]) -> Any:
+    """Overlay of several runs: both surface temperatures and the inside heat flow.
+
+    Parameters
+    ----------
+    combined : xarray.Dataset
+        Runs along a ``run`` dimension on common time stamps, as
+        :func:`layers.archive.compare_runs` builds them.
+    labels : list of str
+        One legend entry per run.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    panels = (
+        ("surface_temperature_outside", "outside surface"),
+        ("surface_temperature_inside", "inside surface"),
+        ("heat_flow_inside", "inside heat flow"),
+    )
+    what = f"{combined.sizes['run']} runs over their common window; heat flow positive outward"
+    fig, axes = new_figure(combined, what, nrows=3, sharex=True)
+    time = np.asarray(combined["time"].values).astype("datetime64[us]").astype(dt.datetime)
+    every = _markevery(time.size)
+    for ax, (name, quantity) in zip(axes, panels):
+        da = combined[name]
+        for i in range(combined.sizes["run"]):
+            ax.plot(time, da.values[i], label=labels[i], markevery=every, **_line_style(i))
+        default = "degC" if "temperature" in name else None
+        ax.set_ylabel(axis_label(quantity, _units(da, default)), fontsize=8.5)
+    _time_axis(axes[-1])
+    for ax in axes[:-1]:
+        ax.set_xlabel("")
+    axes[-1].legend(loc="upper center", bbox_to_anchor=(0.5, -0.35), ncols=min(3, len(labels)), fontsize=8, frameon=False)
+    return fig
+
+
 def select_times(ds: xr.Dataset, times: list[str] | None, count: int = 5, source: str = "run") -> np.ndarray:
     """Indices of the output times to draw.
 
@@ -978,6 +1015,6 @@ def cmd_plot(args: argparse.Namespace) -> int:
 __all__ = [
     "CARPET_CMAP", "DPI", "FIGSIZE", "KINDS", "LINESTYLES", "MARKERS", "PALETTE",
     "LayerBand", "axis_label", "cmd_plot", "layer_bands", "new_figure", "open_run", "output_path",
-    "plot", "plot_carpet", "plot_profiles", "plot_sizing", "plot_surfaces", "pretty_units",
+    "plot", "plot_carpet", "plot_comparison", "plot_profiles", "plot_sizing", "plot_surfaces", "pretty_units",
     "save_figure", "select_times",
 ]

@@ -576,3 +576,15 @@ def test_palette_reads_in_greyscale_by_style():
     assert len({str(s) for s in plots.LINESTYLES}) == 5
     assert len(set(plots.MARKERS)) == 5
     assert len(set(plots.PALETTE)) == 5
+
+
+def test_comparison_figure_has_units_caution_and_a_line_per_run(runs, tmp_path):
+    from layers.archive import compare_runs
+
+    copy = tmp_path / "copy.nc"
+    shutil.copyfile(runs["wall"], copy)
+    comparison = compare_runs([runs["wall"], copy])
+    fig = plots.plot_comparison(comparison.dataset, ["A: first", "B: second"])
+    assert_labels_have_units(fig)
+    assert any(CAUTION[:40] in text for text in figure_texts(fig))
+    assert all(len(ax.lines) == 2 for ax in fig.axes)
