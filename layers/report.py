@@ -210,7 +210,7 @@ def observed_periodic_response(ds: xr.Dataset, case: Case) -> ObservedResponse |
         return None
     if "air_temperature_outside" not in ds:
         return None
-    period = 86400.0
+    period = out.air_temperature.period or 86400.0
     seconds = (ds["time"].values - ds["time"].values[0]) / np.timedelta64(1, "s")
     dt = float(seconds[1] - seconds[0]) if seconds.size > 1 else 0.0
     if dt <= 0 or abs(period / dt - round(period / dt)) > 1e-9 or seconds[-1] < period:
@@ -311,7 +311,7 @@ def run_summary(ds: xr.Dataset, case: Case | None = None) -> str:
             try:
                 dc, _ = periodic_report(case, period)
                 lines.append(
-                    f"  daily cycle (last {period / 3600:g} h): observed decrement factor {decrement:.4f}, lag {lag:.2f} h;"
+                    f"  {'daily cycle' if period == 86400.0 else 'cycle'} (last {period / 3600:g} h): observed decrement factor {decrement:.4f}, lag {lag:.2f} h;"
                     f" ISO 13786 predicts {dc.decrement_factor:.4f}, {dc.time_lag:.2f} h"
                 )
             except CaseError:

@@ -796,6 +796,7 @@ def daily_cycle(
         return mean + amplitude * np.cos(2.0 * np.pi * phase)
 
     cycle.__doc__ = f"daily cycle: mean {mean:g}, amplitude {amplitude:g}, peak at {peak_hour:g} h ({timezone}), period {period:g} s"
+    cycle.period = period  # read by Forcing.period
     return cycle
 
 
@@ -854,6 +855,11 @@ class Forcing:
     def value(self) -> float | None:
         """The value of a constant forcing [SI], None for a series or a cycle."""
         return self._value
+
+    @property
+    def period(self) -> float | None:
+        """The period of a generated cycle [s], None otherwise."""
+        return getattr(self._func, "period", None) if self._func is not None else None
 
     @property
     def is_cycle(self) -> bool:

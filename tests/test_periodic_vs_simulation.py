@@ -124,3 +124,23 @@ def test_periodic_writes_netcdf(write_case, tmp_path):
         assert ds.attrs["period_h"] == 12.0
         assert ds["periodic_transmittance"].attrs["units"] == "W m-2 K-1"
         assert "caution" in ds.attrs
+
+
+def test_run_summary_uses_the_cycle_period(write_case, tmp_path, capsys):
+    """A 12 h outside cycle: the run summary analyses the 12 h harmonic and
+    quotes the 12 h ISO 13786 prediction (not a 24 h one), and the two agree
+    to the tolerances of test_periodic_command_matches_simulation (1 %, 0.05 h)."""
+    from pathlib import Path
+
+    text = (Path(__file__).resolve().parents[1] / "cases" / "masonry-wall-hot-week.toml").read_text()
+    text = text.replace("[series.cycles.outdoor]", '[series.cycles.outdoor]\nperiod = "12 h"')
+    text = text.replace('initial = "periodic"', 'initial = "periodic"\nperiod = "12 h"')
+    case = write_case(text)
+    assert main(["run", str(case), "--archive", str(tmp_path / "runs")]) == 0
+    (line,) = [ln for ln in capsys.readouterr().out.splitlines() if "observed decrement" in ln]
+    assert "(last 12 h)" in line
+    dc = periodic_report(load_case(case), 12 * 3600.0).characteristics
+    observed_f = float(line.split("observed decrement factor ")[1].split(",")[0])
+    observed_lag = float(line.split("lag ")[1].split(" h")[0])
+    assert observed_f == pytest.approx(dc.decrement_factor, rel=0.01)
+    assert observed_lag == pytest.approx(dc.time_lag, abs=0.05)
