@@ -187,6 +187,7 @@ class Case:
     label: str = ""
     orientation: str = "horizontal"     # cylinders: horizontal | vertical
     height: float | None = None         # vertical cylinder: height of the run [m]
+    provenance: dict[str, str] = field(default_factory=dict)  # a re-run: where it came from
 
     @property
     def stem(self) -> str:

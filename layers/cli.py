@@ -78,6 +78,9 @@ def cmd_run(args: argparse.Namespace) -> int:
     written = archive(ds, case.stem, args.archive)
     extra = write_output(ds, args.out)
     if not args.quiet:
+        if case.provenance:
+            print(f"re-run of {case.provenance['rerun_of']} from its archived case text"
+                  + (f"; series from {case.provenance['series_source']}" if "series_source" in case.provenance else ""))
         print(run_summary(ds, case))
     # Even a quiet run says where its result went, and keeps the caution.
     print(f"archived: {written}")

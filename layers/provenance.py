@@ -58,16 +58,38 @@ def load_archived_case(run: str | Path) -> Case:
         embedded = attrs.get("series_embedded")
         if isinstance(embedded, str):
             target.write_text(embedded, encoding="utf-8")
+            source = "the copy embedded in the run"
         else:
-            original = Path(str(attrs.get("series_path", "")))
-            if not original.is_file():
-                raise CaseError(str(run), "series", f"the series {series_name} was not embedded and is not at {original}")
+            original = _original_series(attrs, series_name)
+            if original is None:
+                raise CaseError(
+                    str(run), "series",
+                    f"the series {series_name} was not embedded and is not at {attrs.get('series_path', '?')}",
+                )
             data = original.read_bytes()
             if hashlib.sha256(data).hexdigest() != attrs.get("series_sha256"):
                 raise CaseError(str(run), "series", f"{original} has changed since the run (SHA-256 differs)")
             target.write_bytes(data)
+            source = f"{original} (unchanged: SHA-256 checked)"
         if isinstance(embedded, str) and hashlib.sha256(target.read_bytes()).hexdigest() != attrs.get("series_sha256"):
             raise CaseError(str(run), "series_embedded", "the embedded series does not match its series_sha256")
     case = load_case(case_path)
     case.label = str(attrs.get("label", ""))
+    # The re-run records where it came from, not the private folder it ran in.
+    case.provenance = {
+        "rerun_of": str(run.resolve()),
+        **{k: str(attrs[k]) for k in ("case_file", "case_path", "series_path") if k in attrs},
+    }
+    if series_name:
+        case.provenance["series_source"] = source
     return case
+
+
+def _original_series(attrs: dict, series_name: str) -> Path | None:
+    """The series file of a run that did not embed it: at its recorded path,
+    or (for runs that recorded a relative path) beside the case file."""
+    recorded = Path(str(attrs.get("series_path", "")))
+    candidates = [recorded]
+    if not recorded.is_absolute() and attrs.get("case_path"):
+        candidates.append(Path(str(attrs["case_path"])).parent / series_name)
+    return next((p for p in candidates if str(p) and p.is_file()), None)

@@ -149,12 +149,15 @@ def to_dataset(
     if case.series is not None:
         ds.attrs["series_file"] = Path(case.series.file).name
         ds.attrs["series_sha256"] = case.series.sha256
-        ds.attrs["series_path"] = str(case.series.file)
+        ds.attrs["series_path"] = str(Path(case.series.file).resolve())
         if case.series.embedded is not None:
             ds.attrs["series_embedded"] = case.series.embedded
         filled = {k: v for k, v in case.series.filled.items() if v}
         if filled:
             ds.attrs["series_filled"] = ", ".join(f"{k}: {v} values" for k, v in filled.items())
+    if case.provenance:
+        ds.attrs.update(case.provenance)
+        ds.attrs["history"] = f"{_now()} layers run --again {Path(case.provenance['rerun_of']).name}"
     ds.attrs = {k: v for k, v in ds.attrs.items() if v != ""}
     # Headline results as attributes, so that `layers list` reads headers only.
     ds.attrs.update(headline_attributes(ds))

@@ -7,6 +7,7 @@ import signal
 import subprocess
 import sys
 import time
+from pathlib import Path
 
 import numpy as np
 import xarray as xr
@@ -62,6 +63,10 @@ def test_run_records_provenance_and_reruns_from_embedded_series(tmp_path, capsys
         np.testing.assert_array_equal(b["temperature"].values, a["temperature"].values)
         assert b.attrs["case_sha256"] == a.attrs["case_sha256"]
         assert b.attrs["label"] == "first"
+        # the re-run says where it came from, not the private folder it ran in
+        assert b.attrs["rerun_of"] == str(first.resolve())
+        assert b.attrs["case_path"] == a.attrs["case_path"] and b.attrs["series_path"] == a.attrs["series_path"]
+        assert "embedded" in b.attrs["series_source"] and "--again" in b.attrs["history"]
 
 
 def test_again_without_embedded_series_needs_unchanged_file(tmp_path, capsys):
@@ -73,6 +78,22 @@ def test_again_without_embedded_series_needs_unchanged_file(tmp_path, capsys):
     (tmp_path / "data" / "weather.csv").write_text("time,T_out\n2026-02-01T00:00,1\n2026-02-02T00:00,2\n")
     assert main(["run", "--again", str(first), "--archive", str(runs), "--quiet"]) == 2
     assert "changed" in capsys.readouterr().err
+
+
+def test_again_finds_the_series_from_any_folder(tmp_path, monkeypatch):
+    """A run made with a relative case path records the series' absolute path,
+    so --again works from another working folder."""
+    case = _setup(tmp_path, embed=False)
+    runs = tmp_path / "runs"
+    monkeypatch.chdir(tmp_path)
+    assert main(["run", case.name, "--archive", str(runs), "--quiet"]) == 0
+    (first,) = list(runs.glob("*.nc"))
+    with xr.open_dataset(first) as ds:
+        assert Path(ds.attrs["series_path"]).is_absolute()
+    elsewhere = tmp_path / "elsewhere"
+    elsewhere.mkdir()
+    monkeypatch.chdir(elsewhere)
+    assert main(["run", "--again", str(first), "--archive", str(runs), "--quiet"]) == 0
 
 
 SHORT = """
