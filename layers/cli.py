@@ -14,7 +14,7 @@ import warnings
 from collections.abc import Callable, Sequence
 from pathlib import Path
 
-from layers import CAUTION, __version__
+from layers import __version__
 from layers.errors import CaseError
 
 EXIT_OK, EXIT_FAILED, EXIT_INPUT, EXIT_INTERNAL = 0, 1, 2, 3
@@ -49,7 +49,7 @@ class _Progress:
 
 def cmd_run(args: argparse.Namespace) -> int:
     from layers.case import load_case
-    from layers.report import run_summary
+    from layers.report import run_cautions, run_summary
     from layers.results import archive, write_output
     from layers.simulate import simulate
 
@@ -86,7 +86,8 @@ def cmd_run(args: argparse.Namespace) -> int:
     print(f"archived: {written}")
     if extra:
         print(f"written:  {extra}")
-    print(f"caution: {CAUTION}")
+    for line in run_cautions(ds, case):
+        print(f"caution: {line}")
     return EXIT_OK
 
 

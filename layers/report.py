@@ -230,6 +230,49 @@ def observed_periodic_response(ds: xr.Dataset, case: Case) -> ObservedResponse |
     return ObservedResponse(float(abs(y) * mesh_r), float(lag), period)
 
 
+#: Outside surface temperature from which a run repeats the touch caution [degC]:
+#: the lowest of the burn thresholds the caution quotes (43 degC for contact
+#: of 8 h and longer, ISO 13732-1:2006, from memory).
+TOUCH_WATCH = 43.0
+#: A wall surface closer than this to its air's dew point gets the
+#: condensation caution [K] (our choice: a common-practice safety margin).
+WALL_DEW_WATCH = 1.0
+CAUTION_WALL_DEW = (
+    "A surface near or below its dew point: check surface and interstitial condensation "
+    "(e.g. by ISO 13788) and the vapour control of the construction."
+)
+
+
+def run_cautions(ds: xr.Dataset, case: Case) -> list[str]:
+    """The cautions a run's results call for, most specific first, the general one last.
+
+    - touch: the outside surface reaches :data:`TOUCH_WATCH`;
+    - condensation: a surface with a dew point is colder than its air;
+    - freezing: the bore holds stagnant contents.
+    """
+    from layers.sizing import CAUTION_DEW, CAUTION_FREEZE, CAUTION_TOUCH
+
+    out = []
+    hottest = float(np.nanmax(ds["surface_temperature_outside"].values))
+    if hottest >= TOUCH_WATCH:
+        out.append(f"the outside surface reaches {hottest:.1f} degC. {CAUTION_TOUCH}")
+    for side in ("inside", "outside"):
+        air, dew = f"air_temperature_{side}", f"dew_point_{side}"
+        if dew not in ds or air not in ds:
+            continue
+        surface = ds[f"surface_temperature_{side}"].values
+        if case.geometry != "planar" and np.any(surface < ds[air].values):
+            out.append(CAUTION_DEW)  # a cold line or vessel
+            break
+        if case.geometry == "planar" and np.nanmin(surface - ds[dew].values) < WALL_DEW_WATCH:
+            out.append(CAUTION_WALL_DEW)
+            break
+    if case.inside.kind == "contents":
+        out.append(CAUTION_FREEZE)
+    out.append(str(ds.attrs.get("caution", CAUTION)))
+    return out
+
+
 def _starts_from_a_temperature(ds: xr.Dataset) -> bool:
     try:
         float(ds.attrs.get("initial", "steady"))
@@ -286,9 +329,6 @@ def run_summary(ds: xr.Dataset, case: Case | None = None) -> str:
             f"  contents: first at 0 degC after {_h(ds.attrs['time_to_freezing_h'])}; "
             f"{ds.attrs['max_ice_fraction']:g} ice after {_h(ds.attrs['freeze_time_h'])}"
         )
-        lines.append(
-            "  caution: insulation alone only delays freezing of stagnant water; it cannot prevent it"
-        )
     lines.append(f"  energy balance error (relative): {ds.attrs['energy_balance_error']:.1e}")
     for side in ("inside", "outside"):
         if f"dew_point_{side}" not in ds:
@@ -297,7 +337,9 @@ def run_summary(ds: xr.Dataset, case: Case | None = None) -> str:
         i = int(np.argmin(margin))
         when = np.datetime_as_string(ds["time"].values[i], unit="m")
         if margin[i] >= 0:
-            lines.append(f"  {side} surface stays at least {margin[i]:.2f} K above the air's dew point (closest at {when}Z)")
+            wanted = case.sizing.dew_point_margin if case is not None and case.sizing is not None else None
+            short = f"; less than the case's dew_point_margin of {wanted:g} K" if wanted and margin[i] < wanted else ""
+            lines.append(f"  {side} surface stays at least {margin[i]:.2f} K above the air's dew point (closest at {when}Z){short}")
         else:
             below = ds["time"].values[margin < 0]
             lines.append(

@@ -31,3 +31,20 @@ def test_case_checks_and_runs(path, tmp_path, capsys):
         assert np.isfinite(ds["temperature"].values).all()
         assert ds.attrs["energy_balance_error"] < 1e-6
         assert ds.attrs["case_sha256"] == case.sha256
+
+
+@pytest.mark.parametrize(
+    "stem, words",
+    [
+        ("hot-oil-line-touch", "Touch limits depend on the contact time"),
+        ("chilled-water-condensation", "vapour barrier"),
+        ("outdoor-water-freeze", "only delays freezing"),
+    ],
+)
+def test_runs_print_the_caution_their_results_call_for(stem, words, tmp_path, capsys):
+    """Burns, condensation and freezing: `layers run` prints the specific
+    caution (even with --quiet), before the general one."""
+    path = Path(__file__).resolve().parents[1] / "cases" / f"{stem}.toml"
+    assert main(["run", str(path), "--archive", str(tmp_path), "--quiet"]) == 0
+    cautions = [line for line in capsys.readouterr().out.splitlines() if line.startswith("caution:")]
+    assert len(cautions) == 2 and words in cautions[0]
