@@ -1117,7 +1117,13 @@ def _combine(
         attrs = dict(face.attrs)
         # CF 2.4: dimensions other than T, Z, Y, X go left of time
         data_vars["temperature_interface"] = (("run", "interface", "time"), stack.transpose(0, 2, 1), attrs)
-        interface_names = "; ".join(_interface_name(first, k) for k in range(1, n_interfaces + 1))
+        # named by its materials when every run has the same ones there,
+        # else by each run's pair in run order ("brick | eps / brick | mineral-wool")
+        names = []
+        for k in range(1, n_interfaces + 1):
+            pairs = list(dict.fromkeys(_interface_name(ds, k) for ds in datasets))
+            names.append(" / ".join(pairs))
+        interface_names = "; ".join(names)
     faces = max(len(ds["layer_interface"]) for ds in datasets)
     positions = np.full((n, faces), np.nan)
     for i, ds in enumerate(datasets):

@@ -613,7 +613,14 @@ def plot_comparison(combined: xr.Dataset, labels: list[str]) -> Any:
     _time_axis(axes[-1])
     for ax in axes[:-1]:
         ax.set_xlabel("")
-    axes[-1].legend(loc="upper center", bbox_to_anchor=(0.5, -0.35), ncols=min(3, len(labels)), fontsize=8, frameon=False)
+    # long labels (many differing keys) get one column, wrapped, so none is cut off
+    import textwrap
+
+    wrapped = ["\n".join(textwrap.wrap(label, 90)) or label for label in labels]
+    columns = 1 if max(len(label) for label in labels) > 45 else min(3, len(labels))
+    for line, text in zip(axes[-1].lines, wrapped):
+        line.set_label(text)
+    axes[-1].legend(loc="upper center", bbox_to_anchor=(0.5, -0.35), ncols=columns, fontsize=7.5, frameon=False)
     return fig
 
 

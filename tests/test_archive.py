@@ -601,3 +601,12 @@ def test_compare_of_freeze_runs_shows_their_freeze_times(make_run):
     assert freeze.values == (ds_thin.attrs["freeze_time_h"], ds_thick.attrs["freeze_time_h"])
     assert freeze.values[1] > freeze.values[0]  # thicker insulation, later freezing
     assert metrics["ice fraction, max"].values[0] == pytest.approx(float(ds_thin["ice_fraction"].max()))
+
+
+def test_compare_names_interfaces_by_every_run_s_materials(make_run):
+    """Runs with different insulation: each interface is named by the
+    material pairs of all runs, not the first run's only."""
+    wool, _ = make_run(wall_text(), name="wool")
+    eps, _ = make_run(wall_text().replace('material = "mineral-wool"', 'material = "eps"'), name="eps")
+    names = compare_runs([wool, eps]).dataset.attrs["comparison_interface_names"]
+    assert "brick | mineral-wool / brick | eps" in names
