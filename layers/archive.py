@@ -53,7 +53,7 @@ RUN_VARIABLES = ("time", "surface_temperature_outside", "heat_flow_inside")
 #: Environment variable naming the folder of the ``layers list`` header cache.
 CACHE_ENV = "LAYERS_CACHE_DIR"
 #: Version of the cache file layout; a cache of another version is ignored.
-CACHE_FORMAT = 1
+CACHE_FORMAT = 2
 
 #: Output suffixes of ``layers compare -o``.
 IMAGE_SUFFIXES = (".png", ".svg", ".pdf")
@@ -188,6 +188,9 @@ class ArchiveEntry:
         (read from the small time series of an older run).
     problem : str or None
         Why the file is not listed as a run.
+    product : str or None
+        What the file is: ``run``, ``sizing``, ``periodic`` or
+        ``comparison``; None for a foreign or unreadable file.
     """
 
     path: Path
@@ -207,6 +210,7 @@ class ArchiveEntry:
     heat_flow_units: str | None = None
     headline_source: str | None = None
     problem: str | None = None
+    product: str | None = None
 
     @property
     def is_run(self) -> bool:
@@ -237,6 +241,7 @@ _ENTRY_FIELDS = [f.name for f in dataclasses.fields(ArchiveEntry) if f.name != "
 OTHER_PRODUCTS = {
     "sizing": ("passes_all", "a sizing result (layers size), not a run"),
     "periodic": ("periodic_transmittance", "dynamic characteristics (layers periodic), not a run"),
+    "comparison": ("comparison_of_runs", "a comparison of runs (layers compare), not a run"),
 }
 
 
@@ -289,9 +294,13 @@ def read_entry(path: str | os.PathLike) -> ArchiveEntry:
 
 def _entry_from(nc: Any, path: Path) -> ArchiveEntry:
     names = nc.ncattrs()
-    problem = _not_a_run(names, nc.variables, _text(nc, names, "product"))
+    product = _text(nc, names, "product")
+    problem = _not_a_run(names, nc.variables, product)
     if problem:
-        return ArchiveEntry(path, title=_text(nc, names, "title"), problem=problem)
+        known = product if product in OTHER_PRODUCTS else next(
+            (name for name, (variable, _) in OTHER_PRODUCTS.items() if variable in nc.variables), None
+        )
+        return ArchiveEntry(path, title=_text(nc, names, "title"), problem=problem, product=known)
     summary = {n[len(SUMMARY_PREFIX):]: nc.getncattr(n) for n in names if n.startswith(SUMMARY_PREFIX)}
     source = "attributes"
     if "surface_temperature_outside_max_degC" not in summary or "heat_flow_inside_mean" not in summary:
@@ -314,6 +323,7 @@ def _entry_from(nc: Any, path: Path) -> ArchiveEntry:
         heat_flow_inside_mean=_number(summary.get("heat_flow_inside_mean")),
         heat_flow_units=_str_or_none(summary.get("heat_flow_inside_mean_units")),
         headline_source=source,
+        product="run",
     )
 
 
@@ -1152,6 +1162,7 @@ def _combine(
     combined.attrs = {
         "Conventions": "CF-1.10",
         "title": f"Comparison of {n} layers runs",
+        "product": "comparison",
         "source": f"layers {__version__} compare",
         "history": f"{stamp} layers compare " + " ".join(f.name for f in files),
         "software_version": __version__,

@@ -287,8 +287,8 @@ def test_sizing_and_periodic_results_are_named_for_what_they_are(tmp_path, capsy
     assert main(["size", str(pipe), "-o", str(folder / "s.nc"), "--quiet"]) == 0
     assert main(["periodic", str(wall), "-o", str(folder / "p.nc")]) == 0
     entries = {e.path.name: e for e in list_runs(folder)}
-    assert "sizing result" in entries["s.nc"].problem
-    assert "layers periodic" in entries["p.nc"].problem
+    assert "sizing result" in entries["s.nc"].problem and entries["s.nc"].product == "sizing"
+    assert "layers periodic" in entries["p.nc"].problem and entries["p.nc"].product == "periodic"
     for name in ("s.nc", "p.nc"):
         with netCDF4.Dataset(folder / name) as nc:
             assert nc.getncattr("software_version") and nc.getncattr("created")
@@ -601,6 +601,14 @@ def test_compare_of_freeze_runs_shows_their_freeze_times(make_run):
     assert freeze.values == (ds_thin.attrs["freeze_time_h"], ds_thick.attrs["freeze_time_h"])
     assert freeze.values[1] > freeze.values[0]  # thicker insulation, later freezing
     assert metrics["ice fraction, max"].values[0] == pytest.approx(float(ds_thin["ice_fraction"].max()))
+
+
+def test_a_combined_comparison_is_listed_as_one(make_run, tmp_path, capsys):
+    run, _ = make_run(wall_text())
+    assert main(["compare", str(run), str(run), "-o", str(run.parent / "study.nc")]) == 0
+    entries = {e.path.name: e for e in list_runs(run.parent)}
+    assert entries["study.nc"].product == "comparison" and "layers compare" in entries["study.nc"].problem
+    assert entries[run.name].product == "run"
 
 
 def test_compare_names_interfaces_by_every_run_s_materials(make_run):
