@@ -201,6 +201,20 @@ def criteria_table(ds: xr.Dataset) -> str:
         unit += f"{'[h]':>10} {'[h]':>9} "
     unit += " ".join(f"{'(margin)':>18}" for _ in names)
     lines = [head, unit]
+    limits = []
+    if "max_surface_temperature" in ds.attrs:
+        limits.append(f"touch limit {float(ds.attrs['max_surface_temperature']):g} degC")
+    if "dew_point" in ds.attrs:
+        limits.append(
+            f"dew point of the outside air {float(ds.attrs['dew_point']):.2f} degC (ISO 13788), "
+            f"surface at least {float(ds.attrs['dew_point_margin']):g} K above it"
+        )
+    if "max_heat_loss" in ds.attrs:
+        limits.append(f"heat-loss budget {float(ds.attrs['max_heat_loss']):g} {flow_units}")
+    if "min_freeze_time_h" in ds.attrs:
+        limits.append(f"{float(ds.attrs['max_ice_fraction']):g} ice not before {float(ds.attrs['min_freeze_time_h']):g} h")
+    if limits:
+        lines.insert(0, "criteria: " + "; ".join(limits))
     margin_units = {n: ds[f"margin_{n}"].attrs["units"].replace("W m-1", "W/m").replace("W m-2", "W/m2") for n in names}
     run_h = ds.attrs.get("run_duration_h", math.nan)
     for i, d in enumerate(ds["thickness"].values):
