@@ -138,7 +138,9 @@ def check_report(case: Case) -> str:
     )
     lines.append(f"scheme:    {plan.scheme}; initial state: {plan.initial if isinstance(plan.initial, str) else f'{plan.initial:g} degC'}")
     if case.series is not None:
-        lines.append(f"series:    {case.series.file} ({len(case.series.time)} rows)")
+        filled = {k: v for k, v in case.series.filled.items() if v}
+        note = "; filled by fill_gaps: " + ", ".join(f"{k} {v}" for k, v in filled.items()) if filled else ""
+        lines.append(f"series:    {case.series.file} ({len(case.series.time)} rows{note})")
     lines.append("")
     lines.append(f"caution: {CAUTION}")
     return "\n".join(lines)
@@ -330,6 +332,8 @@ def run_summary(ds: xr.Dataset, case: Case | None = None) -> str:
             f"{ds.attrs['max_ice_fraction']:g} ice after {_h(ds.attrs['freeze_time_h'])}"
         )
     lines.append(f"  energy balance error (relative): {ds.attrs['energy_balance_error']:.1e}")
+    if ds.attrs.get("series_filled"):
+        lines.append(f"  series values filled by fill_gaps (linear in time): {ds.attrs['series_filled']}")
     for side in ("inside", "outside"):
         if f"dew_point_{side}" not in ds:
             continue

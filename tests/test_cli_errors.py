@@ -250,3 +250,22 @@ def test_auto_only_keys_with_a_fixed_film_warn_and_run(tmp_path, capsys):
     assert code == 0
     assert err.count("\n") == 1 and "warning" in err and "emissivity, wind_speed not used" in err
     assert len(list(archive.glob("*.nc"))) == 1
+
+
+def test_filled_values_are_reported(tmp_path, capsys):
+    """A series with a missing value and fill_gaps: check, the run summary and
+    the archived run all say how many values were filled."""
+    weather = WEATHER.replace("2.0", "")  # row 3 has no value
+    text = GOOD.replace('file = "weather.csv"', 'file = "weather.csv"\nfill_gaps = "2 h"')
+    case = tmp_path / "case.toml"
+    case.write_text(text)
+    (tmp_path / "weather.csv").write_text(weather)
+    assert main(["check", str(case)]) == 0
+    assert "filled by fill_gaps: t_out 1" in capsys.readouterr().out
+    assert main(["run", str(case), "--archive", str(tmp_path / "runs")]) == 0
+    assert "filled by fill_gaps" in capsys.readouterr().out
+    import xarray as xr
+
+    (run,) = (tmp_path / "runs").glob("*.nc")
+    with xr.open_dataset(run) as ds:
+        assert ds.attrs["series_filled"] == "t_out: 1 values"
