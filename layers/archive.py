@@ -19,7 +19,6 @@ Library functions return dataclasses and xarray objects; only
 
 from __future__ import annotations
 
-import argparse
 import contextlib
 import dataclasses
 import datetime as dt
@@ -577,25 +576,11 @@ def _clip(text: str, width: int) -> str:
     return text if len(text) <= width else text[: width - 1] + "~"
 
 
-def cmd_list(args: argparse.Namespace) -> int:
-    """``layers list [DIR] [--json]``."""
-    folder = args.dir
-    if not folder:
-        from layers.results import archive_dir
-
-        folder = archive_dir(None)
-    entries = list_runs(folder)
-    if getattr(args, "json", False):
-        print(json.dumps([e.to_json() for e in entries], indent=1))
-        return 0
-    if not entries:
-        print(f"no runs in {folder}")
-        return 0
-    print(format_list(entries))
+def list_footer(entries: Sequence[ArchiveEntry], folder: str | os.PathLike) -> str:
+    """The last line of ``layers list``: how many runs and other files."""
     runs = sum(e.is_run for e in entries)
     others = len(entries) - runs
-    print(f"{runs} run{'s' * (runs != 1)} in {folder}" + (f"; {others} other file{'s' * (others != 1)}" if others else ""))
-    return 0
+    return f"{runs} run{'s' * (runs != 1)} in {folder}" + (f"; {others} other file{'s' * (others != 1)}" if others else "")
 
 
 # --------------------------------------------------------------------------- #
@@ -1260,30 +1245,27 @@ def _num(value: float, signed: bool = False) -> str:
     return text
 
 
-def cmd_compare(args: argparse.Namespace) -> int:
-    """``layers compare RUN_A RUN_B [...] [-o OUT.png|.svg|.pdf|.nc]``."""
-    out = getattr(args, "out", None)
-    if out:
-        suffix = Path(out).suffix.lower()
-        if suffix not in (*IMAGE_SUFFIXES, ".nc"):
-            raise CaseError(out, "-o", "use a .png, .svg or .pdf file for a plot, or .nc for the combined Dataset")
-        if Path(out).exists():
-            raise CaseError(out, "-o", "exists already; layers never overwrites a file (choose another name)")
-    comparison = compare_runs(args.runs)
-    print(format_comparison(comparison))
-    if out:
-        if Path(out).suffix.lower() == ".nc":
-            from layers.results import write_output
+def check_comparison_output(out: str | os.PathLike) -> None:
+    """Refuse a ``compare -o`` target before any work: unknown kind or existing file."""
+    suffix = Path(out).suffix.lower()
+    if suffix not in (*IMAGE_SUFFIXES, ".nc"):
+        raise CaseError(str(out), "-o", "use a .png, .svg or .pdf file for a plot, or .nc for the combined Dataset")
+    if Path(out).exists():
+        raise CaseError(str(out), "-o", "exists already; layers never overwrites a file (choose another name)")
 
-            written = write_output(comparison.dataset, out)
-        else:
-            from layers.plots import plot_comparison, save_figure
 
-            fig = plot_comparison(comparison.dataset, [f"{t}: {lab}" for t, lab in zip(_letters(len(comparison.files)), comparison.labels)])
-            try:
-                written = save_figure(fig, out, {"title": str(comparison.dataset.attrs.get("title", "")), "caution": CAUTION})
-            except FileExistsError:
-                raise CaseError(out, "-o", "exists already; layers never overwrites a file (choose another name)") from None
-        print(f"written: {written}")
-    print(f"caution: {CAUTION}")
-    return 0
+def write_comparison(comparison: Comparison, out: str | os.PathLike) -> Path:
+    """Write the combined Dataset (.nc) or the overlay figure (.png, .svg, .pdf), never over a file."""
+    check_comparison_output(out)
+    if Path(out).suffix.lower() == ".nc":
+        from layers.results import write_output
+
+        return write_output(comparison.dataset, out)
+    from layers.plots import plot_comparison, save_figure
+
+    labels = [f"{t}: {lab}" for t, lab in zip(_letters(len(comparison.files)), comparison.labels)]
+    fig = plot_comparison(comparison.dataset, labels)
+    try:
+        return save_figure(fig, out, {"title": str(comparison.dataset.attrs.get("title", "")), "caution": CAUTION})
+    except FileExistsError:
+        raise CaseError(str(out), "-o", "exists already; layers never overwrites a file (choose another name)") from None

@@ -11,10 +11,10 @@ import argparse
 import os
 import sys
 import warnings
-from collections.abc import Callable, Sequence
+from collections.abc import Sequence
 from pathlib import Path
 
-from layers import __version__
+from layers import CAUTION, __version__
 from layers.errors import CaseError
 
 EXIT_OK, EXIT_FAILED, EXIT_INPUT, EXIT_INTERNAL = 0, 1, 2, 3
@@ -146,6 +146,69 @@ def cmd_materials(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def cmd_periodic(args: argparse.Namespace) -> int:
+    """``layers periodic CASE [--period 24h] [-o OUT.nc]``."""
+    from layers.case import load_case
+    from layers.report import periodic_dataset, periodic_report
+    from layers.results import write_output
+    from layers.units import parse_quantity
+
+    if args.out and Path(args.out).exists():
+        raise CaseError(args.out, "-o", "exists already; layers never overwrites a file (choose another name)")
+    case = load_case(args.case)
+    period = parse_quantity(args.period, "duration", file="(command line)", key="--period")
+    if period <= 0:
+        raise CaseError("(command line)", "--period", "must be positive")
+    report = periodic_report(case, period)
+    print(report.text)
+    written = write_output(periodic_dataset(case, report), args.out)
+    if written:
+        print(f"written: {written}")
+    print(f"caution: {CAUTION}")
+    return EXIT_OK
+
+
+def cmd_plot(args: argparse.Namespace) -> int:
+    """``layers plot RUN.nc [-o OUT] [--kind ...] [--times ...]``."""
+    from layers.plots import plot_file
+
+    print(f"written: {plot_file(args.run, args.kind, args.out, getattr(args, 'times', None))}")
+    return EXIT_OK
+
+
+def cmd_compare(args: argparse.Namespace) -> int:
+    """``layers compare RUN_A RUN_B [...] [-o OUT.png|.svg|.pdf|.nc]``."""
+    from layers.archive import check_comparison_output, compare_runs, format_comparison, write_comparison
+
+    if args.out:
+        check_comparison_output(args.out)
+    comparison = compare_runs(args.runs)
+    print(format_comparison(comparison))
+    if args.out:
+        print(f"written: {write_comparison(comparison, args.out)}")
+    print(f"caution: {CAUTION}")
+    return EXIT_OK
+
+
+def cmd_list(args: argparse.Namespace) -> int:
+    """``layers list [DIR] [--json]``."""
+    import json
+
+    from layers.archive import format_list, list_footer, list_runs
+    from layers.results import archive_dir
+
+    folder = args.dir or archive_dir(None)
+    entries = list_runs(folder)
+    if args.json:
+        print(json.dumps([e.to_json() for e in entries], indent=1))
+    elif not entries:
+        print(f"no runs in {folder}")
+    else:
+        print(format_list(entries))
+        print(list_footer(entries, folder))
+    return EXIT_OK
+
+
 def build_parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(
         prog="layers",
@@ -178,38 +241,29 @@ def build_parser() -> argparse.ArgumentParser:
     d.add_argument("case")
     d.add_argument("--period", default="24 h", help="period of the cycle (default 24 h)")
     d.add_argument("-o", "--out")
-    d.set_defaults(func=_dispatch("layers.report", "cmd_periodic"))
+    d.set_defaults(func=cmd_periodic)
 
     pl = sub.add_parser("plot", help="plot a run")
     pl.add_argument("run", help="a run's netCDF file")
     pl.add_argument("-o", "--out")
     pl.add_argument("--kind", default=None, help="default: sizing for a sizing file, else surfaces", choices=["carpet", "surfaces", "profiles", "sizing"])
     pl.add_argument("--times", nargs="*", help="profiles: times to draw (ISO 8601)")
-    pl.set_defaults(func=_dispatch("layers.plots", "cmd_plot"))
+    pl.set_defaults(func=cmd_plot)
 
     cp = sub.add_parser("compare", help="compare runs side by side")
     cp.add_argument("runs", nargs="+")
     cp.add_argument("-o", "--out", help="overlay plot (PNG, SVG, PDF) or combined Dataset (.nc)")
-    cp.set_defaults(func=_dispatch("layers.archive", "cmd_compare"))
+    cp.set_defaults(func=cmd_compare)
 
     ls = sub.add_parser("list", help="list the archived runs")
     ls.add_argument("dir", nargs="?")
     ls.add_argument("--json", action="store_true")
-    ls.set_defaults(func=_dispatch("layers.archive", "cmd_list"))
+    ls.set_defaults(func=cmd_list)
 
     m = sub.add_parser("materials", help="the material library")
     m.add_argument("word", nargs="?")
     m.set_defaults(func=cmd_materials)
     return p
-
-
-def _dispatch(module: str, name: str) -> Callable[[argparse.Namespace], int]:
-    def run(args: argparse.Namespace) -> int:
-        import importlib
-
-        return getattr(importlib.import_module(module), name)(args)
-
-    return run
 
 
 def main(argv: Sequence[str] | None = None) -> int:

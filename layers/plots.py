@@ -25,7 +25,6 @@ Conventions of every figure
 
 from __future__ import annotations
 
-import argparse
 import datetime as dt
 import math
 import os
@@ -997,31 +996,55 @@ def open_run(path: str | os.PathLike) -> xr.Dataset:
     return ds
 
 
-def cmd_plot(args: argparse.Namespace) -> int:
-    """``layers plot RUN.nc [-o OUT] [--kind ...] [--times ...]``: draw, save, print the path."""
+def plot_file(
+    run: str | os.PathLike, kind: str | None = None, out: str | os.PathLike | None = None, times: list[str] | None = None
+) -> Path:
+    """Draw one figure of a run or sizing file and save it, never over a file.
+
+    Parameters
+    ----------
+    run : str or Path
+        A netCDF file written by ``layers run`` or ``layers size``.
+    kind : str, optional
+        ``carpet``, ``surfaces``, ``profiles`` or ``sizing``; default
+        ``sizing`` for a sizing file, else ``surfaces``.
+    out : str or Path, optional
+        The figure file (.png, .svg, .pdf); default next to the run (see
+        :func:`output_path`).
+    times : list of str, optional
+        ISO 8601 times for ``profiles``.
+
+    Returns
+    -------
+    Path
+        The file written.
+
+    Raises
+    ------
+    CaseError
+        For an unreadable run, a kind that does not fit the file, or an
+        ``out`` that exists or has an unknown extension.
+    """
     _use_agg()
-    ds = open_run(args.run)
-    kind = getattr(args, "kind", None) or ("sizing" if _is_sizing(ds) else "surfaces")
+    ds = open_run(run)
+    kind = kind or ("sizing" if _is_sizing(ds) else "surfaces")
     if kind not in KINDS:
-        raise CaseError(str(args.run), "--kind", f"unknown kind {kind!r}; choose one of {', '.join(KINDS)}")
-    target = output_path(args.run, kind, args.out)
+        raise CaseError(str(run), "--kind", f"unknown kind {kind!r}; choose one of {', '.join(KINDS)}")
+    target = output_path(run, kind, out)
     if _is_sizing(ds) and kind != "sizing":
-        raise CaseError(str(args.run), "--kind", "this is a sizing Dataset (dimension thickness); use --kind sizing")
-    times = getattr(args, "times", None)
+        raise CaseError(str(run), "--kind", "this is a sizing Dataset (dimension thickness); use --kind sizing")
     if times and kind != "profiles":
-        raise CaseError(str(args.run), "--times", "only --kind profiles uses --times")
+        raise CaseError(str(run), "--times", "only --kind profiles uses --times")
     fig = plot(ds, kind, times)
     try:
-        written = save_figure(fig, target, {"title": str(ds.attrs.get("title", "")), "caution": _caution(ds)})
+        return save_figure(fig, target, {"title": str(ds.attrs.get("title", "")), "caution": _caution(ds)})
     except FileExistsError:
         raise CaseError(str(target), "-o", "exists already; layers never overwrites a file (choose another name)") from None
-    print(f"written: {written}")
-    return 0
 
 
 __all__ = [
     "CARPET_CMAP", "DPI", "FIGSIZE", "KINDS", "LINESTYLES", "MARKERS", "PALETTE",
-    "LayerBand", "axis_label", "cmd_plot", "layer_bands", "new_figure", "open_run", "output_path",
-    "plot", "plot_carpet", "plot_comparison", "plot_profiles", "plot_sizing", "plot_surfaces", "pretty_units",
+    "LayerBand", "axis_label", "layer_bands", "new_figure", "open_run", "output_path",
+    "plot", "plot_carpet", "plot_comparison", "plot_file", "plot_profiles", "plot_sizing", "plot_surfaces", "pretty_units",
     "save_figure", "select_times",
 ]

@@ -5,16 +5,14 @@ These functions build strings; only :mod:`layers.cli` prints them.
 
 from __future__ import annotations
 
-import argparse
 import math
-from pathlib import Path
 from typing import TYPE_CHECKING, NamedTuple
 
 import numpy as np
 import xarray as xr
 
 from layers import CAUTION
-from layers.case import BoundarySpec, Case, load_case
+from layers.case import BoundarySpec, Case
 from layers.errors import CaseError
 from layers.mesh import Mesh
 
@@ -470,22 +468,12 @@ def periodic_report(case: Case, period: float) -> PeriodicReport:
     return PeriodicReport(dc, "\n".join(lines))
 
 
-def cmd_periodic(args: argparse.Namespace) -> int:
-    """``layers periodic CASE [--period 24h] [-o OUT.nc]``."""
-    from layers.results import write_output
-    from layers.units import parse_quantity
-
-    if args.out and Path(args.out).exists():
-        raise CaseError(args.out, "-o", "exists already; layers never overwrites a file (choose another name)")
-    case = load_case(args.case)
-    period = parse_quantity(args.period, "duration", file="(command line)", key="--period")
-    if period <= 0:
-        raise CaseError("(command line)", "--period", "must be positive")
-    dc, text = periodic_report(case, period)
-    ds = dc.to_dataset(title=case.title)
+def periodic_dataset(case: Case, report: PeriodicReport) -> xr.Dataset:
+    """What ``layers periodic -o`` writes: the characteristics with the case's provenance."""
     from layers import __version__
     from layers.results import _now, cf_encoding
 
+    ds = report.characteristics.to_dataset(title=case.title)
     ds.attrs.update({
         "product": "periodic",
         "case": case.text,
@@ -495,11 +483,4 @@ def cmd_periodic(args: argparse.Namespace) -> int:
         "geometry": case.geometry,
         "caution": CAUTION,
     })
-
-    cf_encoding(ds, f"layers periodic {case.path}")
-    print(text)
-    written = write_output(ds, args.out)
-    if written:
-        print(f"written: {written}")
-    print(f"caution: {CAUTION}")
-    return 0
+    return cf_encoding(ds, f"layers periodic {case.path}")
