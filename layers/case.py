@@ -164,6 +164,7 @@ class SizingSpec:
     max_heat_loss: float | None = None           # [W m-2 | W m-1 | W]
     min_freeze_time: float | None = None         # [s]
     max_ice_fraction: float = 0.25               # [-]
+    design_time: np.datetime64 | None = None     # UTC; None: the run's start
 
 
 @dataclass
@@ -340,7 +341,7 @@ def parse_case(data: dict, *, file: str = "<case>", text: str = "", base_dir: Pa
 
     sizing = None
     if top.has("sizing"):
-        sizing = _parse_sizing(_Table(top.get("sizing"), file, "sizing"), layers, geometry, inside, outside)
+        sizing = _parse_sizing(_Table(top.get("sizing"), file, "sizing"), layers, geometry, inside, outside, time, timezone)
     top.finish()
     return Case(
         path=file,
@@ -790,7 +791,9 @@ def _parse_time(t: _Table, series: Series | None, timezone: str) -> TimePlan:
     )
 
 
-def _parse_sizing(t: _Table, layers, geometry: str, inside: BoundarySpec, outside: BoundarySpec) -> SizingSpec:
+def _parse_sizing(
+    t: _Table, layers, geometry: str, inside: BoundarySpec, outside: BoundarySpec, time: TimePlan, timezone: str
+) -> SizingSpec:
     file = t.file
     layer = t.get("layer", required=True)
     if isinstance(layer, bool) or not isinstance(layer, int) or not 1 <= layer <= len(layers):
@@ -846,6 +849,12 @@ def _parse_sizing(t: _Table, layers, geometry: str, inside: BoundarySpec, outsid
         if not 0 < f <= 1:
             raise t.error("max_ice_fraction", "must be between 0 and 1")
         out["max_ice_fraction"] = f
+    if t.has("design_time"):
+        when = _parse_datetime(t.get("design_time"), file, t.key("design_time"), timezone)
+        end = time.start + np.timedelta64(int(round(time.duration)), "s")
+        if not time.start <= when <= end:
+            raise t.error("design_time", f"must lie within the run ({_iso(time.start)} to {_iso(end)}), got {_iso(when)}")
+        out["design_time"] = when
     t.finish()
     if not any(k in out for k in ("max_surface_temperature", "dew_point_margin", "max_heat_loss", "min_freeze_time")):
         raise CaseError(file, "sizing", "names no criterion (max_surface_temperature, dew_point_margin, max_heat_loss or min_freeze_time)")

@@ -112,6 +112,7 @@ def cmd_size(args: argparse.Namespace) -> int:
     extra = write_output(ds, args.out)
     layer = case.sizing.layer
     print(f"{case.title}: sizing layer {layer} ({case.layers[layer - 1].name})")
+    print(f"design conditions: {ds.attrs['design_conditions']}")
     print(criteria_table(ds))
     rec = ds.attrs["recommended_thickness"]
     if math.isfinite(rec):

@@ -115,7 +115,8 @@ def check_report(case: Case) -> str:
         st = steady_state(case)
         unit = {"planar": "W/m2", "cylinder": "W/m", "sphere": "W"}[case.geometry]
         lines.append(
-            f"steady:    heat flow {float(st.heat_flow[0]):.4g} {unit} inside to outside at the start-time conditions; "
+            f"steady:    heat flow {float(st.heat_flow[0]):.4g} {unit} inside to outside at the "
+            f"{'design' if case.sizing is not None and case.sizing.design_time is not None else 'start-time'} conditions; "
             f"surfaces {float(st.surface_temperature_inside[0]):.2f} / {float(st.surface_temperature_outside[0]):.2f} degC"
         )
         if any(sp.solar_irradiance is not None or sp.sky_temperature is not None or sp.values.get("sky_auto") for sp in (case.inside, case.outside)):

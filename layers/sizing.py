@@ -20,7 +20,7 @@ from layers import CAUTION, __version__
 from layers.case import Case
 from layers.errors import CaseError
 from layers.results import HEAT_FLOW_UNITS, _now, cf_encoding
-from layers.steady import steady_state
+from layers.steady import design_time, steady_state
 
 CAUTION_TOUCH = (
     "Touch limits depend on the contact time and the surface material (ISO 13732-1:2006; "
@@ -171,7 +171,8 @@ def size(case: Case, progress: Callable[[int, int], None] | None = None) -> xr.D
         "geometry": case.geometry,
         "sized_layer": s.layer,
         "recommended_thickness": recommended,
-        "design_conditions": "boundary values at the case's start time",
+        "design_conditions": f"boundary values at {np.datetime_as_string(design_time(case), unit='m')}Z"
+        + (" ([sizing] design_time)" if s.design_time is not None else " (the run's start)"),
         "caution": " ".join(cautions(case)),
         **attrs,
     }

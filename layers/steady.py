@@ -73,9 +73,16 @@ def _area(geometry: str, r: np.ndarray) -> np.ndarray:
     return 4.0 * math.pi * r**2
 
 
+def design_time(case: Case) -> np.datetime64:
+    """When the steady design conditions are taken: ``[sizing] design_time``, else the run's start."""
+    if case.sizing is not None and case.sizing.design_time is not None:
+        return case.sizing.design_time
+    return case.time.start
+
+
 def _value(case: Case, forcing) -> float:
-    """A boundary quantity at the case's start time (the design condition)."""
-    return float(np.asarray(forcing(np.array([case.time.start])), dtype=float)[0])
+    """A boundary quantity at the design time (see :func:`design_time`)."""
+    return float(np.asarray(forcing(np.array([design_time(case)])), dtype=float)[0])
 
 
 def _film(case: Case, spec: BoundarySpec, area: np.ndarray, diameter: np.ndarray, t_surface: np.ndarray, t_air: float) -> np.ndarray:

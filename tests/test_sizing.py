@@ -298,3 +298,43 @@ def test_pipe_orientation_errors(write_case, tmp_path, capsys, change, key, word
     assert main(["check", str(path)]) == 2
     err = capsys.readouterr().err.strip()
     assert key in err and words in err and "\n" not in err
+
+
+def test_design_time_takes_the_boundary_values_at_that_moment(write_case, capsys):
+    """A daily cycle 25 +- 10 degC peaking at 15:00: sizing at design_time
+    15:00 equals sizing with a constant 35 degC air (the cycle's value then,
+    mean + amplitude), to round-off; at the start (00:00) it does not."""
+    base = """
+[geometry]
+kind = "cylinder"
+inner_radius = "30 mm"
+[[layers]]
+material = "mineral-wool"
+thickness = "50 mm"
+[inside]
+type = "temperature"
+surface_temperature = "150 degC"
+[outside]
+type = "film"
+air_temperature = AIR
+film_coefficient = "10 W/(m2*K)"
+[time]
+start = "2026-07-01T00:00"
+duration = "1 d"
+step = "1 h"
+[sizing]
+layer = 1
+thicknesses = ["30 mm", "50 mm", "80 mm"]
+max_surface_temperature = "50 degC"
+"""
+    table = '[series.cycles.air]\nmean = "25 degC"\namplitude = "10 K"\npeak_hour = 15\n'
+    cycled = base.replace("AIR", '"series:air"')
+    at_peak = size(load_case(write_case(cycled + 'design_time = "2026-07-01T15:00"\n' + table, "peak.toml")))
+    constant = size(load_case(write_case(base.replace("AIR", '"35 degC"'), "const.toml")))
+    at_start = size(load_case(write_case(cycled + table, "start.toml")))
+    np.testing.assert_allclose(at_peak["surface_temperature_outside"], constant["surface_temperature_outside"], rtol=1e-12)
+    assert "15:00" in at_peak.attrs["design_conditions"]
+    assert np.all(at_start["surface_temperature_outside"].values < at_peak["surface_temperature_outside"].values)
+    outside = cycled + 'design_time = "2026-07-03T15:00"\n' + table
+    assert main(["check", str(write_case(outside, "late.toml"))]) == 2
+    assert "sizing.design_time" in capsys.readouterr().err
