@@ -85,11 +85,19 @@ def _value(case: Case, forcing) -> float:
     return float(np.asarray(forcing(np.array([design_time(case)])), dtype=float)[0])
 
 
-def _film(case: Case, spec: BoundarySpec, area: np.ndarray, diameter: np.ndarray, t_surface: np.ndarray, t_air: float) -> np.ndarray:
-    """Surface coefficient [W m-2 K-1] of a film boundary at surface temperatures ``t_surface``."""
+def _film(
+    case: Case, spec: BoundarySpec, area: np.ndarray, diameter: np.ndarray, t_surface: np.ndarray, t_air: float
+) -> tuple[np.ndarray, np.ndarray]:
+    """Surface coefficient [W m-2 K-1] of a film boundary at surface
+    temperatures ``t_surface``, and the temperature it drives towards [degC].
+
+    For an ``"auto"`` film that is the convective-radiative mean
+    (h_c t_air + h_r t_rad) / (h_c + h_r), as in the transient path
+    (:class:`layers.boundaries.AutoFilm`); for a fixed film, the air.
+    """
     if not spec.auto_film:
         rs = spec.surface_resistance
-        return np.full_like(t_surface, math.inf if rs == 0 else 1.0 / rs)
+        return np.full_like(t_surface, math.inf if rs == 0 else 1.0 / rs), np.full_like(t_surface, t_air)
     from layers.convection import body_convection_coefficient, iso6946_external_convection, iso6946_internal_convection
     from layers.radiation import jacket_emissivity
 
@@ -111,7 +119,7 @@ def _film(case: Case, spec: BoundarySpec, area: np.ndarray, diameter: np.ndarray
     t_rad = _value(case, spec.radiant_temperature) if spec.radiant_temperature is not None else t_air
     ts, tr = t_surface + KELVIN, t_rad + KELVIN
     hr = eps * STEFAN_BOLTZMANN * (ts * ts + tr * tr) * (ts + tr)
-    return hc + hr
+    return hc + hr, (hc * t_air + hr * t_rad) / (hc + hr)
 
 
 def steady_state(case: Case, layer: int | None = None, thicknesses: np.ndarray | None = None) -> SteadyResult:
@@ -178,21 +186,22 @@ def steady_state(case: Case, layer: int | None = None, thicknesses: np.ndarray |
                 resist.append(_shape(geometry, a, b) / lam)
             contact = spec.contact_resistance / _area(geometry, b) if spec.contact_resistance else np.zeros(n_cand)
             resist.append(contact)
+        drive_in, drive_out = t_in, t_out
         if inside.kind == "film":
-            h_in = _film(case, inside, area_in, 2 * radii[0][0], ts_in, t_in)
+            h_in, drive_in = _film(case, inside, area_in, 2 * radii[0][0], ts_in, t_in)
             r_in = 1.0 / (h_in * area_in)
         elif inside.kind == "contents" and inside.surface_resistance:
             r_in = inside.surface_resistance / area_in
         else:
             r_in = np.zeros(n_cand)
         if outside.kind == "film":
-            h_out = _film(case, outside, area_out, diameter, ts_out, t_out)
+            h_out, drive_out = _film(case, outside, area_out, diameter, ts_out, t_out)
             r_o = 1.0 / (h_out * area_out)
         else:
             r_o = np.zeros(n_cand)
-        q = (t_in - t_out) / (r_in + sum(resist) + r_o)
+        q = (drive_in - drive_out) / (r_in + sum(resist) + r_o)
         new = np.empty_like(faces)
-        theta = t_in - q * r_in
+        theta = drive_in - q * r_in
         for j in range(n_layers):
             new[:, j, 0] = theta
             theta = theta - q * resist[2 * j]

@@ -338,3 +338,36 @@ max_surface_temperature = "50 degC"
     outside = cycled + 'design_time = "2026-07-03T15:00"\n' + table
     assert main(["check", str(write_case(outside, "late.toml"))]) == 2
     assert "sizing.design_time" in capsys.readouterr().err
+
+
+def test_steady_surface_balance_with_a_radiant_temperature_apart_from_the_air(write_case):
+    """Hot pipe in 20 degC air facing surroundings at -10 degC: the steady
+    solution closes the surface balance
+        2 pi k (T_i - T_s) / ln(r_o/r_i) = pi D [h_c (T_s - T_air) + h_r (T_s - T_rad)]
+    solved here by brentq, with h_c from layers.convection (checked against
+    ht in test_convection) and h_r = eps sigma (T_s^2 + T_rad^2)(T_s + T_rad)
+    (exact, absolute temperatures). Tolerance 1e-6 K: both sides iterate to
+    1e-6 K or better. The transient path's steady start agrees to 1e-4 K."""
+    from scipy.optimize import brentq
+
+    from layers.convection import body_convection_coefficient
+    from layers.radiation import STEFAN_BOLTZMANN
+    from layers.simulate import simulate
+
+    text = VERTICAL_PIPE.replace('orientation = "vertical"\nheight = "3 m"\n', "").replace(
+        "emissivity = 0.9", 'emissivity = 0.9\nradiant_temperature = "-10 degC"'
+    )
+    case = load_case(write_case(text))
+    st = steady_state(case)
+    ri, ro, k, ti, ta, tr, eps = 0.025, 0.065, 0.04, 90.0, 20.0, -10.0, 0.9
+
+    def balance(ts):
+        hc = float(body_convection_coefficient("cylinder", ts, ta, 2 * ro, 0.0))
+        tsk, trk = ts + 273.15, tr + 273.15
+        hr = eps * STEFAN_BOLTZMANN * (tsk**2 + trk**2) * (tsk + trk)
+        return 2 * math.pi * k * (ti - ts) / math.log(ro / ri) - math.pi * 2 * ro * (hc * (ts - ta) + hr * (ts - tr))
+
+    ts = brentq(balance, -10.0, 90.0, xtol=1e-10)
+    assert float(st.surface_temperature_outside[0]) == pytest.approx(ts, abs=1e-6)
+    ds = simulate(case)
+    assert float(ds.surface_temperature_outside[0]) == pytest.approx(ts, abs=1e-4)
