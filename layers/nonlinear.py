@@ -352,6 +352,7 @@ def march_nonlinear(
     w2 = (1.0 - g) / (2.0 - g)
     a2 = 1.0 / (g * (2.0 - g))
     c2 = (1.0 - g) ** 2 / (g * (2.0 - g))
+    h_before = math.nan  # the contents' enthalpy one step before the current one
     for k in range(n_steps):
         f0, fw0, qi0, qo0 = st.net_heat(temp, tw, c)
         e0 = st.cap * temp
@@ -381,10 +382,18 @@ def march_nonlinear(
         if water is not None:
             t_k = seconds[k]
             if math.isnan(freeze_t) and h_new <= 0.0 < h_old:
-                freeze_t = t_k + h * h_old / (h_old - h_new)
+                # The enthalpy's rate changes at 0 degC (the pipe wall stops
+                # cooling with the water), so interpolating across the step
+                # is only first order; extrapolate with the liquid-side rate
+                # of the step before, which keeps the crossing time second order.
+                if h_before > h_old:
+                    freeze_t = t_k + min(h, h_old * h / (h_before - h_old))
+                else:
+                    freeze_t = t_k + h * h_old / (h_old - h_new)
             target = -ice_target * water.latent
             if math.isnan(ice_t) and h_new <= target < h_old:
                 ice_t = t_k + h * (h_old - target) / (h_old - h_new)
+        h_before = h_old
         temp, h_w, c = new, h_new, c1
         tw = float(water.state(h_w)[0]) if water is not None else math.nan
         if (k + 1) % output_every == 0:
