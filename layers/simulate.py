@@ -179,6 +179,31 @@ def run_nonlinear(case: Case, mesh: Mesh, progress=None) -> tuple[NonlinearResul
     return result, cycles
 
 
+#: A start this far from a fixed boundary temperature counts as a step [K].
+STEP_WARNING = 1.0
+
+
+def _warn_crank_nicolson_step(case: Case) -> None:
+    """Crank-Nicolson is not L-stable: after a sudden change at a surface its
+    fine-mesh modes flip sign from step to step instead of decaying, so
+    surface fluxes ring. Say so when a run starts from a temperature that
+    a temperature boundary (or a fluid in a bore) does not share."""
+    if case.time.scheme != "crank-nicolson" or not isinstance(case.time.initial, float):
+        return
+    for spec in (case.inside, case.outside):
+        forcing = spec.surface_temperature if spec.kind == "temperature" else None
+        if forcing is not None:
+            start = float(forcing(np.array([case.time.start]))[0])
+            if abs(start - case.time.initial) > STEP_WARNING:
+                warnings.warn(
+                    f"{case.path}: crank-nicolson after a {abs(start - case.time.initial):.3g} K step at the "
+                    f"{spec.side} surface rings (fluxes oscillate for many steps); tr-bdf2 or backward-euler damp it",
+                    UserWarning,
+                    stacklevel=3,
+                )
+                return
+
+
 def simulate(case: Case, progress: Callable[[int, int], None] | None = None) -> xr.Dataset:
     """Run a case and return its results as a labelled Dataset.
 
@@ -195,6 +220,7 @@ def simulate(case: Case, progress: Callable[[int, int], None] | None = None) -> 
         Variables and attributes as the product contract lists them.
     """
     mesh = mesh_for(case)
+    _warn_crank_nicolson_step(case)
     extra: dict = {}
     attrs: dict = {}
     if needs_nonlinear(case, mesh):

@@ -269,3 +269,29 @@ def test_filled_values_are_reported(tmp_path, capsys):
     (run,) = (tmp_path / "runs").glob("*.nc")
     with xr.open_dataset(run) as ds:
         assert ds.attrs["series_filled"] == "t_out: 1 values"
+
+
+@pytest.mark.parametrize("scheme, warned", [("crank-nicolson", True), ("tr-bdf2", False)])
+def test_crank_nicolson_after_a_step_is_flagged(tmp_path, capsys, scheme, warned):
+    case = tmp_path / "step.toml"
+    case.write_text(
+        f"""
+[[layers]]
+material = "concrete"
+thickness = "100 mm"
+[inside]
+type = "temperature"
+surface_temperature = "100 degC"
+[outside]
+type = "adiabatic"
+[time]
+start = "2026-01-01T00:00"
+duration = "1 h"
+step = "5 min"
+initial = "20 degC"
+scheme = "{scheme}"
+"""
+    )
+    assert main(["run", str(case), "--archive", str(tmp_path / "runs"), "--quiet"]) == 0
+    err = capsys.readouterr().err
+    assert ("rings" in err) == warned and err.count("\n") == int(warned)
