@@ -240,14 +240,14 @@ _ENTRY_FIELDS = [f.name for f in dataclasses.fields(ArchiveEntry) if f.name != "
 OTHER_PRODUCTS = {
     "sizing": ("passes_all", "a sizing result (layers size), not a run"),
     "periodic": ("periodic_transmittance", "dynamic characteristics (layers periodic), not a run"),
-    "comparison": ("comparison_of_runs", "a comparison of runs (layers compare), not a run"),
+    "comparison": (None, "a comparison of runs (layers compare), not a run"),  # only by its attribute
 }
 
 
 def _not_a_run(attrs: Sequence[str], variables: Sequence[str], product: str | None = None) -> str | None:
     """Why a readable netCDF file is not a layers run, or None if it is one."""
     for name, (variable, reason) in OTHER_PRODUCTS.items():
-        if product == name or (product is None and variable in variables):
+        if product == name or (product is None and variable is not None and variable in variables):
             return reason
     missing_attrs = [a for a in RUN_ATTRIBUTES if a not in attrs]
     if missing_attrs:
@@ -297,7 +297,7 @@ def _entry_from(nc: Any, path: Path) -> ArchiveEntry:
     problem = _not_a_run(names, nc.variables, product)
     if problem:
         known = product if product in OTHER_PRODUCTS else next(
-            (name for name, (variable, _) in OTHER_PRODUCTS.items() if variable in nc.variables), None
+            (name for name, (variable, _) in OTHER_PRODUCTS.items() if variable is not None and variable in nc.variables), None
         )
         return ArchiveEntry(path, title=_text(nc, names, "title"), problem=problem, product=known)
     summary = {n[len(SUMMARY_PREFIX):]: nc.getncattr(n) for n in names if n.startswith(SUMMARY_PREFIX)}
@@ -1250,8 +1250,9 @@ def check_comparison_output(out: str | os.PathLike) -> None:
     suffix = Path(out).suffix.lower()
     if suffix not in (*IMAGE_SUFFIXES, ".nc"):
         raise CaseError(str(out), "-o", "use a .png, .svg or .pdf file for a plot, or .nc for the combined Dataset")
-    if Path(out).exists():
-        raise CaseError(str(out), "-o", "exists already; layers never overwrites a file (choose another name)")
+    from layers.results import refuse_existing
+
+    refuse_existing(out)
 
 
 def write_comparison(comparison: Comparison, out: str | os.PathLike) -> Path:
@@ -1268,4 +1269,6 @@ def write_comparison(comparison: Comparison, out: str | os.PathLike) -> Path:
     try:
         return save_figure(fig, out, {"title": str(comparison.dataset.attrs.get("title", "")), "caution": CAUTION})
     except FileExistsError:
-        raise CaseError(str(out), "-o", "exists already; layers never overwrites a file (choose another name)") from None
+        from layers.results import exists_error
+
+        raise exists_error(out) from None

@@ -12,7 +12,6 @@ import os
 import sys
 import warnings
 from collections.abc import Sequence
-from pathlib import Path
 
 from layers import CAUTION, __version__
 from layers.errors import CaseError
@@ -50,11 +49,10 @@ class _Progress:
 def cmd_run(args: argparse.Namespace) -> int:
     from layers.case import load_case
     from layers.report import run_cautions, run_summary
-    from layers.results import archive, write_output
+    from layers.results import archive, refuse_existing, write_output
     from layers.simulate import simulate
 
-    if args.out and Path(args.out).exists():
-        raise CaseError(args.out, "-o", "exists already; layers never overwrites a file (choose another name)")
+    refuse_existing(args.out)
     if args.again and args.case:
         raise CaseError("(command line)", "--again", f"give a case file or --again RUN.nc, not both (got {args.case})")
     if args.again:
@@ -95,11 +93,10 @@ def cmd_size(args: argparse.Namespace) -> int:
     import math
 
     from layers.case import load_case
-    from layers.results import archive, write_output
+    from layers.results import archive, refuse_existing, write_output
     from layers.sizing import cautions, criteria_table, size
 
-    if args.out and Path(args.out).exists():
-        raise CaseError(args.out, "-o", "exists already; layers never overwrites a file (choose another name)")
+    refuse_existing(args.out)
     case = load_case(args.case)
     if case.sizing is None:
         raise CaseError(case.path, "sizing", "is required by 'layers size' (add a [sizing] table)")
@@ -151,11 +148,10 @@ def cmd_periodic(args: argparse.Namespace) -> int:
     """``layers periodic CASE [--period 24h] [-o OUT.nc]``."""
     from layers.case import load_case
     from layers.report import periodic_dataset, periodic_report
-    from layers.results import write_output
+    from layers.results import refuse_existing, write_output
     from layers.units import parse_quantity
 
-    if args.out and Path(args.out).exists():
-        raise CaseError(args.out, "-o", "exists already; layers never overwrites a file (choose another name)")
+    refuse_existing(args.out)
     case = load_case(args.case)
     period = parse_quantity(args.period, "duration", file="(command line)", key="--period")
     if period <= 0:

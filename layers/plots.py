@@ -30,6 +30,7 @@ import math
 import os
 import re
 import sys
+import textwrap
 import tomllib
 from dataclasses import dataclass
 from pathlib import Path
@@ -40,7 +41,7 @@ import xarray as xr
 
 from layers import CAUTION, __version__
 from layers.errors import CaseError
-from layers.results import write_once
+from layers.results import exists_error, write_once
 
 #: Figure size [in] and resolution [dots per inch] of every figure.
 FIGSIZE = (10.0, 6.0)
@@ -613,8 +614,6 @@ def plot_comparison(combined: xr.Dataset, labels: list[str]) -> Any:
     for ax in axes[:-1]:
         ax.set_xlabel("")
     # long labels (many differing keys) get one column, wrapped, so none is cut off
-    import textwrap
-
     wrapped = ["\n".join(textwrap.wrap(label, 90)) or label for label in labels]
     columns = 1 if max(len(label) for label in labels) > 45 else min(3, len(labels))
     for line, text in zip(axes[-1].lines, wrapped):
@@ -947,7 +946,7 @@ def output_path(run: str | os.PathLike, kind: str, out: str | os.PathLike | None
     if path.suffix.lower() not in FORMATS:
         raise CaseError(str(path), "-o", f"unknown figure format {path.suffix or '(none)'!r}; use .png, .svg or .pdf")
     if path.exists():
-        raise CaseError(str(path), "-o", "exists already; layers never overwrites a file (choose another name)")
+        raise exists_error(path)
     return path
 
 
@@ -1039,7 +1038,7 @@ def plot_file(
     try:
         return save_figure(fig, target, {"title": str(ds.attrs.get("title", "")), "caution": _caution(ds)})
     except FileExistsError:
-        raise CaseError(str(target), "-o", "exists already; layers never overwrites a file (choose another name)") from None
+        raise exists_error(target) from None
 
 
 __all__ = [

@@ -119,7 +119,7 @@ def check_report(case: Case) -> str:
             f"{'design' if case.sizing is not None and case.sizing.design_time is not None else 'start-time'} conditions; "
             f"surfaces {float(st.surface_temperature_inside[0]):.2f} / {float(st.surface_temperature_outside[0]):.2f} degC"
         )
-        if any(sp.solar_irradiance is not None or sp.sky_temperature is not None or sp.values.get("sky_auto") for sp in (case.inside, case.outside)):
+        if any(_has_sun_or_sky(sp) for sp in (case.inside, case.outside)):
             lines.append("           (without sun and sky exchange; a run's steady start includes them)")
         if case.geometry == "cylinder" and not (case.inside.auto_film or case.outside.auto_film):
             lines.append(f"           resistance per metre, fluid to air: {total:.4g} m*K/W (films as given; k at 10 degC)")
@@ -188,7 +188,7 @@ def harmonic(values: np.ndarray, seconds: np.ndarray, period: float) -> complex:
 
 
 class ObservedResponse(NamedTuple):
-    """A run's response to a daily outside cycle, over its last whole period."""
+    """A run's response to a generated outside cycle, over its last whole period."""
 
     decrement_factor: float  # [-]
     lag: float               # delay of the inward heat flow behind the outside air [h]
@@ -420,6 +420,10 @@ def surface_resistances(case: Case) -> tuple[float, float]:
     return out[0], out[1]
 
 
+def _has_sun_or_sky(spec: BoundarySpec) -> bool:
+    return spec.solar_irradiance is not None or spec.sky_temperature is not None or bool(spec.values.get("sky_auto"))
+
+
 def _design_wind(case: Case, spec: BoundarySpec) -> float:
     """A constant wind speed of the case [m s-1], else ISO 6946's design 4 m/s."""
     wind = spec.wind_speed
@@ -434,7 +438,7 @@ def auto_film_note(case: Case) -> str | None:
             how = (f"heat flow {spec.heat_flow_direction}" if spec.side == "inside"
                    else f"wind {_design_wind(case, spec):g} m/s")
             parts.append(f"{spec.side}: ISO 6946 expression, emissivity {spec.emissivity:g}, {how}")
-        if spec.kind == "film" and (spec.solar_irradiance is not None or spec.sky_temperature is not None):
+        if spec.kind == "film" and _has_sun_or_sky(spec):
             parts.append(f"{spec.side}: sun and sky do not enter the dynamic characteristics")
     return "  (auto films as fixed resistances: " + "; ".join(parts) + ")" if parts else None
 

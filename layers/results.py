@@ -197,6 +197,17 @@ def write_new(ds: xr.Dataset, path: str | os.PathLike) -> Path:
     return write_once(path, lambda tmp: ds.to_netcdf(tmp, engine="netcdf4"))
 
 
+def exists_error(path: str | os.PathLike) -> CaseError:
+    """The one message for an output that would overwrite a file (key ``-o``)."""
+    return CaseError(str(path), "-o", "exists already; layers never overwrites a file (choose another name)")
+
+
+def refuse_existing(path: str | os.PathLike | None) -> None:
+    """Refuse an output path that exists, before any work is done."""
+    if path and Path(path).exists():
+        raise exists_error(path)
+
+
 def write_output(ds: xr.Dataset, out: str | os.PathLike | None) -> Path | None:
     """The ``-o`` copy of a command's Dataset, if asked for (never over a file).
 
@@ -210,7 +221,7 @@ def write_output(ds: xr.Dataset, out: str | os.PathLike | None) -> Path | None:
     try:
         return write_new(ds, out)
     except FileExistsError:
-        raise CaseError(str(out), "-o", "exists already; layers never overwrites a file (choose another name)") from None
+        raise exists_error(out) from None
 
 
 def write_once(path: str | os.PathLike, write: Callable[[str], None]) -> Path:
