@@ -189,6 +189,7 @@ class Case:
     orientation: str = "horizontal"     # cylinders: horizontal | vertical
     height: float | None = None         # vertical cylinder: height of the run [m]
     provenance: dict[str, str] = field(default_factory=dict)  # a re-run: where it came from
+    record_paths: bool = False  # record the user's absolute case and series paths in results
 
     @property
     def stem(self) -> str:
@@ -210,13 +211,21 @@ class Case:
 # reading
 
 
-def load_case(path: str | Path) -> Case:
+def base_name(name: str) -> str:
+    """The last component of a file name written with ``/`` or ``\\`` separators."""
+    return name.replace("\\", "/").rstrip("/").rsplit("/", 1)[-1]
+
+
+def load_case(path: str | Path, *, series_dir: Path | None = None) -> Case:
     """Read and validate a case file.
 
     Parameters
     ----------
     path : str or Path
         The TOML case file.
+    series_dir : Path, optional
+        Look for the series file by its base name in this folder, whatever
+        folder the case names (used to re-run an archived case in private).
 
     Raises
     ------
@@ -236,10 +245,12 @@ def load_case(path: str | Path) -> Case:
         raise CaseError(file, "(file)", "is not UTF-8 text") from None
     except tomllib.TOMLDecodeError as exc:
         raise CaseError(file, "(syntax)", f"malformed TOML: {exc}") from None
-    return parse_case(data, file=file, text=text, base_dir=path.parent)
+    return parse_case(data, file=file, text=text, base_dir=path.parent, series_dir=series_dir)
 
 
-def parse_case(data: dict, *, file: str = "<case>", text: str = "", base_dir: Path | None = None) -> Case:
+def parse_case(
+    data: dict, *, file: str = "<case>", text: str = "", base_dir: Path | None = None, series_dir: Path | None = None
+) -> Case:
     """Validate an already-parsed TOML document (see :func:`load_case`)."""
     base_dir = base_dir or Path(".")
     top = _Table(data, file, "")
@@ -304,7 +315,7 @@ def parse_case(data: dict, *, file: str = "<case>", text: str = "", base_dir: Pa
         )
 
     # series and cycles
-    series, cycles, columns_kind, timezone = _parse_series(top.get("series"), file, base_dir)
+    series, cycles, columns_kind, timezone = _parse_series(top.get("series"), file, base_dir, series_dir)
 
     forcing_ctx = _ForcingContext(file, series, cycles, columns_kind, timezone)
     inside = _parse_boundary(top.get("inside", required=True), "inside", geometry, forcing_ctx, pipe_orientation)
@@ -460,7 +471,7 @@ def _column_kind(unit: str) -> str:
     return "unknown"
 
 
-def _parse_series(value: Any, file: str, base_dir: Path):
+def _parse_series(value: Any, file: str, base_dir: Path, series_dir: Path | None = None):
     if value is None:
         return None, {}, {}, "UTC"
     t = _Table(value, file, "series")
@@ -510,7 +521,9 @@ def _parse_series(value: Any, file: str, base_dir: Path):
         if not isinstance(embed, bool):
             raise t.error("embed_series", "must be true or false")
         path = Path(fname)
-        if not path.is_absolute():
+        if series_dir is not None:
+            path = series_dir / base_name(fname)
+        elif not path.is_absolute():
             path = base_dir / path
         series = read_series(
             path, specs, time=time_col, timezone=timezone, fill_gaps=fill_s, max_interval=max_s, case_file=file

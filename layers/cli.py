@@ -12,6 +12,7 @@ import os
 import sys
 import warnings
 from collections.abc import Sequence
+from pathlib import Path
 
 from layers import CAUTION, __version__
 from layers.errors import CaseError
@@ -58,13 +59,16 @@ def cmd_run(args: argparse.Namespace) -> int:
     if args.again:
         from layers.provenance import load_archived_case
 
-        case = load_archived_case(args.again)
+        case = load_archived_case(args.again, tuple(Path(d) for d in args.series_dir or ()))
     elif args.case:
         case = load_case(args.case)
     else:
         raise CaseError("(command line)", "CASE", "give a case file, or --again RUN.nc")
+    if args.series_dir and not args.again:
+        raise CaseError("(command line)", "--series-dir", "is for --again RUN.nc (a case file names its own series)")
     if args.label:
         case.label = args.label
+    case.record_paths = bool(args.record_paths)
     progress = _Progress(args.quiet, case.stem)
     try:
         ds = simulate(case, progress=progress)
@@ -220,6 +224,8 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("-o", "--out", help="also write the result to this netCDF file (never overwritten)")
     r.add_argument("--archive", help="archive folder (default: $LAYERS_ARCHIVE or runs/)")
     r.add_argument("--label", help="a label stored with the run")
+    r.add_argument("--series-dir", action="append", metavar="DIR", help="with --again: a folder to look in for the series (repeatable)")
+    r.add_argument("--record-paths", action="store_true", help="record the absolute paths of the case and series files in the run")
     r.add_argument("-q", "--quiet", action="store_true", help="no progress bar and no summary (the file written and the caution are still printed)")
     r.set_defaults(func=cmd_run)
 

@@ -127,7 +127,6 @@ def to_dataset(
         "history": f"{_now()} layers run {Path(case.path).name}",
         "case": case.text,
         "case_file": Path(case.path).name,
-        "case_path": str(Path(case.path).resolve()),
         "case_sha256": case.sha256,
         "software_version": __version__,
         "created": _now(),
@@ -149,12 +148,15 @@ def to_dataset(
     if case.series is not None:
         ds.attrs["series_file"] = Path(case.series.file).name
         ds.attrs["series_sha256"] = case.series.sha256
-        ds.attrs["series_path"] = str(Path(case.series.file).resolve())
+        if case.record_paths:
+            ds.attrs["series_path"] = str(Path(case.series.file).resolve())
         if case.series.embedded is not None:
             ds.attrs["series_embedded"] = case.series.embedded
         filled = {k: v for k, v in case.series.filled.items() if v}
         if filled:
             ds.attrs["series_filled"] = ", ".join(f"{k}: {v} values" for k, v in filled.items())
+    if case.record_paths:
+        ds.attrs["case_path"] = str(Path(case.path).resolve())
     if case.provenance:
         ds.attrs.update(case.provenance)
         ds.attrs["history"] = f"{_now()} layers run --again {Path(case.provenance['rerun_of']).name}"

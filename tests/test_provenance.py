@@ -10,9 +10,11 @@ import time
 from pathlib import Path
 
 import numpy as np
+import pytest
 import xarray as xr
 
 from layers.cli import main
+from layers.errors import CaseError
 
 CASE = """
 title = "provenance"
@@ -63,9 +65,11 @@ def test_run_records_provenance_and_reruns_from_embedded_series(tmp_path, capsys
         np.testing.assert_array_equal(b["temperature"].values, a["temperature"].values)
         assert b.attrs["case_sha256"] == a.attrs["case_sha256"]
         assert b.attrs["label"] == "first"
-        # the re-run says where it came from, not the private folder it ran in
-        assert b.attrs["rerun_of"] == str(first.resolve())
-        assert b.attrs["case_path"] == a.attrs["case_path"] and b.attrs["series_path"] == a.attrs["series_path"]
+        # the re-run says where it came from (by name and hash), not the private folder it ran in
+        assert b.attrs["rerun_of"] == first.name and len(b.attrs["rerun_of_sha256"]) == 64
+        # no user folder is recorded unless asked
+        for name in ("case_path", "series_path"):
+            assert name not in a.attrs and name not in b.attrs
         assert "embedded" in b.attrs["series_source"] and "--again" in b.attrs["history"]
 
 
@@ -74,19 +78,20 @@ def test_again_without_embedded_series_needs_unchanged_file(tmp_path, capsys):
     runs = tmp_path / "runs"
     assert main(["run", str(case), "--archive", str(runs), "--quiet"]) == 0
     (first,) = list(runs.glob("*.nc"))
-    assert main(["run", "--again", str(first), "--archive", str(runs), "--quiet"]) == 0
+    data = str(tmp_path / "data")
+    assert main(["run", "--again", str(first), "--series-dir", data, "--archive", str(runs), "--quiet"]) == 0
     (tmp_path / "data" / "weather.csv").write_text("time,T_out\n2026-02-01T00:00,1\n2026-02-02T00:00,2\n")
-    assert main(["run", "--again", str(first), "--archive", str(runs), "--quiet"]) == 2
+    assert main(["run", "--again", str(first), "--series-dir", data, "--archive", str(runs), "--quiet"]) == 2
     assert "changed" in capsys.readouterr().err
 
 
-def test_again_finds_the_series_from_any_folder(tmp_path, monkeypatch):
-    """A run made with a relative case path records the series' absolute path,
-    so --again works from another working folder."""
+def test_again_finds_the_series_from_any_folder_when_paths_are_recorded(tmp_path, monkeypatch):
+    """With --record-paths a run made with a relative case path records the
+    series' absolute path, so --again works from any working folder."""
     case = _setup(tmp_path, embed=False)
     runs = tmp_path / "runs"
     monkeypatch.chdir(tmp_path)
-    assert main(["run", case.name, "--archive", str(runs), "--quiet"]) == 0
+    assert main(["run", case.name, "--archive", str(runs), "--quiet", "--record-paths"]) == 0
     (first,) = list(runs.glob("*.nc"))
     with xr.open_dataset(first) as ds:
         assert Path(ds.attrs["series_path"]).is_absolute()
@@ -94,6 +99,102 @@ def test_again_finds_the_series_from_any_folder(tmp_path, monkeypatch):
     elsewhere.mkdir()
     monkeypatch.chdir(elsewhere)
     assert main(["run", "--again", str(first), "--archive", str(runs), "--quiet"]) == 0
+
+
+def test_again_finds_the_series_beside_the_run_or_in_series_dir(tmp_path, capsys):
+    """A run records no folder; its series is found by name beside the run
+    file or in a folder given with --series-dir, and checked by its hash."""
+    import shutil
+
+    case = _setup(tmp_path, embed=False)
+    runs = tmp_path / "runs"
+    assert main(["run", str(case), "--archive", str(runs), "--quiet"]) == 0
+    (first,) = list(runs.glob("*.nc"))
+    stash = tmp_path / "stash"
+    stash.mkdir()
+    shutil.move(tmp_path / "data" / "weather.csv", stash / "weather.csv")
+    assert main(["run", "--again", str(first), "--archive", str(runs), "--quiet"]) == 2
+    assert "--series-dir" in capsys.readouterr().err
+    assert main(["run", "--again", str(first), "--series-dir", str(stash), "--archive", str(runs), "--quiet"]) == 0
+    shutil.copy(stash / "weather.csv", runs / "weather.csv")
+    assert main(["run", "--again", str(first), "--archive", str(runs), "--quiet"]) == 0
+
+
+def _crafted_run(tmp_path, case_file: str, series_file: str, embedded: str | None) -> Path:
+    """A run file whose stored names point outside any private folder."""
+    import hashlib
+
+    text = CASE.format(embed="true").replace('file = "data/weather.csv"', f'file = "{series_file}"')
+    ds = xr.Dataset(attrs={
+        "case": text,
+        "case_sha256": hashlib.sha256(text.encode()).hexdigest(),
+        "case_file": case_file,
+        "series_sha256": hashlib.sha256((embedded or "").encode()).hexdigest(),
+    })
+    if embedded is not None:
+        ds.attrs["series_embedded"] = embedded
+    path = tmp_path / "shared" / "crafted.nc"
+    path.parent.mkdir(exist_ok=True)
+    ds.to_netcdf(path)
+    return path
+
+
+def test_crafted_run_file_cannot_steer_where_again_writes(tmp_path, monkeypatch):
+    """Security: a run file shared by a colleague names its case by an
+    absolute path and its series with '..' parts; --again writes neither
+    there (only base names, in a private folder that is removed after
+    loading), and the re-run still works from the embedded series."""
+    import tempfile
+
+    victim = tmp_path / "victim"
+    victim.mkdir()
+    rows = [f"2026-02-01T{h:02d}:00,{5 + h % 3}" for h in range(24)]
+    series = "time,T_out\n" + "\n".join(rows) + "\n"
+    crafted = _crafted_run(tmp_path, str(victim / "planted.toml"), "../../victim/planted.csv", series)
+    tmp_root = tmp_path / "tmp"
+    tmp_root.mkdir()
+    monkeypatch.setattr(tempfile, "tempdir", str(tmp_root))
+    runs = tmp_path / "runs"
+    assert main(["run", "--again", str(crafted), "--archive", str(runs), "--quiet"]) == 0
+    assert list(victim.iterdir()) == []
+    assert list(tmp_root.iterdir()) == []  # the private folder is gone
+    assert len(list(runs.glob("*.nc"))) == 1
+
+
+def test_crafted_run_with_a_planted_link_does_not_write_through_it(tmp_path, monkeypatch):
+    """Even if the private folder held a link under the stored name, the
+    case is created with O_EXCL | O_NOFOLLOW and never written through it."""
+    import tempfile
+
+    from layers import provenance
+
+    target = tmp_path / "target.toml"
+    target.write_text("untouched")
+    made = []
+
+    def mkdtemp_with_link(prefix=""):
+        folder = tmp_path / f"private{len(made)}"
+        folder.mkdir()
+        (folder / "wall.toml").symlink_to(target)
+        made.append(folder)
+        return str(folder)
+
+    monkeypatch.setattr(tempfile, "mkdtemp", mkdtemp_with_link)
+    crafted = _crafted_run(tmp_path, "wall.toml", "w.csv", "time,T_out\n2026-02-01T00:00,1\n")
+    with pytest.raises(CaseError, match="private copy"):
+        provenance.load_archived_case(crafted)
+    assert target.read_text() == "untouched"
+
+
+def test_private_names_are_plain_base_names():
+    """Names read from a run keep only a plain base name."""
+    from layers.provenance import private_name
+
+    assert private_name("/etc/passwd", "case.toml") == "passwd"
+    assert private_name("..", "case.toml") == "case.toml"
+    assert private_name("C:\\Users\\x\\wall.toml", "case.toml") == "wall.toml"
+    assert private_name(".bashrc", "case.toml") == "case.toml"
+    assert private_name("a b$(rm).toml", "case.toml") == "a_b__rm_.toml"
 
 
 SHORT = """
