@@ -44,7 +44,7 @@ import netCDF4  # noqa: E402
 from layers.archive import headline_attributes, list_runs  # noqa: E402
 from layers.case import load_case  # noqa: E402
 from layers.results import archive  # noqa: E402
-from layers.simulate import simulate  # noqa: E402
+from layers.simulation import simulate  # noqa: E402
 
 LIMIT_S = 2.0
 

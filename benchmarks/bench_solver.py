@@ -22,7 +22,7 @@ from pathlib import Path
 import numpy as np
 
 from layers.case import load_case
-from layers.simulate import assemble, mesh_for, simulate
+from layers.simulation import assemble, mesh_for, simulate
 from layers.solver import march
 from layers.steady import steady_state
 

@@ -1,7 +1,7 @@
 """layers: transient heat analysis of layered walls, roofs and insulated pipes.
 
 The public entry points are :func:`layers.case.load_case` (case file to a
-validated :class:`~layers.case.Case`) and :func:`layers.simulate.simulate`
+validated :class:`~layers.case.Case`) and :func:`layers.simulation.simulate`
 (case to an :class:`xarray.Dataset`).
 """
 

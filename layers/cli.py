@@ -51,7 +51,7 @@ def cmd_run(args: argparse.Namespace) -> int:
     from layers.case import load_case
     from layers.report import run_cautions, run_summary
     from layers.results import archive, refuse_existing, write_output
-    from layers.simulate import simulate
+    from layers.simulation import simulate
 
     refuse_existing(args.out)
     if args.again and args.case:

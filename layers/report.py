@@ -17,7 +17,7 @@ from layers.errors import CaseError
 from layers.mesh import Mesh
 
 if TYPE_CHECKING:
-    from layers.periodic import DynamicCharacteristics
+    from layers.iso13786 import DynamicCharacteristics
 
 
 def _fmt_duration(seconds: float) -> str:
@@ -76,7 +76,7 @@ def auto_film_resistance(case: Case, spec: BoundarySpec) -> float:
 
 def check_report(case: Case) -> str:
     """What ``layers check`` prints: layers, mesh, steady transmittance, time plan."""
-    from layers.simulate import mesh_for
+    from layers.simulation import mesh_for
 
     mesh = mesh_for(case)
     lines = [f"case:      {case.path}", f"title:     {case.title}", f"geometry:  {case.geometry}"]
@@ -382,7 +382,7 @@ def materials_table(word: str | None) -> tuple[str, int]:
 
 def periodic_elements(case: Case):
     """The case's layers as ISO 13786 elements, with contact resistances as resistive elements."""
-    from layers.periodic import PeriodicElement
+    from layers.iso13786 import PeriodicElement
 
     out = []
     for spec in case.layers:
@@ -452,7 +452,7 @@ class PeriodicReport(NamedTuple):
 
 def periodic_report(case: Case, period: float) -> PeriodicReport:
     """Dynamic characteristics of the case's construction and their text table."""
-    from layers.periodic import dynamic_characteristics
+    from layers.iso13786 import dynamic_characteristics
 
     if case.geometry != "planar":
         raise CaseError(case.path, "geometry.kind", "ISO 13786 dynamic characteristics are for planar constructions only")

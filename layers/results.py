@@ -105,13 +105,15 @@ def to_dataset(
         data_vars[name] = _point(values, units, long_name, **attrs)
     coords: dict[str, tuple] = {
         "time": ("time", times, {"long_name": "time", "standard_name": "time", "axis": "T"}),
-        "x": ("x", mesh.x, {"units": "m", "long_name": "distance of the cell centre from the inside surface"}),
+        "x": ("x", mesh.x, {"units": "m", "long_name": "distance of the cell centre from the inside surface", "bounds": "x_bounds"}),
         "layer": ("x", mesh.layer.astype(np.int32), {"long_name": "layer number from the inside (1-based)", "units": "1"}),
         "material": ("x", np.array([m.name for m in mesh.materials], dtype=object), {"long_name": "material name"}),
     }
     if case.geometry != "planar":
         coords["radius"] = ("x", mesh.radius, {"units": "m", "long_name": "radius of the cell centre"})
     ds = xr.Dataset(data_vars=data_vars, coords=coords)
+    # CF cell bounds: the faces of each cell, as the solver used them
+    ds["x_bounds"] = (("x", "nv"), np.stack([mesh.x_lo, mesh.x_hi], axis=1), {"units": "m", "long_name": "faces of each cell (distance from the inside surface)"})
     ds["layer_interface"] = (
         "interface",
         mesh.interfaces,

@@ -68,7 +68,7 @@ class FreezeTimes(NamedTuple):
 def freeze_times(case: Case, thickness: float, progress: Callable[[int, int], None] | None = None) -> FreezeTimes:
     """Time to 0 degC and time to ``max_ice_fraction`` [s] for one candidate (NaN: not within the run)."""
     from layers.mesh import build_mesh
-    from layers.simulate import run_nonlinear
+    from layers.simulation import run_nonlinear
 
     trial = with_thickness(case, case.sizing.layer, thickness)
     mesh = build_mesh(trial.layers, trial.mesh_rule, trial.geometry, trial.inner_radius)

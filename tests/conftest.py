@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 
 from layers.case import load_case
-from layers.simulate import simulate
+from layers.simulation import simulate
 
 ROOT = Path(__file__).resolve().parents[1]
 

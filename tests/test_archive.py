@@ -34,7 +34,7 @@ from layers.case import load_case
 from layers.cli import main
 from layers.errors import CaseError
 from layers.results import archive
-from layers.simulate import simulate
+from layers.simulation import simulate
 
 WALL = """
 title = "TITLE"

@@ -9,7 +9,7 @@ import pytest
 from scipy.optimize import brentq
 
 from layers.case import load_case
-from layers.simulate import simulate
+from layers.simulation import simulate
 
 SIGMA = 5.670374419e-8  # CODATA 2018
 

@@ -1,4 +1,4 @@
-"""Verification of layers.periodic (ISO 13786 dynamic thermal characteristics).
+"""Verification of layers.iso13786 (ISO 13786 dynamic thermal characteristics).
 
 Oracles: algebraic identities of the transfer matrix, its limits (long period,
 thin layer, no heat capacity), a direct numerical integration of the periodic
@@ -14,7 +14,7 @@ import numpy as np
 import pytest
 from scipy.integrate import solve_ivp
 
-from layers.periodic import (
+from layers.iso13786 import (
     PeriodicElement,
     dynamic_characteristics,
     layer_matrix,

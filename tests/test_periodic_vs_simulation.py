@@ -8,7 +8,7 @@ import pytest
 from layers.case import load_case
 from layers.cli import main
 from layers.report import harmonic, periodic_report
-from layers.simulate import simulate
+from layers.simulation import simulate
 
 MATERIALS = """
 [materials.plaster]

@@ -16,7 +16,7 @@ from layers.case import load_case
 from layers.cli import main
 from layers.errors import CaseError
 from layers.results import write_new
-from layers.simulate import simulate
+from layers.simulation import simulate
 
 # Tiny invented cases: a day of a two-layer wall under a daily cycle with sun,
 # and three hours of a steel pipe with an air gap and mineral wool warming up.

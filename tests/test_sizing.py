@@ -151,7 +151,7 @@ def test_steady_solver_agrees_with_finite_volumes_for_k_of_t(write_case):
     solution and the FV nonlinear steady state (k at cell centres, second order)
     agree within 0.2 % in heat flow for 5 mm cells (dk/k across a cell < 2 %,
     squared ~ 4e-4)."""
-    from layers.simulate import simulate
+    from layers.simulation import simulate
 
     case = load_case("cases/hot-oil-line-touch.toml")
     st = steady_state(case)
@@ -180,7 +180,7 @@ def test_freeze_sizing_picks_thinnest_passing(write_case):
     # transient run's heat flow at t = 0 within 0.2 % (k(T) evaluated at cell
     # centres in the run vs the exact Kirchhoff integral, as in
     # test_steady_solver_agrees_with_finite_volumes_for_k_of_t).
-    from layers.simulate import simulate
+    from layers.simulation import simulate
     from layers.sizing import with_thickness
 
     assert {"surface_temperature_outside", "heat_flow"} <= set(ds.data_vars)
@@ -260,7 +260,7 @@ def test_vertical_pipe_uses_the_plate_correlation_on_its_height(write_case):
 
     from layers.convection import air_properties
     from layers.radiation import STEFAN_BOLTZMANN
-    from layers.simulate import simulate
+    from layers.simulation import simulate
 
     case = load_case(write_case(VERTICAL_PIPE))
     st = steady_state(case)
@@ -352,7 +352,7 @@ def test_steady_surface_balance_with_a_radiant_temperature_apart_from_the_air(wr
 
     from layers.convection import body_convection_coefficient
     from layers.radiation import STEFAN_BOLTZMANN
-    from layers.simulate import simulate
+    from layers.simulation import simulate
 
     text = VERTICAL_PIPE.replace('orientation = "vertical"\nheight = "3 m"\n', "").replace(
         "emissivity = 0.9", 'emissivity = 0.9\nradiant_temperature = "-10 degC"'

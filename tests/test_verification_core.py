@@ -294,7 +294,7 @@ def iso13786_layer_matrix(d: float, lam: float, rho: float, c: float, period: fl
     Z11 = Z22 = cosh xi cos xi + i sinh xi sin xi,
     Z12 = -(delta / 2 lam) [sinh xi cos xi + cosh xi sin xi + i (cosh xi sin xi - sinh xi cos xi)],
     Z21 = -(lam / delta) [sinh xi cos xi - cosh xi sin xi + i (sinh xi cos xi + cosh xi sin xi)].
-    Written out independently of layers.periodic; test_iso13786_formulas_solve_the_heat_equation
+    Written out independently of layers.iso13786; test_iso13786_formulas_solve_the_heat_equation
     checks them against the general periodic solution of the heat equation.
     """
     delta = math.sqrt(lam * period / (math.pi * rho * c))

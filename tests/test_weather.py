@@ -7,7 +7,7 @@ import pytest
 
 from layers.case import load_case
 from layers.cli import main
-from layers.simulate import simulate
+from layers.simulation import simulate
 
 
 def _year_csv(path):
