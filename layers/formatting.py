@@ -1,0 +1,44 @@
+"""Text formatting shared by every report and listing: one function per kind of value."""
+
+from __future__ import annotations
+
+#: Units a duration is written in, largest first: (symbol, seconds per unit).
+_DURATION_UNITS = (("d", 86400.0), ("h", 3600.0), ("min", 60.0))
+
+
+def format_duration(seconds: float, *, approximate: bool = False) -> str:
+    """A duration as text in the largest unit that holds it a whole number of times.
+
+    ``7 d``, ``36 h``, ``90 min``, ``45 s``; a duration that is no whole number
+    of minutes is written in seconds (``5430 s``), or, with ``approximate``,
+    in hours to three significant digits once it is an hour or longer
+    (``1.51 h``: the short form of a table column).
+
+    Parameters
+    ----------
+    seconds : float
+        The duration [s].  Zero and negative durations are written in
+        seconds (``0 s``, ``-3600 s``).
+    approximate : bool, optional
+        Round a duration of an hour or more that is no whole number of
+        minutes to three significant digits in hours, instead of writing
+        every second of it.
+
+    Returns
+    -------
+    str
+        The number (``:g`` format) and a unit symbol, separated by a space.
+
+    Examples
+    --------
+    >>> format_duration(86400.0), format_duration(5400.0), format_duration(10.0)
+    ('1 d', '90 min', '10 s')
+    >>> format_duration(5430.0), format_duration(5430.0, approximate=True)
+    ('5430 s', '1.51 h')
+    """
+    for unit, size in _DURATION_UNITS:
+        if seconds >= size and abs(seconds / size - round(seconds / size)) < 1e-9:
+            return f"{seconds / size:g} {unit}"
+    if approximate and seconds >= 3600.0:
+        return f"{seconds / 3600.0:.3g} h"
+    return f"{seconds:g} s"
