@@ -3,9 +3,9 @@
 Run as ``python benchmarks/bench_list.py [--runs 1000]``.  It runs one tiny
 real case, copies the file 1,000 times into a temporary folder and edits each
 copy's attributes (title, creation time in shuffled order, case hash, and the
-headline attributes of :func:`layers.archive.headline_attributes`), then times
+headline attributes of :func:`layers.catalogue.headline_attributes`), then times
 
-* :func:`layers.archive.list_runs` with its header cache warm (every later
+* :func:`layers.catalogue.list_runs` with its header cache warm (every later
   listing of an archive: the 2 s target),
 * the same cold (``cache=False``: every header read, as on the first listing),
   on runs with the headline attributes and on runs without them (the fallback
@@ -41,7 +41,7 @@ sys.path.insert(0, str(ROOT))
 
 import netCDF4  # noqa: E402
 
-from layers.archive import headline_attributes, list_runs  # noqa: E402
+from layers.catalogue import headline_attributes, list_runs  # noqa: E402
 from layers.case import load_case  # noqa: E402
 from layers.results import archive  # noqa: E402
 from layers.simulation import simulate  # noqa: E402

@@ -179,7 +179,7 @@ def cmd_plot(args: argparse.Namespace) -> int:
 
 def cmd_compare(args: argparse.Namespace) -> int:
     """``layers compare RUN_A RUN_B [...] [-o OUT.png|.svg|.pdf|.nc]``."""
-    from layers.archive import check_comparison_output, compare_runs, format_comparison, write_comparison
+    from layers.comparison import check_comparison_output, compare_runs, format_comparison, write_comparison
 
     if args.out:
         check_comparison_output(args.out)
@@ -195,7 +195,7 @@ def cmd_list(args: argparse.Namespace) -> int:
     """``layers list [DIR] [--json]``."""
     import json
 
-    from layers.archive import format_list, list_footer, list_runs
+    from layers.catalogue import format_list, list_footer, list_runs
     from layers.results import archive_dir
 
     folder = args.dir or archive_dir(None)

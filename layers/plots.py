@@ -587,7 +587,7 @@ def plot_comparison(combined: xr.Dataset, labels: list[str]) -> Any:
     ----------
     combined : xarray.Dataset
         Runs along a ``run`` dimension on common time stamps, as
-        :func:`layers.archive.compare_runs` builds them.
+        :func:`layers.comparison.compare_runs` builds them.
     labels : list of str
         One legend entry per run.
 

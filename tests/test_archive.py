@@ -20,16 +20,8 @@ import xarray as xr
 
 from layers import CAUTION
 from tests.conftest import ROOT
-from layers.archive import (
-    ArchiveEntry,
-    case_differences,
-    compare_runs,
-    flatten_case,
-    headline_attributes,
-    interface_temperatures,
-    list_runs,
-    read_entry,
-)
+from layers.catalogue import ArchiveEntry, headline_attributes, list_runs, read_entry
+from layers.comparison import case_differences, compare_runs, flatten_case, interface_temperatures
 from layers.case import load_case
 from layers.cli import main
 from layers.errors import CaseError
@@ -330,7 +322,7 @@ def test_list_cache_is_used_and_refreshed(make_run, tmp_path, monkeypatch):
     def no_reading(path):
         raise AssertionError(f"{path} read despite an unchanged cache entry")
 
-    monkeypatch.setattr("layers.archive.read_entry", no_reading)
+    monkeypatch.setattr("layers.catalogue.read_entry", no_reading)
     assert list_runs(run.parent) == first
     monkeypatch.undo()
     monkeypatch.setenv("LAYERS_CACHE_DIR", str(tmp_path / "cache"))

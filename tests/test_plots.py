@@ -579,7 +579,7 @@ def test_palette_reads_in_greyscale_by_style():
 
 
 def test_comparison_figure_has_units_caution_and_a_line_per_run(runs, tmp_path):
-    from layers.archive import compare_runs
+    from layers.comparison import compare_runs
 
     copy = tmp_path / "copy.nc"
     shutil.copyfile(runs["wall"], copy)
