@@ -276,11 +276,14 @@ def _need(ds: xr.Dataset, names: tuple[str, ...], source: str) -> None:
 
 
 def layer_bands(ds: xr.Dataset) -> list[LayerBand]:
-    """The layers of a run: face positions from ``layer_interface``, names from the case.
+    """The layers of a run: face positions from ``layer_interface``, names from the run.
 
-    Names come from the case text stored with the run (``name`` of each
-    ``[[layers]]`` entry, with its ``material`` when different), else from the
-    ``material`` coordinate; a layer with no cells is an air gap.
+    A layer is labelled by its name (a ``layer_name`` variable, one entry
+    per layer, air gaps included), with its material from the ``material``
+    coordinate when the name does not say it; a layer with no cells is an
+    air gap.  Runs that carry no ``layer_name`` (every run written so far)
+    take the names from the case text stored with the run: a fallback that
+    reads the ``[[layers]]`` entries' ``name`` and ``material`` only.
 
     Returns
     -------
@@ -291,26 +294,24 @@ def layer_bands(ds: xr.Dataset) -> list[LayerBand]:
     material = np.asarray(ds["material"].values).astype(str) if "material" in ds.coords else None
     if "layer_interface" in ds.variables:
         faces = np.asarray(ds["layer_interface"].values, dtype=float)
-    else:  # reconstruct from the cells (no gaps known)
-        faces = _cell_faces(ds)
-        faces = np.concatenate(([faces[0]], [faces[np.flatnonzero(layer == n)[-1] + 1] for n in np.unique(layer)]))
+    else:  # a Dataset without layer faces: the layers' extent from their cells (no gaps known)
+        bounds = cell_bounds(ds)
+        faces = np.concatenate(([bounds[0, 0]], [bounds[np.flatnonzero(layer == n)[-1], 1] for n in np.unique(layer)]))
     count = faces.size - 1
-    specs = _case_layers(ds, count)
+    names = _layer_names(ds, count)
     bands = []
     for number in range(1, count + 1):
         cells = np.flatnonzero(layer == number)
         is_gap = cells.size == 0
         mat = "air gap" if is_gap else (str(material[cells[0]]) if material is not None else f"layer {number}")
         label = mat
-        if specs is not None:
-            spec = specs[number - 1]
-            name = str(spec.get("name") or "").strip()
-            spec_mat = str(spec.get("material") or "").strip()
+        if names is not None:
+            name, named_material = names[number - 1]
             if is_gap:
                 label = name or "air gap"
             elif name:
-                same = _norm(name) == _norm(spec_mat or mat) or not (spec_mat or mat)
-                label = name if same else f"{name} ({spec_mat or mat})"
+                same = _norm(name) == _norm(named_material or mat) or not (named_material or mat)
+                label = name if same else f"{name} ({named_material or mat})"
         bands.append(LayerBand(number, float(faces[number - 1]), float(faces[number]), label, is_gap))
     return bands
 
@@ -319,18 +320,46 @@ def _norm(text: str) -> str:
     return re.sub(r"[\s_\-]+", " ", text).strip().lower()
 
 
-def _case_layers(ds: xr.Dataset, count: int) -> list[dict] | None:
+def _layer_names(ds: xr.Dataset, count: int) -> list[tuple[str, str]] | None:
+    """Each layer's (name, material as named with it), or None when the run does not say.
+
+    From the ``layer_name`` variable when the run has one (the material then
+    comes from the ``material`` coordinate); else, as a fallback for runs
+    written without it, from the ``[[layers]]`` entries of the stored case text.
+    """
+    if "layer_name" in ds.variables and ds["layer_name"].size == count:
+        return [(str(n).strip(), "") for n in np.asarray(ds["layer_name"].values).ravel()]
+    # Fallback for runs without layer_name: the names exist only in the case text.
     try:
         layers = tomllib.loads(str(ds.attrs["case"]))["layers"]
-    except Exception:  # noqa: BLE001 - no or unreadable case text: fall back to the material coordinate
+    except Exception:  # noqa: BLE001 - no or unreadable case text: label by the material coordinate
         return None
     if not isinstance(layers, list) or len(layers) != count or not all(isinstance(s, dict) for s in layers):
         return None
-    return layers
+    return [(str(s.get("name") or "").strip(), str(s.get("material") or "").strip()) for s in layers]
 
 
-def _cell_faces(ds: xr.Dataset) -> np.ndarray:
-    """Faces of the cells [m]: n + 1 values, each layer reconstructed from its first face.
+def cell_bounds(ds: xr.Dataset) -> np.ndarray:
+    """The faces of every cell as the solver used them [units of ``x``].
+
+    Read from ``x_bounds`` (CF cell bounds, written with every run).  Only
+    run files written before ``x_bounds`` existed have their faces
+    reconstructed from the cell centres (:func:`_cell_bounds_from_centres`).
+
+    Returns
+    -------
+    numpy.ndarray
+        Shape (cells, 2): the inner and outer face of each cell.
+    """
+    if "x_bounds" in ds.variables:
+        bounds = ds["x_bounds"]
+        other = [d for d in bounds.dims if d != "x"]
+        return np.asarray(bounds.transpose("x", *other).values, dtype=float)
+    return _cell_bounds_from_centres(ds)
+
+
+def _cell_bounds_from_centres(ds: xr.Dataset) -> np.ndarray:
+    """FALLBACK for old run files without ``x_bounds``: cell faces rebuilt from the centres.
 
     Cell centres are midpoints of their faces, so within a layer each face
     follows from the previous one (``face[i+1] = 2 x[i] - face[i]``); the
@@ -357,15 +386,15 @@ def _cell_faces(ds: xr.Dataset) -> np.ndarray:
             if number < interfaces.size:
                 hi[cells[-1]] = interfaces[number]
         ok = ok and bool(np.all(hi > lo)) and bool(np.all(lo[1:] >= hi[:-1] - 1e-12))
-    if not ok:
-        mid = 0.5 * (x[1:] + x[:-1])
-        first = 0.0 if interfaces is None else interfaces[0]
-        last = x[-1] + (x[-1] - mid[-1]) if x.size > 1 else 2 * x[0]
-        if interfaces is not None:
-            last = interfaces[-1]
-        edges = np.concatenate(([first], mid, [last]))
-        return edges
-    return np.concatenate((lo, [hi[-1]]))
+    if ok:
+        return np.stack([lo, hi], axis=1)
+    mid = 0.5 * (x[1:] + x[:-1])
+    first = 0.0 if interfaces is None else interfaces[0]
+    last = x[-1] + (x[-1] - mid[-1]) if x.size > 1 else 2 * x[0]
+    if interfaces is not None:
+        last = interfaces[-1]
+    edges = np.concatenate(([first], mid, [last]))
+    return np.stack([edges[:-1], edges[1:]], axis=1)
 
 
 def _inner_radius(ds: xr.Dataset) -> float | None:
@@ -442,7 +471,7 @@ def plot_carpet(ds: xr.Dataset) -> Any:
         t_edges = np.concatenate(([times[0]], 0.5 * (times[1:] + times[:-1]), [times[-1]]))
     else:
         t_edges = np.array([times[0] - 0.5 / 24, times[0] + 0.5 / 24])
-    faces = _cell_faces(ds) * scale
+    bounds = cell_bounds(ds) * scale
     values = np.ma.masked_invalid(np.asarray(temperature.values, dtype=float))
     vmin, vmax = (float(values.min()), float(values.max())) if values.count() else (0.0, 1.0)
     if vmin == vmax:
@@ -452,7 +481,7 @@ def plot_carpet(ds: xr.Dataset) -> Any:
     # one mesh per layer, so an air gap of finite thickness shows as a hatched band
     for number in np.unique(layer):
         cells = np.flatnonzero(layer == number)
-        y_edges = np.concatenate((faces[cells], [faces[cells[-1] + 1]]))
+        y_edges = np.concatenate((bounds[cells, 0], [bounds[cells[-1], 1]]))
         mesh = ax.pcolormesh(t_edges, y_edges, values[:, cells].T, cmap=CARPET_CMAP, vmin=vmin, vmax=vmax,
                              shading="flat", rasterized=True)
     bands = layer_bands(ds)
@@ -1043,7 +1072,7 @@ def plot_file(
 
 __all__ = [
     "CARPET_CMAP", "DPI", "FIGSIZE", "KINDS", "LINESTYLES", "MARKERS", "PALETTE",
-    "LayerBand", "axis_label", "layer_bands", "new_figure", "open_run", "output_path",
+    "LayerBand", "axis_label", "cell_bounds", "layer_bands", "new_figure", "open_run", "output_path",
     "plot", "plot_carpet", "plot_comparison", "plot_file", "plot_profiles", "plot_sizing", "plot_surfaces", "pretty_units",
     "save_figure", "select_times",
 ]

@@ -405,6 +405,48 @@ def test_carpet_names_layers_draws_faces_and_labels_radius(runs):
     assert fig.axes[0].collections[0].get_cmap().name == plots.CARPET_CMAP
 
 
+def test_carpet_cells_are_the_runs_own_x_bounds(runs):
+    """The carpet draws each cell between the faces the solver wrote (``x_bounds``),
+    not faces rebuilt from the centres: a doctored ``x_bounds`` moves the drawn
+    cells with it.  Exact (1e-9 mm): the edges are the stored numbers times 1000."""
+    ds = plots.open_run(runs["pipe"])
+    bounds = ds["x_bounds"].values * 1000.0
+    edges = _carpet_cell_edges(plots.plot_carpet(ds))
+    np.testing.assert_allclose(edges, np.concatenate(([bounds[0, 0]], bounds[:, 1])), rtol=0, atol=1e-9)
+    doctored = ds.copy()
+    doctored["x_bounds"] = ds["x_bounds"] + 1e-4  # every face 0.1 mm outward
+    edges = _carpet_cell_edges(plots.plot_carpet(doctored))
+    np.testing.assert_allclose(edges, np.concatenate(([bounds[0, 0]], bounds[:, 1])) + 0.1, rtol=0, atol=1e-9)
+
+
+def _carpet_cell_edges(fig) -> np.ndarray:
+    """The y edges of every cell the carpet drew [mm], inside to outside (one mesh per layer)."""
+    meshes = fig.axes[0].collections
+    edges = [m.get_coordinates()[:, 0, 1] for m in meshes if hasattr(m, "get_coordinates")]
+    return np.unique(np.round(np.concatenate(edges), 9))
+
+
+@pytest.mark.parametrize("name", ["wall", "pipe"])
+def test_old_run_files_without_x_bounds_rebuild_the_same_faces(runs, name):
+    """The fallback for run files written before ``x_bounds``: faces rebuilt from the
+    cell centres (each the midpoint of its faces) and the layer faces agree with the
+    faces the solver wrote to round-off (1e-12 m on a few hundred mm)."""
+    ds = plots.open_run(runs[name])
+    old = ds.drop_vars("x_bounds")
+    np.testing.assert_allclose(plots.cell_bounds(old), ds["x_bounds"].values, rtol=0, atol=1e-12)
+    assert len(_carpet_cell_edges(plots.plot_carpet(old))) == ds.sizes["x"] + 1
+
+
+def test_layer_names_need_no_case_text(runs):
+    """Without the stored case text the bands are named by the material coordinate;
+    a ``layer_name`` variable (one per layer, air gaps included) names them without it."""
+    ds = plots.open_run(runs["pipe"])
+    del ds.attrs["case"]
+    assert [b.label for b in plots.layer_bands(ds)] == ["steel", "air gap", "mineral-wool"]
+    ds["layer_name"] = ("layer_number", np.array(["steel pipe", "", "mineral wool"], dtype=object))
+    assert [b.label for b in plots.layer_bands(ds)] == ["steel pipe (steel)", "air gap", "mineral wool"]
+
+
 def test_carpet_planar_has_no_radius_axis(runs):
     fig = plots.plot_carpet(plots.open_run(runs["wall"]))
     assert fig.axes[0].child_axes == []
