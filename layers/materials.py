@@ -1,9 +1,12 @@
 """Material library and temperature-dependent conductivity models.
 
 A :class:`Material` holds the density, specific heat and thermal conductivity of
-one layer material.  The conductivity is either constant, a table of values
-against temperature (interpolated linearly, held constant beyond the ends), or a
-polynomial ``a + b*θ + c*θ**2 + ...`` in the temperature θ [degC].
+one layer material, and its conductivity law: None for a constant, a
+:class:`ConductivityTable` of values against temperature (interpolated
+linearly, held constant beyond the ends), or a :class:`ConductivityPolynomial`
+``a + b*θ + c*θ**2 + ...`` in the temperature θ [degC].  Each law evaluates
+itself (``at``), its Kirchhoff transform (``integral``) and its integral mean
+(``mean``); the material's methods hand over to it.
 
 The packaged library ``layers/data/materials.toml`` is read once by
 :func:`load_library`; a case file may add materials or override library ones
@@ -87,9 +90,158 @@ _KEYS = (
 _NAME = re.compile(r"^[a-z0-9]+(-[a-z0-9]+)*$")
 
 
-@dataclass(frozen=True, eq=False)
+# ---------------------------------------------------------------------- k(T) laws
+
+
+def _table_problem(temperature: np.ndarray, value: np.ndarray) -> str:
+    """What is wrong with a conductivity table, or an empty string."""
+    if temperature.shape != value.shape:
+        return f"{temperature.size} temperatures but {value.size} values"
+    if temperature.size < 2:
+        return "needs at least two points"
+    if not (np.all(np.isfinite(temperature)) and np.all(np.isfinite(value))):
+        return "holds a value that is not a finite number"
+    if np.any(np.diff(temperature) <= 0.0):
+        return "temperatures must be strictly increasing"
+    if np.any(value <= 0.0):
+        return "conductivities must be positive"
+    return ""
+
+
+def _read_only(values: Any) -> np.ndarray:
+    array = np.array(values, dtype=float)
+    array.setflags(write=False)
+    return array
+
+
+@dataclass(frozen=True)
+class ConductivityTable:
+    """Conductivity tabulated against temperature.
+
+    Interpolated linearly between the points and held at the first and last
+    values beyond the ends (no extrapolation of the trend), so the law is
+    linear on each piece between neighbouring points and on the two
+    half-lines beyond them; every integral below is exact for it.
+
+    Parameters
+    ----------
+    temperature : sequence of float
+        Table abscissa [degC], strictly increasing, two points or more.
+    value : sequence of float
+        Conductivity at each ``temperature`` [W m-1 K-1], all positive.
+
+    Raises
+    ------
+    ValueError
+        For a table that is not as described.
+    """
+
+    temperature: tuple[float, ...]
+    value: tuple[float, ...]
+
+    def __post_init__(self) -> None:
+        temperature = np.asarray(self.temperature, dtype=float).ravel()
+        value = np.asarray(self.value, dtype=float).ravel()
+        problem = _table_problem(temperature, value)
+        if problem:
+            raise ValueError(f"conductivity table: {problem}")
+        object.__setattr__(self, "temperature", tuple(temperature.tolist()))
+        object.__setattr__(self, "value", tuple(value.tolist()))
+
+    @functools.cached_property
+    def points(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Read-only arrays: temperatures [degC], values [W m-1 K-1] and the
+        integral from the first point to each point [W m-1] (trapezoids)."""
+        x, k = _read_only(self.temperature), _read_only(self.value)
+        cumulative = _read_only(np.concatenate(([0.0], np.cumsum(np.diff(x) * 0.5 * (k[1:] + k[:-1])))))
+        return x, k, cumulative
+
+    def at(self, temperature: np.ndarray) -> np.ndarray:
+        """Conductivity at ``temperature`` [degC] -> [W m-1 K-1]."""
+        x, k, _ = self.points
+        return np.interp(temperature, x, k)
+
+    def integral(self, temperature: np.ndarray) -> np.ndarray:
+        """∫[0 degC, θ] λ dθ for θ = ``temperature`` [degC] -> [W m-1]."""
+        return self._from_first_point(temperature) - self._from_first_point(np.asarray(0.0))
+
+    def _from_first_point(self, t: np.ndarray) -> np.ndarray:
+        """∫[first table point, θ] λ dθ [W m-1], negative below the first point."""
+        x, k, cumulative = self.points
+        inside = np.clip(t, x[0], x[-1])
+        piece = np.clip(np.searchsorted(x, inside, side="right") - 1, 0, len(x) - 2)
+        within = cumulative[piece] + (inside - x[piece]) * 0.5 * (k[piece] + self.at(inside))
+        return within + k[0] * np.minimum(t - x[0], 0.0) + k[-1] * np.maximum(t - x[-1], 0.0)
+
+    def mean(self, low: np.ndarray, high: np.ndarray) -> np.ndarray:
+        """Integral mean between ``low <= high`` [degC] -> [W m-1 K-1].
+
+        Both ends in one linear piece: the value at the midpoint (exact, and
+        the local value when ``low == high``).  Otherwise the partial pieces at
+        each end, each integrated from its own table point, plus the whole
+        pieces between, so that no large antiderivatives are subtracted.
+        """
+        x, k, cumulative = self.points
+        piece_low = np.searchsorted(x, low, side="right")  # 0 below the table, len(x) above it
+        piece_high = np.searchsorted(x, high, side="right")
+        node_above_low = np.minimum(piece_low, len(x) - 1)  # first point above ``low`` (where pieces differ)
+        node_below_high = np.maximum(piece_high - 1, 0)  # last point below ``high``
+        first = (x[node_above_low] - low) * 0.5 * (self.at(low) + k[node_above_low])
+        whole = cumulative[node_below_high] - cumulative[node_above_low]
+        last = (high - x[node_below_high]) * 0.5 * (k[node_below_high] + self.at(high))
+        with np.errstate(divide="ignore", invalid="ignore"):
+            spanning = (first + whole + last) / (high - low)
+        return np.where(piece_low == piece_high, self.at(0.5 * (low + high)), spanning)
+
+
+@dataclass(frozen=True)
+class ConductivityPolynomial:
+    """Conductivity ``a + b*θ + c*θ**2 + ...`` with θ in degC.
+
+    Parameters
+    ----------
+    coefficients : sequence of float
+        ``(a, b, c, ...)`` [W m-1 K-1], [W m-1 K-2], [W m-1 K-3], ...; finite,
+        at least one.  Positivity is the caller's check, over the range the
+        material is meant for (:func:`material_from_table`).
+    """
+
+    coefficients: tuple[float, ...]
+
+    def __post_init__(self) -> None:
+        coefficients = tuple(float(c) for c in self.coefficients)
+        if not coefficients or not all(math.isfinite(c) for c in coefficients):
+            raise ValueError("polynomial coefficients must be finite numbers")
+        object.__setattr__(self, "coefficients", coefficients)
+
+    def at(self, temperature: np.ndarray) -> np.ndarray:
+        """Conductivity at ``temperature`` [degC] -> [W m-1 K-1]."""
+        return np.asarray(np.polynomial.polynomial.polyval(temperature, self.coefficients), dtype=float)
+
+    def integral(self, temperature: np.ndarray) -> np.ndarray:
+        """∫[0 degC, θ] λ dθ for θ = ``temperature`` [degC] -> [W m-1], term by term."""
+        antiderivative = (0.0,) + tuple(c / (n + 1) for n, c in enumerate(self.coefficients))
+        return np.asarray(np.polynomial.polynomial.polyval(temperature, antiderivative), dtype=float)
+
+    def mean(self, low: np.ndarray, high: np.ndarray) -> np.ndarray:
+        """Integral mean between ``low`` and ``high`` [degC] -> [W m-1 K-1].
+
+        The closed form Σ cₙ (θ1ⁿ + θ1ⁿ⁻¹θ2 + … + θ2ⁿ)/(n + 1), free of the
+        cancellation in (K(θ2) − K(θ1))/(θ2 − θ1); a + b(θ1 + θ2)/2 for a
+        linear λ.
+        """
+        out = np.zeros(np.broadcast(low, high).shape)
+        for n, c in enumerate(self.coefficients):
+            out = out + c * sum(low**i * high ** (n - i) for i in range(n + 1)) / (n + 1)
+        return out
+
+
+# ---------------------------------------------------------------------- the material
+
+
+@dataclass(frozen=True)
 class Material:
-    """One layer material.
+    """One layer material: its properties and its conductivity law.
 
     Parameters
     ----------
@@ -98,19 +250,13 @@ class Material:
     conductivity : float
         Thermal conductivity [W m-1 K-1]; for a temperature-dependent material,
         its value at :data:`REFERENCE_TEMPERATURE` (10 degC, the ISO 10456
-        reference), which must agree with the table or polynomial.
+        reference), which must agree with ``law``.
     density : float
         Density [kg m-3].
     specific_heat : float
         Specific heat capacity [J kg-1 K-1].
-    conductivity_temperature : numpy.ndarray or None
-        Abscissa of a conductivity table [degC], strictly increasing, two
-        points or more; None for a constant or polynomial conductivity.
-    conductivity_table : numpy.ndarray or None
-        Conductivity at ``conductivity_temperature`` [W m-1 K-1], all positive.
-    conductivity_polynomial : tuple of float or None
-        Coefficients ``(a, b, c, ...)`` of ``a + b*θ + c*θ**2 + ...`` with θ in
-        degC ([W m-1 K-1], [W m-1 K-2], [W m-1 K-3], ...).
+    law : ConductivityTable or ConductivityPolynomial or None
+        How the conductivity depends on temperature; None for a constant.
     description, category, source : str
         What it is, one of :data:`CATEGORIES` (or empty), and where the values
         come from.
@@ -119,17 +265,15 @@ class Material:
 
     Notes
     -----
-    Instances are immutable: the arrays are stored as read-only copies.  Two
-    materials are equal when all their fields are.
+    Instances are immutable and hashable; two materials are equal when all
+    their fields are.
     """
 
     name: str
     conductivity: float
     density: float
     specific_heat: float
-    conductivity_temperature: np.ndarray | None = None
-    conductivity_table: np.ndarray | None = None
-    conductivity_polynomial: tuple[float, ...] | None = None
+    law: ConductivityTable | ConductivityPolynomial | None = None
     description: str = ""
     category: str = ""
     source: str = ""
@@ -143,127 +287,91 @@ class Material:
             object.__setattr__(self, label, value)
         if self.max_temperature is not None:
             object.__setattr__(self, "max_temperature", float(self.max_temperature))
-        has_table = self.conductivity_temperature is not None or self.conductivity_table is not None
-        if has_table and self.conductivity_polynomial is not None:
-            raise ValueError(f"material {self.name!r}: give a conductivity table or a polynomial, not both")
-        if has_table:
-            if self.conductivity_temperature is None or self.conductivity_table is None:
-                raise ValueError(f"material {self.name!r}: a conductivity table needs both temperatures and values")
-            temperature = np.array(self.conductivity_temperature, dtype=float).ravel()
-            table = np.array(self.conductivity_table, dtype=float).ravel()
-            problem = _table_problem(temperature, table)
-            if problem:
-                raise ValueError(f"material {self.name!r}: conductivity table: {problem}")
-            temperature.setflags(write=False)
-            table.setflags(write=False)
-            object.__setattr__(self, "conductivity_temperature", temperature)
-            object.__setattr__(self, "conductivity_table", table)
-        if self.conductivity_polynomial is not None:
-            coefficients = tuple(float(c) for c in self.conductivity_polynomial)
-            if not coefficients or not all(math.isfinite(c) for c in coefficients):
-                raise ValueError(f"material {self.name!r}: polynomial coefficients must be finite numbers")
-            object.__setattr__(self, "conductivity_polynomial", coefficients)
-        if not self.is_constant:
-            reference = float(self.conductivity_at(REFERENCE_TEMPERATURE))
+        if self.law is not None:
+            reference = float(self.law.at(REFERENCE_TEMPERATURE))
             if not math.isclose(self.conductivity, reference, rel_tol=1e-9):
                 raise ValueError(
                     f"material {self.name!r}: conductivity {self.conductivity} does not equal the "
                     f"table or polynomial value {reference} at {REFERENCE_TEMPERATURE:g} degC"
                 )
 
-    # ------------------------------------------------------------------ constructors
+    @classmethod
+    def with_law(
+        cls,
+        name: str,
+        law: ConductivityTable | ConductivityPolynomial,
+        density: float,
+        specific_heat: float,
+        **attributes: Any,
+    ) -> Material:
+        """A temperature-dependent material whose nominal conductivity is ``law`` at 10 degC.
+
+        Parameters
+        ----------
+        name : str
+            Material name.
+        law : ConductivityTable or ConductivityPolynomial
+            The conductivity law.
+        density : float
+            [kg m-3]
+        specific_heat : float
+            [J kg-1 K-1]
+        **attributes
+            ``description``, ``category``, ``source``, ``max_temperature`` [degC].
+        """
+        reference = float(law.at(REFERENCE_TEMPERATURE))
+        return cls(name, reference, density, specific_heat, law, **attributes)
 
     @classmethod
     def from_table(
-        cls,
-        name: str,
-        temperature: Any,
-        conductivity: Any,
-        density: float,
-        specific_heat: float,
-        **attributes: Any,
+        cls, name: str, temperature: Any, conductivity: Any, density: float, specific_heat: float, **attributes: Any
     ) -> Material:
-        """A material whose conductivity is tabulated against temperature.
+        """A material with ``conductivity`` [W m-1 K-1] tabulated at ``temperature`` [degC].
 
-        Parameters
-        ----------
-        name : str
-            Material name.
-        temperature : array_like
-            Table abscissa [degC], strictly increasing.
-        conductivity : array_like
-            Conductivity at ``temperature`` [W m-1 K-1].
-        density : float
-            [kg m-3]
-        specific_heat : float
-            [J kg-1 K-1]
-        **attributes
-            ``description``, ``category``, ``source``, ``max_temperature`` [degC].
-
-        Returns
-        -------
-        Material
-            With :attr:`conductivity` set to the table value at 10 degC.
+        See :class:`ConductivityTable` and :meth:`with_law` (``density``
+        [kg m-3], ``specific_heat`` [J kg-1 K-1]).
         """
-        temperature = np.asarray(temperature, dtype=float)
-        table = np.asarray(conductivity, dtype=float)
-        problem = _table_problem(temperature.ravel(), table.ravel())
-        if problem:
-            raise ValueError(f"material {name!r}: conductivity table: {problem}")
-        reference = float(np.interp(REFERENCE_TEMPERATURE, temperature, table))
-        return cls(name, reference, density, specific_heat, temperature, table, None, **attributes)
+        try:
+            law = ConductivityTable(temperature, conductivity)
+        except ValueError as exc:
+            raise ValueError(f"material {name!r}: {exc}") from None
+        return cls.with_law(name, law, density, specific_heat, **attributes)
 
     @classmethod
     def from_polynomial(
-        cls,
-        name: str,
-        coefficients: Any,
-        density: float,
-        specific_heat: float,
-        **attributes: Any,
+        cls, name: str, coefficients: Any, density: float, specific_heat: float, **attributes: Any
     ) -> Material:
-        """A material whose conductivity is ``a + b*θ + c*θ**2 + ...`` with θ in degC.
+        """A material with conductivity ``a + b*θ + ...`` [W m-1 K-1], θ in degC.
 
-        Parameters
-        ----------
-        name : str
-            Material name.
-        coefficients : sequence of float
-            ``(a, b, c, ...)`` [W m-1 K-1], [W m-1 K-2], [W m-1 K-3], ...
-        density : float
-            [kg m-3]
-        specific_heat : float
-            [J kg-1 K-1]
-        **attributes
-            ``description``, ``category``, ``source``, ``max_temperature`` [degC].
-
-        Returns
-        -------
-        Material
-            With :attr:`conductivity` set to the polynomial's value at 10 degC.
+        See :class:`ConductivityPolynomial` and :meth:`with_law` (``density``
+        [kg m-3], ``specific_heat`` [J kg-1 K-1]).
         """
-        coefficients = tuple(float(c) for c in coefficients)
-        reference = float(np.polynomial.polynomial.polyval(REFERENCE_TEMPERATURE, coefficients))
-        return cls(name, reference, density, specific_heat, None, None, coefficients, **attributes)
-
-    # ------------------------------------------------------------------ properties
+        return cls.with_law(name, ConductivityPolynomial(coefficients), density, specific_heat, **attributes)
 
     @property
     def is_constant(self) -> bool:
         """True when the conductivity does not depend on temperature."""
-        return self.conductivity_table is None and self.conductivity_polynomial is None
+        return self.law is None
 
     @property
     def diffusivity(self) -> float:
-        """Thermal diffusivity λ/(ρc) at the reference conductivity [m2 s-1]."""
+        """Thermal diffusivity λ/(ρc) at the nominal conductivity [m2 s-1]."""
         return self.conductivity / (self.density * self.specific_heat)
 
     @property
-    def volumetric_heat_capacity(self) -> float:
-        """ρc [J m-3 K-1]."""
-        return self.density * self.specific_heat
+    def conductivity_temperature(self) -> np.ndarray | None:
+        """Abscissa of a conductivity table [degC] (read-only), else None."""
+        return self.law.points[0] if isinstance(self.law, ConductivityTable) else None
 
-    # ------------------------------------------------------------------ conductivity models
+    @property
+    def conductivity_table(self) -> np.ndarray | None:
+        """Values of a conductivity table [W m-1 K-1] (read-only), else None."""
+        return self.law.points[1] if isinstance(self.law, ConductivityTable) else None
+
+    @property
+    def conductivity_polynomial(self) -> tuple[float, ...] | None:
+        """Coefficients of a polynomial conductivity ([W m-1 K-1], [W m-1 K-2], ...), else None."""
+        return self.law.coefficients if isinstance(self.law, ConductivityPolynomial) else None
 
     def conductivity_at(self, temperature: Any) -> np.ndarray:
         """Thermal conductivity at a temperature.
@@ -276,22 +384,13 @@ class Material:
         Returns
         -------
         numpy.ndarray
-            Conductivity [W m-1 K-1], the shape of ``temperature``.
-
-        Notes
-        -----
-        A table is interpolated linearly between its points and held at its
-        first and last values beyond its ends (no extrapolation of the trend).
-        A polynomial is evaluated wherever asked; it was checked positive only
-        between -50 degC and ``max_temperature`` (or 1000 degC) when read from a
-        file.
+            Conductivity [W m-1 K-1], the shape of ``temperature``.  A
+            polynomial is evaluated wherever asked; it was checked positive
+            only between -50 degC and ``max_temperature`` (or 1000 degC) when
+            read from a file.
         """
         t = np.asarray(temperature, dtype=float)
-        if self.conductivity_table is not None:
-            return np.interp(t, self.conductivity_temperature, self.conductivity_table)
-        if self.conductivity_polynomial is not None:
-            return np.asarray(np.polynomial.polynomial.polyval(t, self.conductivity_polynomial), dtype=float)
-        return np.full(t.shape, self.conductivity)
+        return np.full(t.shape, self.conductivity) if self.law is None else self.law.at(t)
 
     def conductivity_integral(self, temperature: Any) -> np.ndarray:
         """Kirchhoff transform of the conductivity, ∫[0 degC, θ] λ dθ.
@@ -305,20 +404,10 @@ class Material:
         -------
         numpy.ndarray
             [W m-1], the shape of ``temperature``; negative below 0 degC.
-
-        Notes
-        -----
-        Exact for every model: λθ for a constant, the term-by-term integral for a
-        polynomial, and the trapezoidal (exact for piecewise linear) integral
-        for a table, with the end values held beyond its ends.
+            Exact for every law.
         """
         t = np.asarray(temperature, dtype=float)
-        if self.conductivity_table is not None:
-            return self._table_antiderivative(t) - self._table_antiderivative(np.asarray(0.0))
-        if self.conductivity_polynomial is not None:
-            integral = (0.0,) + tuple(c / (n + 1) for n, c in enumerate(self.conductivity_polynomial))
-            return np.asarray(np.polynomial.polynomial.polyval(t, integral), dtype=float)
-        return self.conductivity * t
+        return self.conductivity * t if self.law is None else self.law.integral(t)
 
     def mean_conductivity(self, t1: Any, t2: Any) -> np.ndarray:
         """Integral-mean conductivity between two temperatures.
@@ -334,126 +423,26 @@ class Material:
         Returns
         -------
         numpy.ndarray
-            [W m-1 K-1]; equals :meth:`conductivity_at` where ``t1 == t2``.
-
-        Notes
-        -----
-        Exact, and free of the cancellation in (K(θ2) − K(θ1))/(θ2 − θ1) when θ2
-        is close to θ1: a polynomial uses the closed form
-        Σ cₙ (θ1ⁿ + θ1ⁿ⁻¹θ2 + … + θ2ⁿ)/(n + 1) (a + b(θ1 + θ2)/2 for a linear λ);
-        a table uses the value at the midpoint when both temperatures lie in the
-        same linear piece, and otherwise integrates the partial pieces at each
-        end from their own table points plus the whole pieces between.
+            [W m-1 K-1]; exact, and equal to :meth:`conductivity_at` where
+            ``t1 == t2``.
         """
         a, b = np.broadcast_arrays(np.asarray(t1, dtype=float), np.asarray(t2, dtype=float))
-        if self.conductivity_polynomial is not None:
-            out = np.zeros(a.shape)
-            for n, c in enumerate(self.conductivity_polynomial):
-                power_sum = sum(a**i * b ** (n - i) for i in range(n + 1))
-                out = out + c * power_sum / (n + 1)
-            return out
-        if self.conductivity_table is not None:
-            return self._table_mean(np.minimum(a, b), np.maximum(a, b))
-        return np.full(a.shape, self.conductivity)
-
-    def _table_mean(self, low: np.ndarray, high: np.ndarray) -> np.ndarray:
-        """Integral mean of the table between ``low <= high`` [W m-1 K-1].
-
-        The table with its constant ends is linear on each piece between
-        neighbouring points (and on the two half-lines beyond them).  Both ends in
-        one piece: the value at the midpoint.  Otherwise: the partial pieces at
-        each end, each integrated from its own node, plus the whole pieces
-        between, so that no large antiderivatives are subtracted.
-        """
-        x = self.conductivity_temperature
-        k = self.conductivity_table
-        cumulative = np.concatenate(([0.0], np.cumsum(np.diff(x) * 0.5 * (k[1:] + k[:-1]))))
-        piece_low = np.searchsorted(x, low, side="right")  # 0 below the table, len(x) above it
-        piece_high = np.searchsorted(x, high, side="right")
-        same_piece = piece_low == piece_high
-        k_low = self.conductivity_at(low)
-        k_high = self.conductivity_at(high)
-        node_above_low = np.minimum(piece_low, len(x) - 1)  # first node above ``low`` (where pieces differ)
-        node_below_high = np.maximum(piece_high - 1, 0)  # last node below ``high``
-        first = (x[node_above_low] - low) * 0.5 * (k_low + k[node_above_low])
-        whole = cumulative[node_below_high] - cumulative[node_above_low]
-        last = (high - x[node_below_high]) * 0.5 * (k[node_below_high] + k_high)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            spanning = (first + whole + last) / (high - low)
-        return np.where(same_piece, self.conductivity_at(0.5 * (low + high)), spanning)
-
-    def _table_antiderivative(self, t: np.ndarray) -> np.ndarray:
-        """∫[first table point, θ] λ dθ for the table with constant ends [W m-1]."""
-        x = self.conductivity_temperature
-        k = self.conductivity_table
-        cumulative = np.concatenate(([0.0], np.cumsum(np.diff(x) * 0.5 * (k[1:] + k[:-1]))))
-        inside = np.clip(t, x[0], x[-1])
-        piece = np.clip(np.searchsorted(x, inside, side="right") - 1, 0, len(x) - 2)
-        k_inside = np.interp(inside, x, k)
-        within = cumulative[piece] + (inside - x[piece]) * 0.5 * (k[piece] + k_inside)
-        below = k[0] * np.minimum(t - x[0], 0.0)
-        above = k[-1] * np.maximum(t - x[-1], 0.0)
-        return within + below + above
-
-    # ------------------------------------------------------------------ identity
-
-    def _key(self) -> tuple:
-        def as_tuple(array: np.ndarray | None) -> tuple | None:
-            return None if array is None else tuple(array.tolist())
-
-        return (
-            self.name,
-            self.conductivity,
-            self.density,
-            self.specific_heat,
-            as_tuple(self.conductivity_temperature),
-            as_tuple(self.conductivity_table),
-            self.conductivity_polynomial,
-            self.description,
-            self.category,
-            self.source,
-            self.max_temperature,
-        )
-
-    def __eq__(self, other: object) -> bool:
-        if not isinstance(other, Material):
-            return NotImplemented
-        return self._key() == other._key()
-
-    def __hash__(self) -> int:
-        return hash(self._key())
-
-
-def _table_problem(temperature: np.ndarray, table: np.ndarray) -> str:
-    """What is wrong with a conductivity table, or an empty string."""
-    if temperature.shape != table.shape:
-        return f"{temperature.size} temperatures but {table.size} values"
-    if temperature.size < 2:
-        return "needs at least two points"
-    if not (np.all(np.isfinite(temperature)) and np.all(np.isfinite(table))):
-        return "holds a value that is not a finite number"
-    if np.any(np.diff(temperature) <= 0.0):
-        return "temperatures must be strictly increasing"
-    if np.any(table <= 0.0):
-        return "conductivities must be positive"
-    return ""
+        if self.law is None:
+            return np.full(a.shape, self.conductivity)
+        return self.law.mean(np.minimum(a, b), np.maximum(a, b))
 
 
 # ---------------------------------------------------------------------- reading TOML
 
 
 def _parse_conductivity(value: Any, *, file: str, key: str) -> dict[str, Any]:
-    """Read a ``conductivity`` entry into Material keyword arguments."""
+    """Read a ``conductivity`` entry into Material keyword arguments (``law``, and
+    ``conductivity`` [W m-1 K-1] for a constant)."""
     if isinstance(value, (str, int, float)) and not isinstance(value, bool):
         conductivity = parse_quantity(value, "conductivity", file=file, key=key)
         if conductivity <= 0.0:
             raise CaseError(file, key, f"conductivity must be positive, got {value!r}")
-        return {
-            "conductivity": conductivity,
-            "conductivity_temperature": None,
-            "conductivity_table": None,
-            "conductivity_polynomial": None,
-        }
+        return {"conductivity": conductivity, "law": None}
     if not isinstance(value, dict):
         raise CaseError(
             file,
@@ -483,11 +472,7 @@ def _parse_conductivity(value: Any, *, file: str, key: str) -> dict[str, Any]:
             )
         if not all(math.isfinite(c) for c in coefficients):
             raise CaseError(file, f"{key}.polynomial", "coefficients must be finite numbers")
-        return {
-            "conductivity_temperature": None,
-            "conductivity_table": None,
-            "conductivity_polynomial": tuple(float(c) for c in coefficients),
-        }
+        return {"law": ConductivityPolynomial(coefficients)}
     unknown = sorted(set(value) - {"temperature", "value"})
     if unknown:
         raise CaseError(
@@ -514,11 +499,7 @@ def _parse_conductivity(value: Any, *, file: str, key: str) -> dict[str, Any]:
         raise CaseError(file, f"{key}.temperature", "temperatures must be strictly increasing (sorted, no repeats)")
     if np.any(table <= 0.0):
         raise CaseError(file, f"{key}.value", "conductivities must be positive")
-    return {
-        "conductivity_temperature": temperature,
-        "conductivity_table": table,
-        "conductivity_polynomial": None,
-    }
+    return {"law": ConductivityTable(temperature, table)}
 
 
 def _positive(value: Any, kind: str, *, file: str, key: str) -> float:
@@ -596,9 +577,7 @@ def material_from_table(
         base = candidates[base_name]
         fields = {
             "conductivity": base.conductivity,
-            "conductivity_temperature": base.conductivity_temperature,
-            "conductivity_table": base.conductivity_table,
-            "conductivity_polynomial": base.conductivity_polynomial,
+            "law": base.law,
             "density": base.density,
             "specific_heat": base.specific_heat,
             "description": base.description,
@@ -644,12 +623,12 @@ def material_from_table(
         if "source" not in table:
             fields["source"] = f"{base.source}; {', '.join(changed)} set in {file}" if changed else base.source
 
-    if fields["conductivity_polynomial"] is not None:
-        coefficients = fields["conductivity_polynomial"]
+    law = fields["law"]
+    if isinstance(law, ConductivityPolynomial):
         high = fields["max_temperature"] if fields["max_temperature"] is not None else POLYNOMIAL_CHECK_HIGH
         high = max(high, REFERENCE_TEMPERATURE)
         probe = np.linspace(min(POLYNOMIAL_CHECK_LOW, high), high, 2001)
-        values = np.polynomial.polynomial.polyval(probe, coefficients)
+        values = law.at(probe)
         if np.any(values <= 0.0):
             where = float(probe[np.argmin(values)])
             raise CaseError(
@@ -658,11 +637,8 @@ def material_from_table(
                 f"the polynomial is not positive at {where:.0f} degC (checked from {POLYNOMIAL_CHECK_LOW:.0f} degC "
                 f"to {high:.0f} degC; set max_temperature to the range it is meant for)",
             )
-        fields["conductivity"] = float(np.polynomial.polynomial.polyval(REFERENCE_TEMPERATURE, coefficients))
-    elif fields["conductivity_table"] is not None:
-        fields["conductivity"] = float(
-            np.interp(REFERENCE_TEMPERATURE, fields["conductivity_temperature"], fields["conductivity_table"])
-        )
+    if law is not None:
+        fields["conductivity"] = float(law.at(REFERENCE_TEMPERATURE))
     try:
         return Material(name=name, **fields)
     except ValueError as exc:  # a check the parsing above should already have made

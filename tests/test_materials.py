@@ -4,8 +4,9 @@ Expected values come from three places, named beside each check:
 ISO 10456:2007 Table 3 and the ASHRAE Handbook-Fundamentals (2013) as tabulated
 in the ``ht`` package (an independent library, read here, not copied); the
 ISO 12241 / ASTM C680 mean-conductivity rule (from memory: the integral mean,
-which for a linear λ is λ at the mean temperature); and numerical quadrature
-(scipy) as an independent oracle for the exact integrals.
+which for a linear λ is λ at the mean temperature); numerical quadrature
+(scipy) as an independent oracle for the exact integrals; and the trapezoid
+rule (by hand and numpy's), exact for a piecewise-linear table.
 """
 
 from __future__ import annotations
@@ -19,6 +20,8 @@ from scipy import integrate
 from layers.errors import CaseError
 from layers.materials import (
     CATEGORIES,
+    ConductivityPolynomial,
+    ConductivityTable,
     Material,
     load_library,
     material_from_table,
@@ -211,6 +214,77 @@ def test_table_interpolates_linearly_and_holds_its_ends():
     )
 
 
+def test_mean_of_a_table_is_its_trapezoid_integral_by_hand():
+    # A table is piecewise linear (constant beyond its ends), so the trapezoid
+    # rule over its own points is its exact integral. Hand values for
+    # 0/100/200 degC -> 0.04/0.05/0.07 W/(m K):
+    #   0..200:   (100 x 0.045 + 100 x 0.060) / 200               = 0.0525
+    #   50..150:  (50 x 0.0475 + 50 x 0.055) / 100                = 0.05125
+    #   -50..250: (50 x 0.04 + 4.5 + 6.0 + 50 x 0.07) / 300       = 16/300
+    #   120..160: one piece, the value at 140 degC                = 0.058
+    # Tolerance: round-off in a handful of operations (1e-14 relative).
+    material = Material.from_table("t", [0.0, 100.0, 200.0], [0.04, 0.05, 0.07], 100.0, 1000.0)
+    t1 = np.array([0.0, 50.0, -50.0, 120.0, 200.0])
+    t2 = np.array([200.0, 150.0, 250.0, 160.0, 0.0])
+    expected = [0.0525, 0.05125, 16.0 / 300.0, 0.058, 0.0525]
+    np.testing.assert_allclose(material.mean_conductivity(t1, t2), expected, rtol=1e-14)
+
+
+def test_mean_of_library_tables_is_the_trapezoid_integral(library):
+    # The same rule on every library table, with numpy's trapezoid over the
+    # interval's ends and the table points inside it, the values read by
+    # linear interpolation (np.interp, an independent implementation).
+    # Tolerance: round-off in sums of at most ~10 terms, 1e-13 relative.
+    for material in library.values():
+        if material.conductivity_temperature is None:
+            continue
+        x, k = material.conductivity_temperature, material.conductivity_table
+        for t1, t2 in [(-80.0, 20.0), (5.0, 95.0), (x[0], x[-1]), (x[1] - 3.0, x[-1] + 40.0), (-200.0, -100.0)]:
+            points = np.concatenate(([t1], x[(x > t1) & (x < t2)], [t2]))
+            values = np.interp(points, x, k)
+            expected = np.trapezoid(values, points) / (t2 - t1)
+            got = float(material.mean_conductivity(t1, t2))
+            assert got == pytest.approx(expected, rel=1e-13), (material.name, t1, t2)
+
+
+def largest_slope(material: Material) -> float:
+    """max |dλ/dθ| over -50..600 degC [W m-1 K-2]: the steepest table piece, or
+    numpy's derivative of the polynomial on a 1 K grid (with 1 % margin for the grid)."""
+    if material.conductivity_temperature is not None:
+        return float(np.max(np.abs(np.diff(material.conductivity_table) / np.diff(material.conductivity_temperature))))
+    derivative = np.polynomial.polynomial.polyder(material.conductivity_polynomial)
+    return 1.01 * float(np.max(np.abs(np.polynomial.polynomial.polyval(np.arange(-50.0, 601.0), derivative))))
+
+
+def test_mean_tends_to_the_local_value_as_the_interval_closes(library):
+    # lim t2 -> t1 of the mean is λ(t1): for an interval δ the mean differs from
+    # λ(t1) by at most max|λ'| δ/2 (mean-value theorem), plus round-off of
+    # 1e-14 relative.
+    for material in k_t_materials(library):
+        bound = largest_slope(material)
+        for t in (-20.0, 0.0, 10.0, 55.5, 150.0, 333.0):
+            k = float(material.conductivity_at(t))
+            for delta in (1e-2, 1e-5, 1e-8, 1e-11):
+                got = float(material.mean_conductivity(t, t + delta))
+                assert abs(got - k) <= bound * delta / 2 + 1e-14 * k, (material.name, t, delta)
+
+
+def test_laws_are_values_checked_and_immutable():
+    table = ConductivityTable([0.0, 50.0], [0.03, 0.035])
+    assert table == ConductivityTable((0.0, 50.0), np.array([0.03, 0.035])) and hash(table) is not None
+    assert ConductivityPolynomial([0.03, 1e-4]) == ConductivityPolynomial((0.03, 0.0001))
+    with pytest.raises(AttributeError):
+        table.value = (1.0, 1.0)  # type: ignore[misc]
+    with pytest.raises(ValueError):
+        table.points[1][0] = 1.0
+    for bad in ([[0.0], [0.03]], [[0.0, 50.0], [0.03]], [[0.0, 0.0], [0.03, 0.04]], [[0.0, 1.0], [0.03, 0.0]]):
+        with pytest.raises(ValueError, match="conductivity table"):
+            ConductivityTable(*bad)
+    for bad in ([], [0.03, float("inf")]):
+        with pytest.raises(ValueError, match="finite"):
+            ConductivityPolynomial(bad)
+
+
 def k_t_materials(library) -> list[Material]:
     own = [
         Material.from_table("table", [-20.0, 0.0, 50.0, 120.0], [0.030, 0.031, 0.036, 0.050], 40.0, 1400.0),
@@ -313,7 +387,7 @@ def test_material_constructor_checks():
     with pytest.raises(ValueError, match="increasing"):
         Material.from_table("x", [10.0, 0.0], [0.1, 0.2], 1.0, 1.0)
     with pytest.raises(ValueError, match="10 degC"):
-        Material("x", 0.5, 1.0, 1.0, conductivity_polynomial=(0.03, 1e-4))
+        Material("x", 0.5, 1.0, 1.0, law=ConductivityPolynomial((0.03, 1e-4)))
 
 
 # ---------------------------------------------------------------------- case-file tables
