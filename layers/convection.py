@@ -12,8 +12,7 @@ Contents, by stage:
 - surface coefficients h [W m-2 K-1] for free, forced and mixed convection
   (:func:`free_convection_coefficient`, :func:`forced_convection_coefficient`,
   :func:`combined_convection_coefficient`);
-- the fixed coefficients of ISO 6946 (building surfaces) and the simplified
-  expressions of ISO 12241 (pipes and equipment).
+- the fixed coefficients of ISO 6946 (building surfaces).
 
 Characteristic lengths, by ``shape``:
 
@@ -37,13 +36,14 @@ from types import MappingProxyType
 import numpy as np
 from numpy.typing import ArrayLike
 
+from layers.constants import ZERO_CELSIUS
+
 __all__ = [
     "STANDARD_GRAVITY",
     "STANDARD_PRESSURE",
     "SPECIFIC_GAS_CONSTANT_AIR",
     "FREE_CONVECTION_SHAPES",
     "FORCED_CONVECTION_SHAPES",
-    "ISO12241_SURFACE_CONSTANT",
     "AirProperties",
     "air_properties",
     "dynamic_viscosity_air",
@@ -61,9 +61,6 @@ __all__ = [
     "combined_convection_coefficient",
     "iso6946_internal_convection",
     "iso6946_external_convection",
-    "iso12241_indoor_convection",
-    "iso12241_outdoor_convection",
-    "iso12241_simplified_coefficient",
 ]
 
 STANDARD_GRAVITY = 9.80665
@@ -78,7 +75,6 @@ atmosphere; equals R*/M with M = 28.9644 kg/kmol of the US Standard Atmosphere
 1976)."""
 
 _MOLAR_MASS_AIR = 28.9644e-3  # [kg mol-1] US Standard Atmosphere 1976, sea level
-_KELVIN = 273.15  # [K] at 0 degC
 _DELTA_T_FLOOR = 1e-9  # [K] keeps |dT| > 0 so that no ratio ever becomes 0/0
 _AIR_T_MIN, _AIR_T_MAX = -100.0, 1000.0  # [degC] range of the property fits used
 
@@ -131,7 +127,7 @@ def _non_negative(name: str, value: ArrayLike) -> np.ndarray:
 
 def _temperature(name: str, value: ArrayLike) -> np.ndarray:
     array = _finite(name, value)
-    if np.any(array <= -_KELVIN):
+    if np.any(array <= -ZERO_CELSIUS):
         raise ValueError(f"{name} must be above absolute zero (-273.15 degC)")
     return array
 
@@ -194,7 +190,7 @@ def _air_temperature_kelvin(temperature: ArrayLike) -> np.ndarray:
             f"air property fits hold from {_AIR_T_MIN:g} to {_AIR_T_MAX:g} degC; "
             f"got {theta.min():g} to {theta.max():g} degC"
         )
-    return theta + _KELVIN
+    return theta + ZERO_CELSIUS
 
 
 def dynamic_viscosity_air(temperature: ArrayLike) -> np.ndarray:
@@ -909,7 +905,7 @@ def body_convection_coefficient(
 
 
 # ---------------------------------------------------------------------------
-# standards' fixed and simplified coefficients
+# ISO 6946 fixed coefficients
 # ---------------------------------------------------------------------------
 
 _ISO6946_INTERNAL = MappingProxyType({"up": 5.0, "horizontal": 2.5, "down": 0.7})
@@ -958,143 +954,3 @@ def iso6946_external_convection(wind_speed: ArrayLike) -> np.ndarray:
     """
     speed = _non_negative("wind_speed", wind_speed)
     return (4.0 + 4.0 * speed)[()]
-
-
-def iso12241_indoor_convection(
-    surface_temperature: ArrayLike,
-    air_temperature: ArrayLike,
-    length: ArrayLike,
-    orientation: str = "horizontal-pipe",
-) -> np.ndarray:
-    """Simplified free-convection coefficient inside buildings, ISO 12241.
-
-    - ``horizontal-pipe`` (L = outside diameter): 1.25 (dT/L)^(1/4) when
-      L^3 dT <= 10 m3 K, otherwise 1.21 dT^(1/3);
-    - ``vertical`` (vertical pipes and walls, L = height): 1.32 (dT/L)^(1/4)
-      when L^3 dT <= 10 m3 K, otherwise 1.74 dT^(1/3).
-
-    Parameters
-    ----------
-    surface_temperature : array_like
-        Surface temperature [degC].
-    air_temperature : array_like
-        Indoor air temperature [degC].
-    length : array_like
-        Diameter or height, > 0 [m].
-    orientation : str, optional
-        ``horizontal-pipe`` or ``vertical``.
-
-    Returns
-    -------
-    numpy.ndarray
-        Convective coefficient hcv [W m-2 K-1] (radiation not included).
-
-    References
-    ----------
-    ISO 12241:2008, section 4.1.4 (from memory, medium confidence: check the
-    standard before relying on the constants). The two branches do not meet
-    at L^3 dT = 10 m3 K.
-    """
-    _choice("orientation", orientation, ("horizontal-pipe", "vertical"))
-    length = _positive("length", length)
-    dt = np.maximum(
-        np.abs(_temperature("surface_temperature", surface_temperature)
-               - _temperature("air_temperature", air_temperature)),
-        _DELTA_T_FLOOR,
-    )
-    laminar_c, turbulent_c = (1.25, 1.21) if orientation == "horizontal-pipe" else (1.32, 1.74)
-    laminar = length**3 * dt <= 10.0
-    return np.where(laminar, laminar_c * (dt / length) ** 0.25, turbulent_c * np.cbrt(dt))[()]
-
-
-def iso12241_outdoor_convection(diameter: ArrayLike, wind_speed: ArrayLike) -> np.ndarray:
-    """Simplified forced-convection coefficient of pipes outdoors, ISO 12241.
-
-    hcv = 8.1e-3 / D + 3.14 sqrt(v / D) when v D <= 8.55e-3 m2/s, otherwise
-    hcv = 8.9 v^0.9 / D^0.1.
-
-    Parameters
-    ----------
-    diameter : array_like
-        Outside diameter, > 0 [m].
-    wind_speed : array_like
-        Wind speed, >= 0 [m s-1].
-
-    Returns
-    -------
-    numpy.ndarray
-        Convective coefficient hcv [W m-2 K-1] (radiation not included).
-
-    References
-    ----------
-    ISO 12241:2008, section 4.1.4 (from memory, medium confidence: check the
-    standard). As recalled, the second branch is about 2.3 times lower than
-    the first where they meet (v D = 8.55e-3 m2/s), and well above
-    Churchill-Bernstein at high wind; prefer
-    :func:`forced_convection_coefficient` until the constants are confirmed.
-    """
-    diameter = _positive("diameter", diameter)
-    speed = _non_negative("wind_speed", wind_speed)
-    low = 8.1e-3 / diameter + 3.14 * np.sqrt(speed / diameter)
-    high = 8.9 * speed**0.9 / diameter**0.1
-    return np.where(speed * diameter <= 8.55e-3, low, high)[()]
-
-
-ISO12241_SURFACE_CONSTANT = MappingProxyType(
-    {
-        # surface: (horizontal pipes, vertical pipes and walls) [W m-2 K-1]
-        "aluminium-bright": (2.5, 2.7),
-        "aluminium-oxidised": (3.1, 3.3),
-        "galvanised-steel-new": (4.0, 4.2),
-        "galvanised-steel-dusty": (5.3, 5.5),
-        "stainless-steel": (3.2, 3.4),
-        "aluminium-zinc": (3.4, 3.6),
-        "non-metallic": (8.5, 8.7),
-    }
-)
-"""Constant C_A of the ISO 12241 simplified total surface coefficient
-he = C_A + 0.05 dT, by jacket surface: (horizontal pipes, vertical pipes and
-walls) [W m-2 K-1]. ISO 12241:2008 table for the simplified method, from
-memory (medium confidence). ``stainless-steel`` is the standard's "austenitic
-steel", ``galvanised-steel-new`` its "galvanised sheet, blank"; the same keys
-are used by :data:`layers.radiation.JACKET_EMISSIVITY`."""
-
-
-def iso12241_simplified_coefficient(
-    surface_temperature: ArrayLike,
-    air_temperature: ArrayLike,
-    surface: str,
-    orientation: str = "horizontal-pipe",
-) -> np.ndarray:
-    """Total (convection + radiation) surface coefficient, ISO 12241 simplified method.
-
-    he = C_A + 0.05 |theta_s - theta_a|, for insulated installations indoors.
-
-    Parameters
-    ----------
-    surface_temperature : array_like
-        Jacket surface temperature [degC].
-    air_temperature : array_like
-        Indoor air temperature [degC].
-    surface : str
-        Jacket surface, a key of :data:`ISO12241_SURFACE_CONSTANT`.
-    orientation : str, optional
-        ``horizontal-pipe`` or ``vertical`` (vertical pipes and walls).
-
-    Returns
-    -------
-    numpy.ndarray
-        he [W m-2 K-1], radiation included.
-
-    References
-    ----------
-    ISO 12241:2008, simplified method (from memory, medium confidence).
-    """
-    _choice("surface", surface, tuple(ISO12241_SURFACE_CONSTANT))
-    _choice("orientation", orientation, ("horizontal-pipe", "vertical"))
-    constant = ISO12241_SURFACE_CONSTANT[surface][0 if orientation == "horizontal-pipe" else 1]
-    dt = np.abs(
-        _temperature("surface_temperature", surface_temperature)
-        - _temperature("air_temperature", air_temperature)
-    )
-    return (constant + 0.05 * dt)[()]

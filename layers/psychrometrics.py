@@ -26,6 +26,8 @@ from __future__ import annotations
 import numpy as np
 from numpy.typing import ArrayLike
 
+from layers.constants import ZERO_CELSIUS
+
 __all__ = [
     "saturation_vapour_pressure",
     "vapour_pressure",
@@ -37,15 +39,13 @@ _A = 610.5  # [Pa] saturation pressure at 0 degC used by the standard
 _B_WATER, _C_WATER = 17.269, 237.3  # [-], [degC] over liquid water, theta >= 0
 _B_ICE, _C_ICE = 21.875, 265.5  # [-], [degC] over ice, theta < 0
 
-_ABSOLUTE_ZERO = -273.15  # [degC]
-
 
 def _temperature_array(name: str, value: ArrayLike) -> np.ndarray:
     """Return `value` as a float array; raise ValueError for NaN or <= 0 K."""
     array = np.asarray(value, dtype=float)
     if np.any(np.isnan(array)):
         raise ValueError(f"{name} contains NaN")
-    if np.any(array <= _ABSOLUTE_ZERO):
+    if np.any(array <= -ZERO_CELSIUS):
         raise ValueError(f"{name} must be above absolute zero (-273.15 degC)")
     if np.any(np.isinf(array)):
         raise ValueError(f"{name} must be finite")

@@ -18,28 +18,21 @@ from types import MappingProxyType
 import numpy as np
 from numpy.typing import ArrayLike
 
+from layers.constants import ISO6946_REFERENCE_WIND_SPEED, STEFAN_BOLTZMANN, ZERO_CELSIUS
 from layers.convection import iso6946_external_convection, iso6946_internal_convection
 
 __all__ = [
-    "STEFAN_BOLTZMANN",
     "SurfaceEmissivity",
     "JACKET_EMISSIVITY",
     "jacket_emissivity",
     "radiative_coefficient",
     "hr0",
     "sky_temperature_swinbank",
-    "sky_temperature_berdahl_martin",
     "view_factor_sky",
     "view_factor_ground",
     "iso6946_surface_resistance",
     "iso6946_external_surface_resistance",
 ]
-
-STEFAN_BOLTZMANN = 5.670374419e-8
-"""Stefan-Boltzmann constant [W m-2 K-4] (CODATA 2018; exact in the 2019 SI)."""
-
-_KELVIN = 273.15  # [K] at 0 degC
-
 
 def _finite(name: str, value: ArrayLike) -> np.ndarray:
     array = np.asarray(value, dtype=float)
@@ -53,9 +46,9 @@ def _finite(name: str, value: ArrayLike) -> np.ndarray:
 def _kelvin(name: str, value: ArrayLike) -> np.ndarray:
     """Temperature in degC -> K; raise ValueError for NaN, inf or <= 0 K."""
     array = _finite(name, value)
-    if np.any(array <= -_KELVIN):
+    if np.any(array <= -ZERO_CELSIUS):
         raise ValueError(f"{name} must be above absolute zero (-273.15 degC)")
-    return array + _KELVIN
+    return array + ZERO_CELSIUS
 
 
 def _emissivity(value: ArrayLike) -> np.ndarray:
@@ -110,8 +103,8 @@ JACKET_EMISSIVITY = MappingProxyType(
         ),
     }
 )
-"""Typical emissivities of insulation jackets and cladding, keyed like
-:data:`layers.convection.ISO12241_SURFACE_CONSTANT`. Real values vary with
+"""Typical emissivities of insulation jackets and cladding, keyed by the
+names the case file accepts for an outside film's ``jacket``. Real values vary with
 finish, ageing and dirt (bright aluminium roughly 0.03-0.1, weathered
 galvanised steel up to about 0.3-0.6): use a measured value where the result
 depends on it."""
@@ -230,8 +223,7 @@ def sky_temperature_swinbank(air_temperature: ArrayLike) -> np.ndarray:
     Notes
     -----
     A clear-sky relation without humidity or cloud; it gives a sky about
-    16 K below the air at 20 degC. Use :func:`sky_temperature_berdahl_martin`
-    where the dew point is known.
+    16 K below the air at 20 degC.
 
     References
     ----------
@@ -240,50 +232,7 @@ def sky_temperature_swinbank(air_temperature: ArrayLike) -> np.ndarray:
     Processes*, section 3.9.
     """
     t = _kelvin("air_temperature", air_temperature)
-    return (0.0552 * t**1.5 - _KELVIN)[()]
-
-
-def sky_temperature_berdahl_martin(
-    air_temperature: ArrayLike, dew_point_temperature: ArrayLike, hour: ArrayLike | None = None
-) -> np.ndarray:
-    """Effective clear-sky temperature from the Berdahl-Martin (1984) sky emissivity.
-
-    .. math::
-        \\varepsilon_{sky} = 0.711 + 0.56\\,(t_{dp}/100) + 0.73\\,(t_{dp}/100)^2
-        [+ 0.013 \\cos(2\\pi\\,\\mathrm{hour}/24)],
-        \\qquad T_{sky} = \\varepsilon_{sky}^{1/4} T_{air}
-
-    Parameters
-    ----------
-    air_temperature : array_like
-        Screen-level air temperature [degC].
-    dew_point_temperature : array_like
-        Dew-point temperature, not above the air temperature [degC].
-    hour : array_like, optional
-        Solar hour from midnight, for the small diurnal term [h]; omitted
-        by default (daily mean).
-
-    Returns
-    -------
-    numpy.ndarray
-        Effective sky temperature [degC].
-
-    References
-    ----------
-    P. Berdahl, M. Martin, "Emissivity of clear skies", Solar Energy 32
-    (1984) 663-664; as quoted by Duffie and Beckman, eq. 3.9.2 (constants
-    from memory, medium-high confidence).
-    """
-    t_air = _kelvin("air_temperature", air_temperature)
-    t_dp = _finite("dew_point_temperature", dew_point_temperature)
-    if np.any(t_dp > t_air - _KELVIN + 1e-9):
-        raise ValueError("dew_point_temperature must not exceed air_temperature")
-    x = t_dp / 100.0
-    emissivity = 0.711 + 0.56 * x + 0.73 * x * x
-    if hour is not None:
-        emissivity = emissivity + 0.013 * np.cos(2.0 * np.pi * _finite("hour", hour) / 24.0)
-    emissivity = np.clip(emissivity, 0.0, 1.0)
-    return (emissivity**0.25 * t_air - _KELVIN)[()]
+    return (0.0552 * t**1.5 - ZERO_CELSIUS)[()]
 
 
 def _tilt(tilt_deg: ArrayLike) -> np.ndarray:
@@ -368,7 +317,7 @@ def iso6946_surface_resistance(
 
 
 def iso6946_external_surface_resistance(
-    wind_speed: ArrayLike = 4.0, emissivity: ArrayLike = 0.9, mean_temperature: ArrayLike = 0.0
+    wind_speed: ArrayLike = ISO6946_REFERENCE_WIND_SPEED, emissivity: ArrayLike = 0.9, mean_temperature: ArrayLike = 0.0
 ) -> np.ndarray:
     """External surface resistance Rse = 1/(4 + 4 v + eps hr0) of ISO 6946 annex on surface resistances.
 

@@ -33,7 +33,6 @@ from ht.conv_free_immersed import (
 from layers.convection import (
     FORCED_CONVECTION_SHAPES,
     FREE_CONVECTION_SHAPES,
-    ISO12241_SURFACE_CONSTANT,
     STANDARD_GRAVITY,
     air_properties,
     combined_convection_coefficient,
@@ -42,9 +41,6 @@ from layers.convection import (
     free_convection_coefficient,
     iso6946_external_convection,
     iso6946_internal_convection,
-    iso12241_indoor_convection,
-    iso12241_outdoor_convection,
-    iso12241_simplified_coefficient,
     nusselt_cylinder_churchill_bernstein,
     nusselt_flat_plate_parallel_flow,
     nusselt_horizontal_cylinder_churchill_chu,
@@ -314,8 +310,10 @@ def test_iso12241_plausibility_example():
     hr = float(radiative_coefficient(0.9, 40.0, 20.0))
     assert hc == pytest.approx(4.12, rel=0.02)
     assert hr == pytest.approx(5.69, rel=0.002)
-    simplified = float(iso12241_simplified_coefficient(40.0, 20.0, "non-metallic"))
-    assert simplified == pytest.approx(9.5, rel=ROUND_OFF)
+    # ISO 12241:2008 simplified method, he = C_A + 0.05 dT with C_A = 8.5 for a
+    # non-metallic horizontal pipe (from memory, medium confidence); 5 % holds
+    # the 3 % found plus the ~1 % of the film-property difference.
+    simplified = 8.5 + 0.05 * 20.0
     assert hc + hr == pytest.approx(simplified, rel=0.05)
 
 
@@ -462,7 +460,7 @@ def test_surface_coefficients_reject_bad_input(call):
 
 
 # ---------------------------------------------------------------------------
-# ISO 6946 and ISO 12241 coefficients
+# ISO 6946 coefficients
 # ---------------------------------------------------------------------------
 
 
@@ -476,45 +474,3 @@ def test_iso6946_convection_coefficients():
         iso6946_internal_convection("sideways")
     with pytest.raises(ValueError):
         iso6946_external_convection(-1.0)
-
-
-def test_iso12241_indoor_branches():
-    # ISO 12241 section 4.1.4 [FROM MEMORY], evaluated by hand [COMPUTED]:
-    # D = 0.1 m, dT = 40 K: D^3 dT = 0.04 <= 10, h = 1.25 (40/0.1)^(1/4) = 5.5902.
-    # D = 1.0 m, dT = 40 K: D^3 dT = 40 > 10, h = 1.21 * 40^(1/3) = 4.1381.
-    h = iso12241_indoor_convection(60.0, 20.0, np.array([0.1, 1.0]), "horizontal-pipe")
-    assert np.allclose(h, [1.25 * 400.0**0.25, 1.21 * 40.0 ** (1 / 3)], rtol=ROUND_OFF)
-    h = iso12241_indoor_convection(20.0, 60.0, np.array([0.1, 1.0]), "vertical")  # sign-free
-    assert np.allclose(h, [1.32 * 400.0**0.25, 1.74 * 40.0 ** (1 / 3)], rtol=ROUND_OFF)
-    assert np.isfinite(iso12241_indoor_convection(20.0, 20.0, 0.1))
-
-
-def test_iso12241_indoor_is_close_to_churchill_chu():
-    # Cross-check of the recalled constants: for a 0.1 m pipe 40 K above
-    # 20 degC air, Churchill-Chu gives 5.9 W/m2K and ISO 12241 5.6 (6 %).
-    churchill = float(free_convection_coefficient(60.0, 20.0, 0.1, "horizontal-cylinder"))
-    iso = float(iso12241_indoor_convection(60.0, 20.0, 0.1, "horizontal-pipe"))
-    assert iso == pytest.approx(churchill, rel=0.1)
-
-
-def test_iso12241_outdoor_branches():
-    # ISO 12241 [FROM MEMORY] evaluated by hand [COMPUTED]:
-    # D = 0.1, v = 0.05 (vD = 0.005 <= 8.55e-3): 0.081 + 3.14 sqrt(0.5) = 2.3013;
-    # D = 0.1, v = 5 (vD = 0.5):                8.9 * 5^0.9 / 0.1^0.1 = 47.694.
-    h = iso12241_outdoor_convection(0.1, np.array([0.05, 5.0]))
-    assert np.allclose(h, [0.081 + 3.14 * math.sqrt(0.5), 8.9 * 5.0**0.9 / 0.1**0.1], rtol=ROUND_OFF)
-    with pytest.raises(ValueError):
-        iso12241_outdoor_convection(0.0, 1.0)
-
-
-def test_iso12241_simplified_table_and_orientation():
-    # he = C_A + 0.05 dT [FROM MEMORY, REFERENCES.md section 3 table].
-    assert float(iso12241_simplified_coefficient(70.0, 20.0, "aluminium-bright")) == pytest.approx(5.0)
-    assert float(iso12241_simplified_coefficient(20.0, 70.0, "aluminium-bright", "vertical")) == pytest.approx(5.2)
-    assert ISO12241_SURFACE_CONSTANT["galvanised-steel-dusty"] == (5.3, 5.5)
-    for horizontal, vertical in ISO12241_SURFACE_CONSTANT.values():
-        assert vertical == pytest.approx(horizontal + 0.2)
-    with pytest.raises(ValueError):
-        iso12241_simplified_coefficient(70.0, 20.0, "gold")
-    with pytest.raises(ValueError):
-        iso12241_simplified_coefficient(70.0, 20.0, "aluminium-bright", "diagonal")
