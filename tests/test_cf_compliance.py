@@ -1,4 +1,4 @@
-"""Files written by run, size and periodic pass the IOOS compliance checker (cf:1.10) with no errors."""
+"""Files written by run, size, periodic and compare pass the IOOS compliance checker (cf:1.10) with no errors."""
 
 from __future__ import annotations
 
@@ -36,4 +36,17 @@ def test_written_files_have_no_cf_errors(tmp_path, capsys, command, case):
     if command in ("run", "size"):
         args += ["--archive", str(tmp_path / "runs"), "--quiet"]
     assert main(args) == 0
+    assert _errors(out, tmp_path) == []
+
+
+def test_combined_comparison_has_no_cf_errors(tmp_path, capsys):
+    """The Dataset ``layers compare -o X.nc`` writes (runs along ``run``) is CF-1.10 too."""
+    runs = tmp_path / "runs"
+    for thickness in ("40 mm", "60 mm"):
+        case = tmp_path / f"freeze-{thickness.split()[0]}.toml"
+        text = open("cases/outdoor-water-freeze.toml", encoding="utf-8").read()
+        case.write_text(text.replace('thickness = "40 mm"', f'thickness = "{thickness}"'), encoding="utf-8")
+        assert main(["run", str(case), "--archive", str(runs), "--quiet"]) == 0
+    out = tmp_path / "compare.nc"
+    assert main(["compare", *sorted(str(p) for p in runs.glob("*.nc")), "-o", str(out)]) == 0
     assert _errors(out, tmp_path) == []
