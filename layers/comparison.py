@@ -222,8 +222,52 @@ def _interp_time(values: np.ndarray, t: np.ndarray, grid: np.ndarray) -> np.ndar
     return values[i] * (1.0 - w) + values[j] * w
 
 
+#: Where interface temperatures come from (the ``comment`` of :func:`interface_temperatures`).
+_OWN = "the run's own interface_temperature (from the solver's face fluxes)"
+_REDERIVED = (
+    "re-derived (the run file has no interface_temperature): extrapolated from the two "
+    "nearest cell centres on each side; mean of the sides"
+)
+
+
 def interface_temperatures(ds: xr.Dataset) -> xr.DataArray:
-    """Temperatures at the internal layer faces, from the cell-centre profile [degC].
+    """Temperatures at the internal layer faces of a run [degC].
+
+    The run's own ``interface_temperature`` (written by the solver from its
+    face fluxes; dims ``time, interface`` with 0 the inside surface and the
+    last the outside surface), its internal faces only.  Old run files
+    without that variable get :func:`interface_temperatures_from_cells`, a
+    re-derivation from the cell-centre profile, and say so in the
+    ``comment`` attribute.
+
+    Returns
+    -------
+    xarray.DataArray
+        Dims ``(time, interface)``; ``interface`` = 1 is the face between
+        layers 1 and 2.
+    """
+    n_faces = len(ds["layer_interface"])
+    stored = ds.get("interface_temperature")
+    if stored is None or stored.sizes.get("interface") != n_faces:
+        return interface_temperatures_from_cells(ds)
+    other = [d for d in stored.dims if d not in ("time", "interface")]
+    values = np.asarray(stored.transpose("time", "interface", *other).values, dtype=float)[:, 1:-1]
+    return xr.DataArray(
+        values,
+        dims=("time", "interface"),
+        coords={"time": ds["time"].values, "interface": np.arange(1, n_faces - 1, dtype=np.int32)},
+        attrs={
+            "units": str(stored.attrs.get("units", "degC")),
+            "long_name": "temperature at the layer interface",
+            "comment": _OWN,
+            "cell_methods": "time: point",
+        },
+    )
+
+
+def interface_temperatures_from_cells(ds: xr.Dataset) -> xr.DataArray:
+    """FALLBACK for old run files without ``interface_temperature``: the internal
+    layer faces' temperatures re-derived from the cell-centre profile [degC].
 
     Each side's two cells nearest the face are extrapolated linearly to it
     (second order in the cell size for a smooth profile within a layer, the
@@ -265,7 +309,7 @@ def interface_temperatures(ds: xr.Dataset) -> xr.DataArray:
         attrs={
             "units": "degC",
             "long_name": "temperature at the layer interface",
-            "comment": "extrapolated from the two nearest cell centres on each side; mean of the sides",
+            "comment": _REDERIVED,
             "cell_methods": "time: point",
         },
     )
@@ -554,10 +598,16 @@ def _combine(
         n_interfaces = layer_counts.pop() - 2
     if n_interfaces > 0:
         stack = np.empty((n, len(grid), n_interfaces))
-        for i, ds in enumerate(datasets):
-            face = interface_temperatures(ds)
+        faces = [interface_temperatures(ds) for ds in datasets]
+        for i, (ds, face) in enumerate(zip(datasets, faces)):
             stack[i] = _interp_time(face.values, ds["time"].values, grid)
-        attrs = dict(face.attrs)
+        attrs = dict(faces[0].attrs)
+        derived = [f.name for f, face in zip(files, faces) if face.attrs["comment"] == _REDERIVED]
+        if derived and len(derived) < n:  # some runs carry their own, older ones do not
+            attrs["comment"] = (
+                "each run's own interface_temperature (from the solver's face fluxes); re-derived from the "
+                "cell centres for the older run files without it: " + ", ".join(derived)
+            )
         # CF 2.4: dimensions other than T, Z, Y, X go left of time
         data_vars["temperature_interface"] = (("run", "interface", "time"), stack.transpose(0, 2, 1), attrs)
         # named by its materials when every run has the same ones there,

@@ -21,11 +21,17 @@ import xarray as xr
 from layers import CAUTION
 from tests.conftest import ROOT
 from layers.catalogue import ArchiveEntry, headline_attributes, list_runs, read_entry
-from layers.comparison import case_differences, compare_runs, flatten_case, interface_temperatures
+from layers.comparison import (
+    case_differences,
+    compare_runs,
+    flatten_case,
+    interface_temperatures,
+    interface_temperatures_from_cells,
+)
 from layers.case import load_case
 from layers.cli import main
 from layers.errors import CaseError
-from layers.results import archive
+from layers.results import archive, write_new
 from layers.simulation import simulate
 
 WALL = """
@@ -574,6 +580,41 @@ initial = "steady"
     face = interface_temperatures(ds)
     assert face.dims == ("time", "interface") and face.attrs["units"] == "degC"
     np.testing.assert_allclose(face.values[:, 0], expected, rtol=0, atol=1e-9)
+    # the fallback for old run files (re-derived from the cell centres) is exact here too
+    old = interface_temperatures_from_cells(ds.drop_vars("interface_temperature", errors="ignore"))
+    np.testing.assert_allclose(old.values[:, 0], expected, rtol=0, atol=1e-9)
+
+
+def _with_own_interface_temperature(ds: xr.Dataset, offset: float) -> xr.Dataset:
+    """A copy of a run carrying an ``interface_temperature`` (time, interface: 0 the inside
+    surface ... the outside surface) set to known values: each internal face is the
+    re-derived value plus ``offset``, so a comparison that re-derived would miss it."""
+    faces = interface_temperatures_from_cells(ds).values
+    full = np.column_stack([ds["surface_temperature_inside"].values, faces + offset, ds["surface_temperature_outside"].values])
+    out = ds.drop_vars("interface_temperature", errors="ignore")
+    out["interface_temperature"] = (("time", "interface"), full, {"units": "degC", "long_name": "temperature of each layer face"})
+    return out
+
+
+def test_compare_reads_each_run_s_own_interface_temperature(make_run, tmp_path):
+    """compare takes the interface temperatures the runs carry (the solver's own), not a
+    re-derivation; only old run files without the variable are re-derived, and the
+    combined Dataset says which."""
+    _, ds = make_run(wall_text(), name="wall")
+    own_a = write_new(_with_own_interface_temperature(ds, 0.5), tmp_path / "own-a.nc")
+    own_b = write_new(_with_own_interface_temperature(ds, 1.5), tmp_path / "own-b.nc")
+    old = write_new(ds.drop_vars("interface_temperature", errors="ignore"), tmp_path / "old.nc")
+    derived = interface_temperatures_from_cells(ds).values[:, 0]
+
+    combined = compare_runs([own_a, own_b]).dataset
+    values = combined["temperature_interface"].values  # (run, interface, time)
+    np.testing.assert_allclose(values[0, 0], derived + 0.5, rtol=0, atol=1e-12)
+    np.testing.assert_allclose(values[1, 0], derived + 1.5, rtol=0, atol=1e-12)
+    assert "re-derived" not in combined["temperature_interface"].attrs["comment"]
+
+    combined = compare_runs([own_a, old]).dataset
+    np.testing.assert_allclose(combined["temperature_interface"].values[1, 0], derived, rtol=0, atol=1e-12)
+    assert combined["temperature_interface"].attrs["comment"].endswith("without it: old.nc")
 
 
 def test_archive_entry_json_has_units_in_the_keys():
