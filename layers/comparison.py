@@ -252,17 +252,7 @@ def interface_temperatures(ds: xr.Dataset) -> xr.DataArray:
         return interface_temperatures_from_cells(ds)
     other = [d for d in stored.dims if d not in ("time", "interface")]
     values = np.asarray(stored.transpose("time", "interface", *other).values, dtype=float)[:, 1:-1]
-    return xr.DataArray(
-        values,
-        dims=("time", "interface"),
-        coords={"time": ds["time"].values, "interface": np.arange(1, n_faces - 1, dtype=np.int32)},
-        attrs={
-            "units": str(stored.attrs.get("units", "degC")),
-            "long_name": "temperature at the layer interface",
-            "comment": _OWN,
-            "cell_methods": "time: point",
-        },
-    )
+    return _interface_array(ds, values, _OWN)
 
 
 def interface_temperatures_from_cells(ds: xr.Dataset) -> xr.DataArray:
@@ -302,16 +292,17 @@ def interface_temperatures_from_cells(ds: xr.Dataset) -> xr.DataArray:
             sides.append(temp[:, b] + slope * (xf - x[b]))
         if sides:
             out[:, j - 1] = np.mean(sides, axis=0)
+    return _interface_array(ds, out, _REDERIVED)
+
+
+def _interface_array(ds: xr.Dataset, values: np.ndarray, comment: str) -> xr.DataArray:
+    """Internal-face temperatures [degC] (time, interface from 1) labelled with where they come from."""
     return xr.DataArray(
-        out,
+        values,
         dims=("time", "interface"),
-        coords={"time": ds["time"].values, "interface": np.arange(1, n_faces + 1, dtype=np.int32)},
-        attrs={
-            "units": "degC",
-            "long_name": "temperature at the layer interface",
-            "comment": _REDERIVED,
-            "cell_methods": "time: point",
-        },
+        coords={"time": ds["time"].values, "interface": np.arange(1, values.shape[1] + 1, dtype=np.int32)},
+        attrs={"units": "degC", "long_name": "temperature at the layer interface", "comment": comment,
+               "cell_methods": "time: point"},
     )
 
 
