@@ -94,7 +94,6 @@ convection shape, plus the plain names ``cylinder`` (crossflow) and ``plate``
 (parallel flow)."""
 
 _CROSSFLOW_CYLINDERS = ("cylinder", "horizontal-cylinder", "vertical-cylinder")
-_PLATES = ("plate", "vertical-plate", "horizontal-plate-up", "horizontal-plate-down")
 
 
 # ---------------------------------------------------------------------------
