@@ -28,7 +28,6 @@ from layers.units import parse_quantity, parse_temperature
 
 BOUNDARY_TYPES = ("film", "temperature", "flux", "adiabatic", "contents")
 INITIAL_WORDS = ("steady", "periodic")
-SCHEMES = ("backward-euler", "crank-nicolson", "tr-bdf2")
 #: ISO 6946:2017 Table 7 conventional surface resistances [m2 K W-1] (horizontal heat flow).
 ISO6946_RSI_HORIZONTAL = 0.13
 ISO6946_RSE = 0.04
@@ -784,9 +783,13 @@ def _parse_time(t: _Table, series: Series | None, timezone: str) -> TimePlan:
         raise t.error("initial", f"must be a temperature, \"steady\" or \"periodic\"; got {initial!r}")
     else:
         initial_value = parse_temperature(initial, file=file, key=t.key("initial"))
-    scheme = t.get("scheme", "backward-euler")
-    if scheme not in SCHEMES:
-        raise t.error("scheme", f"unknown scheme {scheme!r}; use one of {', '.join(SCHEMES)}")
+    from layers.march import SCHEME_NAMES
+
+    scheme = t.get("scheme", "auto")
+    if scheme == "exact":
+        raise t.error("scheme", "the exact path is not available in this version; use auto (tr-bdf2), tr-bdf2, crank-nicolson or backward-euler")
+    if scheme not in SCHEME_NAMES:
+        raise t.error("scheme", f"unknown scheme {scheme!r}; use one of {', '.join(SCHEME_NAMES)}")
     period = _positive(t.get("period", "24 h"), "duration", t, "period")
     if initial_value == "periodic":
         p = period / step

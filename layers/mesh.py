@@ -118,7 +118,7 @@ class MeshRule:
         return sizes * (thickness / sizes.sum())
 
 
-def _area(geometry: str, r: np.ndarray | float) -> np.ndarray:
+def surface_area(geometry: str, r: np.ndarray | float) -> np.ndarray:
     """Area per reference unit at radius ``r`` [m2 per m2 | m | sphere]."""
     if geometry == "planar":
         return np.ones_like(np.asarray(r, dtype=float))
@@ -127,7 +127,7 @@ def _area(geometry: str, r: np.ndarray | float) -> np.ndarray:
     return 4.0 * math.pi * np.asarray(r, dtype=float) ** 2
 
 
-def _shape(geometry: str, r1: np.ndarray, r2: np.ndarray) -> np.ndarray:
+def shape_factor(geometry: str, r1: np.ndarray, r2: np.ndarray) -> np.ndarray:
     """Shape factor S with R = S / k for a shell from r1 to r2 (Incropera Table 3.3)."""
     r1 = np.asarray(r1, dtype=float)
     r2 = np.asarray(r2, dtype=float)
@@ -173,6 +173,9 @@ class Mesh:
     total_thickness: float        # [m]
     layer_specs: tuple[LayerSpec, ...] = field(repr=False)
     interfaces: np.ndarray = field(repr=False)  # positions of layer faces [m], len = n_layers + 1
+    interface_cell: np.ndarray = field(repr=False)      # the cell whose face each layer face is read from
+    interface_outward: np.ndarray = field(repr=False)   # True: that cell's outer face; False: its inner face
+    interface_offset: np.ndarray = field(repr=False)    # [K W-1 per ref. unit] gaps/contacts between that cell face and the layer face
 
     @property
     def n(self) -> int:
@@ -185,15 +188,11 @@ class Mesh:
 
     @property
     def area_inside(self) -> float:
-        return float(_area(self.geometry, self.inner_radius))
+        return float(surface_area(self.geometry, self.inner_radius))
 
     @property
     def area_outside(self) -> float:
-        return float(_area(self.geometry, self.inner_radius + self.total_thickness))
-
-    def area_at(self, x: np.ndarray | float) -> np.ndarray:
-        """Area per reference unit at distance ``x`` from the inside surface."""
-        return _area(self.geometry, self.inner_radius + np.asarray(x, dtype=float))
+        return float(surface_area(self.geometry, self.inner_radius + self.total_thickness))
 
     def capacity(self, temperature: np.ndarray | None = None) -> np.ndarray:
         """Heat capacity of each cell [J K-1 per reference unit]."""
@@ -232,6 +231,36 @@ class Mesh:
             float(self.shape_lo[0] / k[0] + self.extra_inside),
             float(self.shape_hi[-1] / k[-1] + self.extra_outside),
         )
+
+    def interface_temperatures(
+        self, temperature: np.ndarray, k: np.ndarray, conductances: np.ndarray, q_in: float, q_out: float
+    ) -> np.ndarray:
+        """Temperatures of the layer faces (0 = inside surface ... outside surface) [degC].
+
+        Read from the nearest cell along the heat path with the face fluxes of
+        the march: the flux through a cell's face times the half-cell
+        resistance (and any gap or contact resistance in between).  A face
+        with a contact resistance is reported on its inner side (the
+        contact lies just outside it).
+
+        Parameters
+        ----------
+        temperature : (n,) cell temperatures [degC]
+        k : (n,) cell conductivities [W m-1 K-1]
+        conductances : (n-1,) between cell centres [W K-1 per reference unit]
+        q_in, q_out : float
+            Heat into the construction through the inside and the outside
+            surface [W per reference unit].
+        """
+        c = self.interface_cell
+        outward_flux = np.empty(self.n + 1)  # at each cell face, inside to outside
+        outward_flux[0] = q_in
+        outward_flux[1:-1] = conductances * (temperature[:-1] - temperature[1:])
+        outward_flux[-1] = -q_out
+        hi = self.interface_outward
+        flux = np.where(hi, outward_flux[c + 1], outward_flux[c])
+        half = np.where(hi, self.shape_hi[c], self.shape_lo[c]) / k[c]
+        return temperature[c] - np.where(hi, 1.0, -1.0) * flux * (half + self.interface_offset)
 
     def steady_resistance(self) -> float:
         """Surface-to-surface resistance for constant conductivity [K W-1 per reference unit]."""
@@ -276,11 +305,12 @@ def build_mesh(
     pending = 0.0                     # gap/contact resistance waiting for the next cell
     position = 0.0
     interfaces = [0.0]
+    # each layer face: (cell, True if on the cell's outer side, extra resistance from that cell face)
+    faces: list[tuple[int | None, bool, float]] = [(None, False, 0.0)]
     for number, spec in enumerate(layers, start=1):
-        area = float(_area(geometry, r0 + position))
         if spec.is_gap:
             # resistance given per area at the gap; use the mid-gap area
-            area_mid = float(_area(geometry, r0 + position + spec.thickness / 2.0))
+            area_mid = float(surface_area(geometry, r0 + position + spec.thickness / 2.0))
             pending += spec.resistance / area_mid
             position += spec.thickness
         else:
@@ -298,11 +328,14 @@ def build_mesh(
                 layer_idx.append(number)
                 mats.append(spec.material)
             position += spec.thickness
+        # the face at the end of this layer lies before its contact resistance
+        faces.append((len(x_lo) - 1, True, pending) if x_lo else (None, False, pending))
         if spec.contact_resistance:
-            pending += spec.contact_resistance / float(_area(geometry, r0 + position))
+            pending += spec.contact_resistance / float(surface_area(geometry, r0 + position))
         interfaces.append(position)
-        del area
     extra_outside = pending
+    # faces before the first cell: measured inward from the first cell's inner face
+    faces = [(0, False, extra_inside - off) if cell is None else (cell, out, off) for cell, out, off in faces]
 
     lo = np.array(x_lo)
     hi = np.array(x_hi)
@@ -316,12 +349,15 @@ def build_mesh(
         layer=np.array(layer_idx, dtype=np.int32),
         materials=tuple(mats),
         volume=_volume(geometry, r0 + lo, r0 + hi),
-        shape_lo=_shape(geometry, r0 + lo, r0 + centre),
-        shape_hi=_shape(geometry, r0 + centre, r0 + hi),
+        shape_lo=shape_factor(geometry, r0 + lo, r0 + centre),
+        shape_hi=shape_factor(geometry, r0 + centre, r0 + hi),
         extra_resistance=np.array(extra_between),
         extra_inside=extra_inside,
         extra_outside=extra_outside,
         total_thickness=position,
         layer_specs=tuple(layers),
         interfaces=np.array(interfaces),
+        interface_cell=np.array([f[0] for f in faces], dtype=np.int64),
+        interface_outward=np.array([f[1] for f in faces], dtype=bool),
+        interface_offset=np.array([f[2] for f in faces]),
     )

@@ -41,6 +41,7 @@ def to_dataset(
     *,
     seconds: np.ndarray,
     temperature: np.ndarray,
+    interface_temperature: np.ndarray,
     surface_temperature_inside: np.ndarray,
     surface_temperature_outside: np.ndarray,
     heat_flow_inside: np.ndarray,
@@ -58,6 +59,7 @@ def to_dataset(
     ----------
     seconds : (m,) output times from the start [s]
     temperature : (m, n) cell temperatures [degC]
+    interface_temperature : (m, layers + 1) layer faces, from the march's face fluxes [degC]
     heat_flow_inside, heat_flow_outside : (m,)
         Positive from inside to outside [W per reference unit].
     stored_energy : (m,) [J per reference unit], relative to 0 degC
@@ -72,6 +74,15 @@ def to_dataset(
             ("time", "x"),
             temperature,
             {"units": "degC", "long_name": "temperature at cell centres", "cell_methods": "time: point"},
+        ),
+        "interface_temperature": (
+            ("time", "interface"),
+            interface_temperature,
+            {
+                "units": "degC",
+                "long_name": "temperature of each layer face (0 = inside surface), from the solver's face fluxes",
+                "cell_methods": "time: point",
+            },
         ),
         "surface_temperature_inside": _point(surface_temperature_inside, "degC", "inside surface temperature"),
         "surface_temperature_outside": _point(surface_temperature_outside, "degC", "outside surface temperature"),

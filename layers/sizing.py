@@ -67,12 +67,10 @@ class FreezeTimes(NamedTuple):
 
 def freeze_times(case: Case, thickness: float, progress: Callable[[int, int], None] | None = None) -> FreezeTimes:
     """Time to 0 degC and time to ``max_ice_fraction`` [s] for one candidate (NaN: not within the run)."""
-    from layers.mesh import build_mesh
-    from layers.simulation import run_nonlinear
+    from layers.simulation import mesh_for, run_march
 
     trial = with_thickness(case, case.sizing.layer, thickness)
-    mesh = build_mesh(trial.layers, trial.mesh_rule, trial.geometry, trial.inner_radius)
-    result, _ = run_nonlinear(trial, mesh, progress)
+    result, _ = run_march(trial, mesh_for(trial), progress)
     return FreezeTimes(result.time_to_freezing, result.time_to_ice_fraction)
 
 
@@ -112,11 +110,12 @@ def size(case: Case, progress: Callable[[int, int], None] | None = None) -> xr.D
         data["margin_max_surface_temperature"] = ("thickness", margin, {"units": "K", "long_name": "touch limit minus outside surface temperature"})
         attrs["max_surface_temperature"] = s.max_surface_temperature
     if s.dew_point_margin is not None:
+        from layers.exchange import in_seconds
         from layers.psychrometrics import dew_point
-        from layers.steady import _value
 
-        t_air = _value(case, case.outside.air_temperature)
-        rh = _value(case, case.outside.relative_humidity)
+        at = case.seconds(np.array([design_time(case)]))
+        t_air = float(in_seconds(case, case.outside.air_temperature)(at)[0])
+        rh = float(in_seconds(case, case.outside.relative_humidity)(at)[0])
         td = float(dew_point(t_air, rh))
         margin = ts - (td + s.dew_point_margin)
         passes["dew_point_margin"] = margin >= 0

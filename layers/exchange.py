@@ -1,0 +1,306 @@
+"""Surface exchange: one model per boundary kind, used by every caller.
+
+The time march, the steady solver (and through it sizing, ``layers check``
+and the run's steady start), the ISO 13786 report and the run summary all
+take a boundary's exchange from here.  Each model says, for surface
+temperatures ``t_surface`` [degC] at given forcing values, how much heat
+enters the construction through one square metre of surface:
+
+    q = h (t_eq - t_surface) + q_imposed                      [W m-2]
+
+as a :class:`SurfaceFilm` of arrays (``h`` [W m-2 K-1], ``t_eq`` [degC],
+``q_imposed`` [W m-2]).  Everything is vectorised: the forcing values, the
+surface temperatures and the outside diameter broadcast together, so one
+call serves a time step, a whole chunk of steps, or ten thousand sizing
+candidates.
+
+Boundary kinds
+--------------
+``film`` with a fixed coefficient
+    h = 1 / R_s, t_eq the sol-air temperature ``T_air + a I R_s`` (ASHRAE
+    Handbook of Fundamentals 2017, ch. 18, eq. 28, without the long-wave
+    correction; CIBSE Guide A, sec. 5.2); t_eq = T_air without sun.
+``film`` with ``film_coefficient = "auto"``
+    Convection plus linearised long-wave radiation at the surface
+    temperature.  Planar: the ISO 6946:2017 convective coefficients (annex
+    on surface resistances; inside by heat-flow direction, outside
+    4 + 4 v).  Pipes and vessels: free convection (Churchill-Chu horizontal
+    cylinder, the vertical-plate form on the height of a vertical pipe,
+    Churchill sphere) combined with forced convection in the wind
+    (Churchill-Bernstein, Whitaker) by Churchill's cube rule
+    (:mod:`layers.convection`).  Radiation goes to ``radiant_temperature``
+    (default: the air) or, with a sky temperature, to the sky and the ground
+    (at air temperature) in proportion to their view factors (1 +- cos
+    tilt)/2, each with the exact linearisation
+    h_r,j = eps sigma F_j (T_s^2 + T_j^2)(T_s + T_j) in kelvin.  Then
+    h = h_c + sum h_r,j and t_eq = (h_c T_air + sum h_r,j T_j + a I) / h.
+``temperature``
+    The surface is held at the given temperature: h = inf, t_eq = it.
+``flux``
+    h = 0 and q_imposed the given heat flux into the construction.
+``adiabatic``
+    h = 0, q_imposed = 0.
+``contents``
+    The film between stagnant contents and the bore: h = 1/R_s (inf for
+    R_s = 0) towards the contents' temperature, which is a state of the
+    march (:mod:`layers.contents`), not a forcing; the steady solver holds
+    it at ``initial_temperature``.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+from dataclasses import dataclass
+from typing import TYPE_CHECKING
+
+import numpy as np
+
+from layers.constants import ISO6946_REFERENCE_WIND_SPEED, STEFAN_BOLTZMANN, ZERO_CELSIUS
+
+if TYPE_CHECKING:
+    from layers.case import BoundarySpec, Case
+
+
+@dataclass(frozen=True)
+class SurfaceFilm:
+    """Heat into the construction through a surface: ``h (t_eq - t_surface) + q_imposed``.
+
+    Attributes
+    ----------
+    h : numpy.ndarray
+        Surface coefficient [W m-2 K-1]; ``inf`` where the surface is held at ``t_eq``.
+    t_eq : numpy.ndarray
+        Equivalent (sol-air, or convective-radiative mean) temperature [degC].
+    q_imposed : numpy.ndarray
+        Imposed heat into the construction [W m-2].
+    """
+
+    h: np.ndarray
+    t_eq: np.ndarray
+    q_imposed: np.ndarray
+
+
+def in_seconds(case: Case, forcing) -> Callable[[np.ndarray], np.ndarray]:
+    """A forcing of UTC datetimes as a function of seconds from the case start."""
+    return lambda seconds: np.asarray(forcing(case.datetimes(seconds)), dtype=float)
+
+
+class Exchange:
+    """The surface exchange of one boundary of a case (see the module docstring).
+
+    Parameters
+    ----------
+    case : Case
+    spec : BoundarySpec
+        The boundary (``case.inside`` or ``case.outside``).
+    """
+
+    def __init__(self, case: Case, spec: BoundarySpec) -> None:
+        self.case, self.spec = case, spec
+        self.side, self.kind, self.auto = spec.side, spec.kind, bool(spec.auto_film)
+        self.geometry = case.geometry
+        #: True when h or t_eq depend on the surface temperature (auto films).
+        self.depends_on_temperature = self.auto
+        if self.auto:
+            from layers.radiation import jacket_emissivity, view_factor_ground, view_factor_sky
+
+            self.emissivity = jacket_emissivity(spec.jacket) if spec.jacket else spec.emissivity
+            self.f_sky = float(view_factor_sky(spec.tilt))
+            self.f_ground = float(view_factor_ground(spec.tilt))
+            self._sky = spec.sky_temperature is not None or bool(spec.values.get("sky_auto"))
+        self._table: _ConvectionTable | None = None
+
+    # ------------------------------------------------------------------ #
+    def forcing(self, seconds: np.ndarray, *, sun_and_sky: bool = True) -> dict[str, np.ndarray]:
+        """The boundary's forcing values at ``seconds`` from the case start [s].
+
+        Keys: ``air`` [degC], ``solar`` (absorbed, [W m-2]), ``wind`` [m s-1],
+        ``radiant`` [degC], ``sky`` [degC], ``surface`` [degC], ``flux``
+        [W m-2], as the kind needs them.  ``sun_and_sky=False`` leaves out the
+        absorbed sun and the sky exchange (the steady design conditions of
+        sizing).
+        """
+        spec, case = self.spec, self.case
+        seconds = np.asarray(seconds, dtype=float)
+        zero = np.zeros_like(seconds)
+        out: dict[str, np.ndarray] = {}
+        if self.kind == "film":
+            out["air"] = in_seconds(case, spec.air_temperature)(seconds) + zero
+            if spec.solar_irradiance is not None and spec.solar_absorptance and sun_and_sky:
+                out["solar"] = spec.solar_absorptance * in_seconds(case, spec.solar_irradiance)(seconds) + zero
+            else:
+                out["solar"] = zero
+            if self.auto:
+                wind = spec.wind_speed
+                default = ISO6946_REFERENCE_WIND_SPEED if (self.geometry == "planar" and self.side == "outside") else 0.0
+                out["wind"] = in_seconds(case, wind)(seconds) + zero if wind is not None else zero + default
+                radiant = spec.radiant_temperature
+                out["radiant"] = in_seconds(case, radiant)(seconds) + zero if radiant is not None else out["air"]
+                if self._sky and sun_and_sky:
+                    if spec.sky_temperature is not None:
+                        out["sky"] = in_seconds(case, spec.sky_temperature)(seconds) + zero
+                    else:
+                        from layers.radiation import sky_temperature_swinbank
+
+                        out["sky"] = np.asarray(sky_temperature_swinbank(out["air"]), dtype=float) + zero
+        elif self.kind == "temperature":
+            out["surface"] = in_seconds(case, spec.surface_temperature)(seconds) + zero
+        elif self.kind == "flux":
+            out["flux"] = in_seconds(case, spec.heat_flux)(seconds) + zero
+        elif self.kind == "contents":
+            out["contents"] = zero + float(spec.initial_temperature)
+        return out
+
+    def drive_temperature(self, forcing: dict[str, np.ndarray]) -> np.ndarray:
+        """A temperature [degC] (or, for a flux, W m-2 divided by 10 W m-2 K-1) that
+        follows what drives this boundary; the march looks for jumps in it."""
+        if self.kind == "film":
+            if self.auto:
+                return forcing["air"] + forcing["solar"] / 25.0
+            return forcing["air"] + forcing["solar"] * self.spec.surface_resistance
+        if self.kind == "temperature":
+            return forcing["surface"]
+        if self.kind == "flux":
+            return forcing["flux"] / 10.0
+        return np.zeros(1)
+
+    # ------------------------------------------------------------------ #
+    def film(self, forcing: dict[str, np.ndarray], t_surface: np.ndarray | float, diameter: np.ndarray | float | None = None) -> SurfaceFilm:
+        """The exchange at surface temperatures ``t_surface`` [degC].
+
+        Parameters
+        ----------
+        forcing : dict
+            From :meth:`forcing` (arrays or scalars that broadcast with ``t_surface``).
+        t_surface : array_like
+            Surface temperature [degC].
+        diameter : array_like, optional
+            Outside diameter of a pipe or vessel [m] (auto films outside).
+        """
+        ts = np.asarray(t_surface, dtype=float)
+        if self.kind == "film" and not self.auto:
+            rs = self.spec.surface_resistance
+            h = math.inf if rs == 0 else 1.0 / rs
+            t_eq = forcing["air"] + forcing["solar"] * rs
+            return SurfaceFilm(np.full(np.shape(t_eq), h) + 0 * ts, t_eq + 0 * ts, 0 * ts + 0 * t_eq)
+        if self.kind == "film":
+            return self._auto(forcing, ts, diameter)
+        if self.kind == "temperature":
+            t = forcing["surface"] + 0 * ts
+            return SurfaceFilm(np.full(np.shape(t), math.inf), t, np.zeros(np.shape(t)))
+        if self.kind == "flux":
+            q = forcing["flux"] + 0 * ts
+            return SurfaceFilm(np.zeros(np.shape(q)), np.zeros(np.shape(q)), q)
+        if self.kind == "contents":
+            rs = self.spec.surface_resistance or 0.0
+            t = forcing["contents"] + 0 * ts
+            return SurfaceFilm(np.full(np.shape(t), math.inf if rs == 0 else 1.0 / rs), t, np.zeros(np.shape(t)))
+        z = np.zeros(np.shape(ts))
+        return SurfaceFilm(z, z, z)
+
+    def convection(self, forcing: dict[str, np.ndarray], t_surface: np.ndarray, diameter) -> np.ndarray:
+        """Convective coefficient h_c of an auto film [W m-2 K-1]."""
+        from layers.convection import iso6946_external_convection, iso6946_internal_convection
+
+        if self.geometry == "planar":
+            if self.side == "inside":
+                return np.full(np.shape(t_surface), float(iso6946_internal_convection(self.spec.heat_flow_direction)))
+            return np.asarray(iso6946_external_convection(forcing["wind"]), dtype=float) + 0 * t_surface
+        if self._table is not None:
+            hc = self._table.lookup(t_surface, forcing["air"], forcing["wind"], diameter)
+            if hc is not None:
+                return hc
+        return self.body_convection(t_surface, forcing["air"], diameter, forcing["wind"])
+
+    def body_convection(self, t_surface, t_air, diameter, wind) -> np.ndarray:
+        """The body correlation of :func:`layers.convection.body_convection_coefficient` [W m-2 K-1]."""
+        from layers.convection import body_convection_coefficient
+
+        return np.asarray(
+            body_convection_coefficient(
+                self.geometry, t_surface, t_air, diameter, wind,
+                orientation=self.case.orientation, height=self.case.height,
+            ),
+            dtype=float,
+        )
+
+    def _auto(self, forcing, ts, diameter) -> SurfaceFilm:
+        hc = self.convection(forcing, ts, diameter)
+        air = forcing["air"]
+        eps = self.emissivity
+        tsk = ts + ZERO_CELSIUS
+        numerator = hc * air + forcing["solar"]
+        total = hc + 0.0
+        if "sky" in forcing:
+            pairs = ((self.f_sky, forcing["sky"]), (self.f_ground, air))
+        else:
+            pairs = ((1.0, forcing["radiant"]),)
+        for view, t_rad in pairs:
+            trk = t_rad + ZERO_CELSIUS
+            hr = eps * STEFAN_BOLTZMANN * view * (tsk * tsk + trk * trk) * (tsk + trk)
+            numerator = numerator + hr * t_rad
+            total = total + hr
+        return SurfaceFilm(total, numerator / total, np.zeros(np.shape(total)))
+
+    def tabulate(self, air: np.ndarray, wind: np.ndarray, diameter: float) -> None:
+        """Tabulate the body convection once for a run (pipes and vessels with
+        constant wind), so that the march interpolates instead of evaluating
+        the correlation at every iteration; see :class:`_ConvectionTable`."""
+        if self.auto and self.geometry != "planar" and np.ptp(wind) == 0:
+            self._table = _ConvectionTable(self, float(np.min(air)), float(np.max(air)), float(wind.flat[0]), diameter)
+
+
+class _ConvectionTable:
+    """h_c of a body correlation on a grid of (surface - air, air) at one wind
+    speed and diameter, interpolated bilinearly.
+
+    The temperature difference is spaced uniformly in u = sign(d) |d|^(1/2)
+    (steps of 0.02 sqrt(K): 0.0004 K at d = 0, 0.2 K at d = 100 K), which
+    follows the |d|^(1/4)-|d|^(1/3) growth of free convection, and the air
+    temperature in steps of 0.5 K.  Where the correlation is smooth this
+    interpolates to better than 1e-4 relative; a test compares it with the
+    correlation itself (tests/test_exchange.py).  Outside the grid the march
+    evaluates the correlation directly.
+    """
+
+    U_STEP = 0.02
+    AIR_STEP = 0.5
+    U_MIN, U_MAX = -math.sqrt(400.0), math.sqrt(1100.0)
+
+    def __init__(self, exchange: Exchange, air_min: float, air_max: float, wind: float, diameter: float) -> None:
+        self.wind, self.diameter = wind, diameter
+        self.u = np.arange(self.U_MIN, self.U_MAX + self.U_STEP, self.U_STEP)
+        n_air = max(2, int(math.ceil((air_max - air_min) / self.AIR_STEP)) + 2)
+        self.air0 = air_min - 0.5 * self.AIR_STEP
+        self.air = self.air0 + self.AIR_STEP * np.arange(n_air)
+        d = np.sign(self.u) * self.u**2
+        ts = self.air[:, None] + d[None, :]
+        valid = (ts > -100.0) & (ts < 1000.0)
+        values = np.full(ts.shape, np.nan)
+        values[valid] = exchange.body_convection(ts[valid], np.broadcast_to(self.air[:, None], ts.shape)[valid], diameter, wind)
+        self.values = values
+
+    def lookup(self, t_surface, air, wind, diameter) -> np.ndarray | None:
+        """Interpolated h_c [W m-2 K-1], or None where the grid does not hold the point."""
+        if np.ndim(diameter) or diameter != self.diameter or np.any(wind != self.wind):
+            return None
+        d = np.asarray(t_surface - air, dtype=float)
+        u = np.sign(d) * np.sqrt(np.abs(d))
+        fu = (u - self.u[0]) / self.U_STEP
+        fa = (np.asarray(air, dtype=float) - self.air0) / self.AIR_STEP
+        if np.any(fu < 0) or np.any(fa < 0) or np.any(fu >= self.u.size - 1) or np.any(fa >= self.air.size - 1):
+            return None
+        iu = fu.astype(int)
+        ia = fa.astype(int)
+        wu, wa = fu - iu, fa - ia
+        v = self.values
+        out = (1 - wa) * ((1 - wu) * v[ia, iu] + wu * v[ia, iu + 1]) + wa * ((1 - wu) * v[ia + 1, iu] + wu * v[ia + 1, iu + 1])
+        if np.any(np.isnan(out)):  # next to the air-property range: evaluate directly
+            return None
+        return out
+
+
+def exchanges(case: Case) -> tuple[Exchange, Exchange]:
+    """The inside and outside exchange of a case."""
+    return Exchange(case, case.inside), Exchange(case, case.outside)
