@@ -5,15 +5,6 @@ validated :class:`~layers.case.Case`) and :func:`layers.simulation.simulate`
 (case to an :class:`xarray.Dataset`).
 """
 
-from importlib.metadata import PackageNotFoundError, version
+from layers.about import CAUTION, __version__
 
-try:
-    __version__ = version("layers")
-except PackageNotFoundError:  # running from a source tree that is not installed
-    __version__ = "0.0.0+unknown"
-
-CAUTION = (
-    "Engineering estimate only. Touch-safety limits, condensation control and "
-    "insulation requirements are set by local building, energy and safety codes "
-    "and licensed practice, which take precedence."
-)
+__all__ = ["CAUTION", "__version__"]

@@ -14,7 +14,7 @@ import warnings
 from collections.abc import Sequence
 from pathlib import Path
 
-from layers import CAUTION, __version__
+from layers.about import CAUTION, __version__
 from layers.errors import CaseError
 
 EXIT_OK, EXIT_FAILED, EXIT_INPUT, EXIT_INTERNAL = 0, 1, 2, 3

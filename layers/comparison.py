@@ -30,7 +30,7 @@ from typing import Any
 import numpy as np
 import xarray as xr
 
-from layers import CAUTION, __version__
+from layers.about import CAUTION, __version__
 from layers.catalogue import not_a_run
 from layers.errors import CaseError
 from layers.formatting import display_units, format_utc

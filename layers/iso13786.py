@@ -25,7 +25,7 @@ from dataclasses import dataclass
 import numpy as np
 import xarray as xr
 
-from layers import CAUTION
+from layers.about import CAUTION
 
 
 def _positive(name: str, value: float) -> float:

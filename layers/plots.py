@@ -39,7 +39,7 @@ from typing import Any
 import numpy as np
 import xarray as xr
 
-from layers import CAUTION, __version__
+from layers.about import CAUTION, __version__
 from layers.errors import CaseError
 from layers.results import exists_error, write_once
 

@@ -11,7 +11,7 @@ from typing import TYPE_CHECKING, NamedTuple
 import numpy as np
 import xarray as xr
 
-from layers import CAUTION
+from layers.about import CAUTION
 from layers.case import BoundarySpec, Case
 from layers.errors import CaseError
 from layers.mesh import Mesh
@@ -475,7 +475,7 @@ def periodic_report(case: Case, period: float) -> PeriodicReport:
 
 def periodic_dataset(case: Case, report: PeriodicReport) -> xr.Dataset:
     """What ``layers periodic -o`` writes: the characteristics with the case's provenance."""
-    from layers import __version__
+    from layers.about import __version__
     from layers.results import _now, cf_encoding
 
     ds = report.characteristics.to_dataset(title=case.title)

@@ -17,8 +17,8 @@ from typing import Any
 import numpy as np
 import xarray as xr
 
-from layers import CAUTION, __version__
-from layers.archive import headline_attributes
+from layers.about import CAUTION, __version__
+from layers.catalogue import headline_attributes
 from layers.case import Case
 from layers.errors import CaseError
 from layers.mesh import Mesh

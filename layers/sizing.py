@@ -16,7 +16,7 @@ from typing import NamedTuple
 import numpy as np
 import xarray as xr
 
-from layers import CAUTION, __version__
+from layers.about import CAUTION, __version__
 from layers.case import Case
 from layers.errors import CaseError
 from layers.results import HEAT_FLOW_UNITS, _now, cf_encoding

@@ -254,7 +254,7 @@ sys.exit(main(sys.argv[1:]))
 
 def _archive_with_one_run(tmp_path):
     """An archive holding one finished run; returns (folder, its listing, its files)."""
-    from layers.archive import list_runs
+    from layers.catalogue import list_runs
 
     runs = tmp_path / "runs"
     case = tmp_path / "short.toml"
@@ -276,7 +276,7 @@ def _kill_when(proc: subprocess.Popen, ready, timeout: float = 60.0) -> None:
 def test_killed_run_leaves_nothing_in_the_archive(tmp_path):
     """A run killed with SIGKILL halfway through its time march leaves no file
     in the archive, and the archive lists as before."""
-    from layers.archive import list_runs
+    from layers.catalogue import list_runs
 
     runs, before, files = _archive_with_one_run(tmp_path)
     case = tmp_path / "long.toml"
@@ -296,7 +296,7 @@ def test_run_killed_while_writing_leaves_no_file_and_is_cleaned_up(tmp_path):
     """SIGKILL while the result is being written (the temporary file exists
     and holds the data) leaves no file under a run name; the archive lists as
     before; the next run removes the dead writer's temporary file."""
-    from layers.archive import list_runs
+    from layers.catalogue import list_runs
 
     runs, before, files = _archive_with_one_run(tmp_path)
     case = tmp_path / "second.toml"
