@@ -22,7 +22,7 @@ import numpy as np
 
 from layers.errors import CaseError
 from layers.materials import Material, material_from_table, resolve
-from layers.mesh import GEOMETRIES, LayerSpec, MeshRule
+from layers.mesh import GEOMETRIES, LayerSpec, Mesh, MeshRule, build_mesh
 from layers.series import RANGES, ColumnSpec, Forcing, Series, daily_cycle, read_series
 from layers.units import parse_quantity, parse_temperature
 
@@ -193,6 +193,10 @@ class Case:
     @property
     def stem(self) -> str:
         return Path(self.path).stem
+
+    def mesh(self) -> Mesh:
+        """The finite-volume mesh of this case (:func:`layers.mesh.build_mesh`)."""
+        return build_mesh(self.layers, self.mesh_rule, self.geometry, self.inner_radius)
 
     @property
     def reference_unit(self) -> str:

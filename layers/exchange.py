@@ -56,7 +56,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from layers.constants import ISO6946_REFERENCE_WIND_SPEED, STEFAN_BOLTZMANN, ZERO_CELSIUS
+from layers.constants import ISO6946_REFERENCE_WIND_SPEED
 
 if TYPE_CHECKING:
     from layers.case import BoundarySpec, Case
@@ -110,6 +110,44 @@ class Exchange:
             self.f_ground = float(view_factor_ground(spec.tilt))
             self._sky = spec.sky_temperature is not None or bool(spec.values.get("sky_auto"))
         self._table: _ConvectionTable | None = None
+
+    @property
+    def has_sun_or_sky(self) -> bool:
+        """True when the boundary takes sun or sky radiation."""
+        spec = self.spec
+        return spec.solar_irradiance is not None or spec.sky_temperature is not None or bool(spec.values.get("sky_auto"))
+
+    @property
+    def design_wind_speed(self) -> float:
+        """A constant wind speed of the boundary, else ISO 6946's 4 m/s [m s-1]."""
+        wind = self.spec.wind_speed
+        return float(wind.value) if wind is not None and wind.value is not None else ISO6946_REFERENCE_WIND_SPEED
+
+    def design_resistance(self) -> float | None:
+        """The fixed surface resistance that stands for this boundary where one
+        value is needed (U-value, ISO 13786) [m2 K W-1].
+
+        A fixed film gives its own; an ``"auto"`` film on a wall its ISO 6946
+        expression at the case's emissivity (inside by heat-flow direction,
+        outside at :attr:`design_wind_speed`; ISO 6946:2017 annex on surface
+        resistances, from memory); a temperature boundary 0.  None where no
+        fixed value stands for it (auto films on pipes, flux, adiabatic,
+        contents).
+        """
+        from layers.radiation import iso6946_external_surface_resistance, iso6946_surface_resistance
+
+        spec = self.spec
+        if self.kind == "temperature":
+            return 0.0
+        if self.kind != "film":
+            return None
+        if not self.auto:
+            return spec.surface_resistance
+        if self.geometry != "planar":
+            return None
+        if self.side == "inside":
+            return float(iso6946_surface_resistance(spec.heat_flow_direction, spec.emissivity))
+        return float(iso6946_external_surface_resistance(self.design_wind_speed, spec.emissivity))
 
     # ------------------------------------------------------------------ #
     def forcing(self, seconds: np.ndarray, *, sun_and_sky: bool = True) -> dict[str, np.ndarray]:
@@ -226,10 +264,10 @@ class Exchange:
         )
 
     def _auto(self, forcing, ts, diameter) -> SurfaceFilm:
+        from layers.radiation import radiative_coefficient
+
         hc = self.convection(forcing, ts, diameter)
         air = forcing["air"]
-        eps = self.emissivity
-        tsk = ts + ZERO_CELSIUS
         numerator = hc * air + forcing["solar"]
         total = hc + 0.0
         if "sky" in forcing:
@@ -237,8 +275,7 @@ class Exchange:
         else:
             pairs = ((1.0, forcing["radiant"]),)
         for view, t_rad in pairs:
-            trk = t_rad + ZERO_CELSIUS
-            hr = eps * STEFAN_BOLTZMANN * view * (tsk * tsk + trk * trk) * (tsk + trk)
+            hr = view * np.asarray(radiative_coefficient(self.emissivity, ts, t_rad), dtype=float)
             numerator = numerator + hr * t_rad
             total = total + hr
         return SurfaceFilm(total, numerator / total, np.zeros(np.shape(total)))

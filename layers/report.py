@@ -9,22 +9,18 @@ import math
 from typing import TYPE_CHECKING, NamedTuple
 
 import numpy as np
-import xarray as xr
 
 from layers.about import CAUTION
 from layers.case import BoundarySpec, Case
 from layers.errors import CaseError
+from layers.exchange import exchanges
+from layers.formatting import format_duration
 from layers.mesh import Mesh
 
 if TYPE_CHECKING:
+    import xarray as xr
+
     from layers.iso13786 import DynamicCharacteristics
-
-
-def _fmt_duration(seconds: float) -> str:
-    for unit, size in (("d", 86400.0), ("h", 3600.0), ("min", 60.0)):
-        if seconds >= size and abs(seconds / size - round(seconds / size)) < 1e-9:
-            return f"{seconds / size:g} {unit}"
-    return f"{seconds:g} s"
 
 
 def _constant(forcing) -> float | None:
@@ -46,39 +42,21 @@ class DesignResistance(NamedTuple):
 def design_resistance(case: Case, mesh: Mesh) -> DesignResistance:
     """Film, conduction and film resistances [K W-1 per reference unit] for the U-value.
 
-    Films use the case's surface resistance; an ``"auto"`` film on a wall
-    counts as its ISO 6946 expression (:func:`auto_film_resistance`); other
-    boundaries, and auto films on pipes, as zero (reported as such).
+    Each film counts as :meth:`layers.exchange.Exchange.design_resistance`
+    (a fixed film its own, an ``"auto"`` film on a wall its ISO 6946
+    expression); other boundaries, and auto films on pipes, as zero
+    (reported as such).
     """
-    conduction = mesh.steady_resistance()
     films = []
-    for spec, area in ((case.inside, mesh.area_inside), (case.outside, mesh.area_outside)):
-        if spec.kind == "film" and not spec.auto_film:
-            films.append(spec.surface_resistance / area)
-        elif spec.kind == "film" and case.geometry == "planar":
-            films.append(auto_film_resistance(case, spec) / area)
-        else:
-            films.append(0.0)
-    return DesignResistance(films[0], conduction, films[1])
-
-
-def auto_film_resistance(case: Case, spec: BoundarySpec) -> float:
-    """The ISO 6946 surface resistance [m2 K W-1] that stands for an ``"auto"``
-    film on a wall where one fixed value is needed (U-value, ISO 13786): inside
-    by its heat-flow direction, outside at its constant wind speed or the
-    standard's 4 m/s, both at the case's emissivity."""
-    from layers.radiation import iso6946_external_surface_resistance, iso6946_surface_resistance
-
-    if spec.side == "inside":
-        return float(iso6946_surface_resistance(spec.heat_flow_direction, spec.emissivity))
-    return float(iso6946_external_surface_resistance(_design_wind(case, spec), spec.emissivity))
+    for ex, area in zip(exchanges(case), (mesh.area_inside, mesh.area_outside)):
+        r = ex.design_resistance() if ex.kind == "film" else None
+        films.append((r or 0.0) / area)
+    return DesignResistance(films[0], mesh.steady_resistance(), films[1])
 
 
 def check_report(case: Case) -> str:
     """What ``layers check`` prints: layers, mesh, steady transmittance, time plan."""
-    from layers.simulation import mesh_for
-
-    mesh = mesh_for(case)
+    mesh = case.mesh()
     lines = [f"case:      {case.path}", f"title:     {case.title}", f"geometry:  {case.geometry}"]
     if case.geometry != "planar":
         lines[-1] += f", inner radius {case.inner_radius * 1000:g} mm"
@@ -119,7 +97,7 @@ def check_report(case: Case) -> str:
             f"{'design' if case.sizing is not None and case.sizing.design_time is not None else 'start-time'} conditions; "
             f"surfaces {float(st.surface_temperature_inside[0]):.2f} / {float(st.surface_temperature_outside[0]):.2f} degC"
         )
-        if any(_has_sun_or_sky(sp) for sp in (case.inside, case.outside)):
+        if any(ex.has_sun_or_sky for ex in exchanges(case)):
             lines.append("           (without sun and sky exchange; a run's steady start includes them)")
         if case.geometry == "cylinder" and not (case.inside.auto_film or case.outside.auto_film):
             lines.append(f"           resistance per metre, fluid to air: {total:.4g} m*K/W (films as given; k at 10 degC)")
@@ -132,8 +110,8 @@ def check_report(case: Case) -> str:
     lines.append("")
     lines.append(
         f"time:      {np.datetime_as_string(plan.start, unit='m')}Z to {np.datetime_as_string(end, unit='m')}Z "
-        f"({_fmt_duration(plan.duration)}), step {_fmt_duration(plan.step)} x {plan.n_steps}, "
-        f"kept every {_fmt_duration(plan.output_every)} ({plan.n_steps // plan.output_stride + 1} records)"
+        f"({format_duration(plan.duration)}), step {format_duration(plan.step)} x {plan.n_steps}, "
+        f"kept every {format_duration(plan.output_every)} ({plan.n_steps // plan.output_stride + 1} records)"
     )
     lines.append(f"scheme:    {plan.scheme}; initial state: {plan.initial if isinstance(plan.initial, str) else f'{plan.initial:g} degC'}")
     if case.series is not None:
@@ -143,16 +121,6 @@ def check_report(case: Case) -> str:
     lines.append("")
     lines.append(f"caution: {CAUTION}")
     return "\n".join(lines)
-
-
-def _boundary_temperature(spec) -> float | None:
-    if spec.kind == "film":
-        return _constant(spec.air_temperature)
-    if spec.kind == "temperature":
-        return _constant(spec.surface_temperature)
-    if spec.kind == "contents":
-        return spec.initial_temperature
-    return None
 
 
 def _describe_boundary(spec) -> str:
@@ -403,43 +371,28 @@ def surface_resistances(case: Case) -> tuple[float, float]:
 
     A fixed film gives its own resistance. An ``"auto"`` film, whose
     coefficient varies in a run, gets the ISO 6946 expression at the case's
-    emissivity: inside by its heat-flow direction, outside at its constant
-    wind speed or, for a wind series, the standard's 4 m/s (see
+    emissivity (:meth:`layers.exchange.Exchange.design_resistance`; see
     :func:`auto_film_note`).
     """
     out = []
-    for spec in (case.inside, case.outside):
-        if spec.kind == "film" and spec.auto_film:
-            out.append(auto_film_resistance(case, spec))
-        elif spec.kind == "film":
-            out.append(spec.surface_resistance)
-        elif spec.kind == "temperature":
-            out.append(0.0)
-        else:
-            raise CaseError(case.path, f"{spec.side}.type", f"ISO 13786 needs a film or temperature boundary, not {spec.kind!r}")
+    for ex in exchanges(case):
+        r = ex.design_resistance()
+        if r is None:
+            raise CaseError(case.path, f"{ex.side}.type", f"ISO 13786 needs a film or temperature boundary, not {ex.kind!r}")
+        out.append(r)
     return out[0], out[1]
-
-
-def _has_sun_or_sky(spec: BoundarySpec) -> bool:
-    return spec.solar_irradiance is not None or spec.sky_temperature is not None or bool(spec.values.get("sky_auto"))
-
-
-def _design_wind(case: Case, spec: BoundarySpec) -> float:
-    """A constant wind speed of the case [m s-1], else ISO 6946's design 4 m/s."""
-    wind = spec.wind_speed
-    return float(wind.value) if wind is not None and wind.value is not None else 4.0
 
 
 def auto_film_note(case: Case) -> str | None:
     """How ``layers periodic`` treats ``"auto"`` films, or None without any."""
     parts = []
-    for spec in (case.inside, case.outside):
-        if spec.kind == "film" and spec.auto_film:
-            how = (f"heat flow {spec.heat_flow_direction}" if spec.side == "inside"
-                   else f"wind {_design_wind(case, spec):g} m/s")
-            parts.append(f"{spec.side}: ISO 6946 expression, emissivity {spec.emissivity:g}, {how}")
-        if spec.kind == "film" and _has_sun_or_sky(spec):
-            parts.append(f"{spec.side}: sun and sky do not enter the dynamic characteristics")
+    for ex in exchanges(case):
+        spec = ex.spec
+        if ex.kind == "film" and ex.auto:
+            how = f"heat flow {spec.heat_flow_direction}" if ex.side == "inside" else f"wind {ex.design_wind_speed:g} m/s"
+            parts.append(f"{ex.side}: ISO 6946 expression, emissivity {spec.emissivity:g}, {how}")
+        if ex.kind == "film" and ex.has_sun_or_sky:
+            parts.append(f"{ex.side}: sun and sky do not enter the dynamic characteristics")
     return "  (auto films as fixed resistances: " + "; ".join(parts) + ")" if parts else None
 
 
@@ -459,7 +412,7 @@ def periodic_report(case: Case, period: float) -> PeriodicReport:
     r_si, r_se = surface_resistances(case)
     dc = dynamic_characteristics(periodic_elements(case), r_si, r_se, period)
     lines = [
-        f"ISO 13786 dynamic thermal characteristics, period {_fmt_duration(period)}  (Rsi {r_si:.3g}, Rse {r_se:.3g} m2K/W)",
+        f"ISO 13786 dynamic thermal characteristics, period {format_duration(period)}  (Rsi {r_si:.3g}, Rse {r_se:.3g} m2K/W)",
         f"  thermal transmittance U            {dc.thermal_transmittance:10.4g} W/(m2*K)",
         f"  periodic transmittance |Y12|       {abs(dc.periodic_transmittance):10.4g} W/(m2*K)   time shift {dc.time_shift:7.2f} h",
         f"  decrement factor f                 {dc.decrement_factor:10.4g}",

@@ -18,7 +18,7 @@ from layers.case import Case
 from layers.contents import WaterNode
 from layers.exchange import exchanges, in_seconds
 from layers.march import TOLERANCE, MarchResult, System, march, periodic_start, resolve_scheme, settle
-from layers.mesh import Mesh, build_mesh
+from layers.mesh import Mesh
 from layers.results import to_dataset
 from layers.steady import cell_temperatures, steady_state
 
@@ -27,11 +27,6 @@ from layers.steady import cell_temperatures, steady_state
 DEFAULT_ICE_FRACTION = 0.25
 #: A start this far from a fixed boundary temperature counts as a step [K].
 STEP_WARNING = 1.0
-
-
-def mesh_for(case: Case) -> Mesh:
-    """The finite-volume mesh of a case."""
-    return build_mesh(case.layers, case.mesh_rule, case.geometry, case.inner_radius)
 
 
 def system_for(case: Case, mesh: Mesh) -> System:
@@ -142,7 +137,7 @@ def simulate(case: Case, progress: Callable[[int, int], None] | None = None) -> 
     xarray.Dataset
         Variables and attributes as the product contract lists them.
     """
-    mesh = mesh_for(case)
+    mesh = case.mesh()
     res, cycles = run_march(case, mesh, progress)
     seconds = res.time
     extra: dict = {}

@@ -67,10 +67,10 @@ class FreezeTimes(NamedTuple):
 
 def freeze_times(case: Case, thickness: float, progress: Callable[[int, int], None] | None = None) -> FreezeTimes:
     """Time to 0 degC and time to ``max_ice_fraction`` [s] for one candidate (NaN: not within the run)."""
-    from layers.simulation import mesh_for, run_march
+    from layers.simulation import run_march
 
     trial = with_thickness(case, case.sizing.layer, thickness)
-    result, _ = run_march(trial, mesh_for(trial), progress)
+    result, _ = run_march(trial, trial.mesh(), progress)
     return FreezeTimes(result.time_to_freezing, result.time_to_ice_fraction)
 
 
