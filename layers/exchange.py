@@ -56,7 +56,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from layers.constants import ISO6946_REFERENCE_WIND_SPEED
+from layers.constants import ISO6946_REFERENCE_WIND_SPEED, ZERO_CELSIUS
 
 if TYPE_CHECKING:
     from layers.case import BoundarySpec, Case
@@ -173,6 +173,8 @@ class Exchange:
                 wind = spec.wind_speed
                 default = ISO6946_REFERENCE_WIND_SPEED if (self.geometry == "planar" and self.side == "outside") else 0.0
                 out["wind"] = in_seconds(case, wind)(seconds) + zero if wind is not None else zero + default
+                if self.geometry == "planar":
+                    out["hc"] = self._planar_convection(out["wind"]) + zero
                 radiant = spec.radiant_temperature
                 out["radiant"] = in_seconds(case, radiant)(seconds) + zero if radiant is not None else out["air"]
                 if self._sky and sun_and_sky:
@@ -239,17 +241,22 @@ class Exchange:
 
     def convection(self, forcing: dict[str, np.ndarray], t_surface: np.ndarray, diameter) -> np.ndarray:
         """Convective coefficient h_c of an auto film [W m-2 K-1]."""
-        from layers.convection import iso6946_external_convection, iso6946_internal_convection
-
         if self.geometry == "planar":
-            if self.side == "inside":
-                return np.full(np.shape(t_surface), float(iso6946_internal_convection(self.spec.heat_flow_direction)))
-            return np.asarray(iso6946_external_convection(forcing["wind"]), dtype=float) + 0 * t_surface
+            return forcing["hc"] + 0 * t_surface
         if self._table is not None:
             hc = self._table.lookup(t_surface, forcing["air"], forcing["wind"], diameter)
             if hc is not None:
                 return hc
         return self.body_convection(t_surface, forcing["air"], diameter, forcing["wind"])
+
+    def _planar_convection(self, wind: np.ndarray) -> np.ndarray:
+        """ISO 6946 convective coefficient of a wall surface [W m-2 K-1]: inside
+        by heat-flow direction, outside 4 + 4 v (:mod:`layers.convection`)."""
+        from layers.convection import iso6946_external_convection, iso6946_internal_convection
+
+        if self.side == "inside":
+            return np.full(np.shape(wind), float(iso6946_internal_convection(self.spec.heat_flow_direction)))
+        return np.asarray(iso6946_external_convection(wind), dtype=float)
 
     def body_convection(self, t_surface, t_air, diameter, wind) -> np.ndarray:
         """The body correlation of :func:`layers.convection.body_convection_coefficient` [W m-2 K-1]."""
@@ -264,7 +271,7 @@ class Exchange:
         )
 
     def _auto(self, forcing, ts, diameter) -> SurfaceFilm:
-        from layers.radiation import radiative_coefficient
+        from layers.radiation import linearised_radiation_kelvin
 
         hc = self.convection(forcing, ts, diameter)
         air = forcing["air"]
@@ -274,11 +281,13 @@ class Exchange:
             pairs = ((self.f_sky, forcing["sky"]), (self.f_ground, air))
         else:
             pairs = ((1.0, forcing["radiant"]),)
+        tsk = ts + ZERO_CELSIUS
         for view, t_rad in pairs:
-            hr = view * np.asarray(radiative_coefficient(self.emissivity, ts, t_rad), dtype=float)
+            # the ranges were checked once: forcing in forcing(), the surface by the caller
+            hr = view * linearised_radiation_kelvin(self.emissivity, tsk, t_rad + ZERO_CELSIUS)
             numerator = numerator + hr * t_rad
             total = total + hr
-        return SurfaceFilm(total, numerator / total, np.zeros(np.shape(total)))
+        return SurfaceFilm(total, numerator / total, 0.0 * total)
 
     def tabulate(self, air: np.ndarray, wind: np.ndarray, diameter: float) -> None:
         """Tabulate the body convection once for a run (pipes and vessels with

@@ -202,6 +202,7 @@ class _Drive:
 
     def use(self, forcing: dict[str, np.ndarray], shape: tuple[int, ...]) -> None:
         self.forcing = forcing
+        self._index = -1
         seconds = np.zeros(shape)
         if not self.dependent:
             film = self.exchange.film(self.forcing, np.zeros(seconds.shape), self.diameter)
@@ -211,8 +212,9 @@ class _Drive:
 
     def at(self, i: int, t_surface: float, r_half: float, contents: float = math.nan) -> _Side:
         if self.dependent:
-            f = {name: values[i] for name, values in self.forcing.items()}
-            film = self.exchange.film(f, t_surface, self.diameter)
+            if i != self._index:  # the forcing of one stage, picked once for all its iterations
+                self._index, self._values = i, {name: float(values[i]) for name, values in self.forcing.items()}
+            film = self.exchange.film(self._values, t_surface, self.diameter)
             h, t_eq, q = float(film.h), float(film.t_eq), float(film.q_imposed)
         else:
             h, t_eq, q = float(self.h[i]), float(self.t_eq[i]), float(self.q[i])
@@ -302,6 +304,12 @@ class _Stepper:
         self.unconverged = 0
         self.max_iter = 0
         self.fixed_matrix = not system.depends_on_temperature
+        if system.constant_k:
+            # the interior of K never changes: only the two boundary conductances can
+            g = system._g
+            self.k_interior = np.zeros(system.capacity.size)
+            self.k_interior[:-1] += g
+            self.k_interior[1:] += g
 
     # -------------------------------------------------------------- coefficients
     def coefficients(self, temp: np.ndarray, tw: float, surfaces: tuple[float, float], i: int) -> _Coefficients:
@@ -312,15 +320,21 @@ class _Stepper:
 
     def net_heat(self, temp: np.ndarray, tw: float, c: _Coefficients) -> tuple[np.ndarray, float, float, float]:
         """F(T): net heat into each cell and into the contents; boundary heat in (inside, outside)."""
-        f = np.zeros_like(temp)
+        q_in, q_out = self.boundary_heat(temp, c)
         flow = c.g * (temp[:-1] - temp[1:])
-        f[:-1] -= flow
+        f = np.empty_like(temp)
+        f[:-1] = -flow
+        f[-1] = 0.0
         f[1:] += flow
-        q_in = c.inside.conductance * (c.inside.t_ext - temp[0]) + c.inside.q
-        q_out = c.outside.conductance * (c.outside.t_ext - temp[-1]) + c.outside.q
         f[0] += q_in
         f[-1] += q_out
         return f, (-q_in if self.s.water is not None else 0.0), q_in, q_out
+
+    @staticmethod
+    def boundary_heat(temp: np.ndarray, c: _Coefficients) -> tuple[float, float]:
+        """Heat into the construction through the inside and the outside surface [W per reference unit]."""
+        i, o = c.inside, c.outside
+        return i.conductance * (i.t_ext - float(temp[0])) + i.q, o.conductance * (o.t_ext - float(temp[-1])) + o.q
 
     @staticmethod
     def surfaces(temp: np.ndarray, c: _Coefficients, q_in: float, q_out: float) -> tuple[float, float]:
@@ -330,14 +344,25 @@ class _Stepper:
         cached = self.factors.get(a)
         if cached is not None and self.fixed_matrix:
             return cached
-        d = np.zeros(self.s.capacity.size)
-        d[:-1] += c.g
-        d[1:] += c.g
-        d[0] += c.inside.conductance
-        d[-1] += c.outside.conductance
+        g_in, g_out = c.inside.conductance, c.outside.conductance
+        if cached is not None and self.s.constant_k:
+            # only the boundary conductances move: compare them on the diagonal
+            base_in = cached.diag[0] - a * cached.gw  # type: ignore[attr-defined]
+            base_out = cached.diag[-1] - a * cached.g_out  # type: ignore[attr-defined]
+            if (abs(a * (g_in - cached.gw)) <= REFACTOR_TOLERANCE * (base_in + a * cached.gw)  # type: ignore[attr-defined]
+                    and abs(a * (g_out - cached.g_out)) <= REFACTOR_TOLERANCE * (base_out + a * cached.g_out)):  # type: ignore[attr-defined]
+                return cached
+        if self.s.constant_k:
+            d = self.k_interior.copy()
+        else:
+            d = np.zeros(self.s.capacity.size)
+            d[:-1] += c.g
+            d[1:] += c.g
+        d[0] += g_in
+        d[-1] += g_out
         diag = self.s.capacity + a * d
         off = -a * c.g
-        if cached is not None and cached.close_to(diag, off):
+        if cached is not None and not self.s.constant_k and cached.close_to(diag, off):
             return cached
         factor = _Factor(diag, off)
         factor.gw = c.inside.conductance  # type: ignore[attr-defined]
@@ -384,7 +409,7 @@ class _Stepper:
             temp, h_w, tw = new_t, new_h, new_tw
             if water is not None:
                 c.inside.t_ext = tw
-            _, _, q_in, q_out = self.net_heat(temp, tw, c)
+            q_in, q_out = self.boundary_heat(temp, c)
             surfaces = self.surfaces(temp, c, q_in, q_out)
             if (self.fixed_matrix and iteration >= 1) or change < TOLERANCE:
                 break
@@ -531,6 +556,7 @@ def march(
             previous_jump = bool(rough.size and rough[-1])
             load(k)
         h_old = h_w
+        previous_state = temp
         smooth = sch.name != "backward-euler" and (rough[k - chunk_start] or (smooth_start and k < 2))
         if smooth:
             smoothed += 1
@@ -550,7 +576,10 @@ def march(
             heats, heats_w = [f0], [fw0]
             tally_in, tally_out = [0.0], [0.0]
             flux_in, flux_out = [qi0], [qo0]
-            stage_t, stage_h = temp, h_w
+            stage_h = h_w
+            # first iterate: the state extrapolated from the last step (fewer iterations when
+            # coefficients depend on temperature; the converged stage does not depend on it)
+            stage_t = temp + sch.stage_time[0] * (temp - previous) if system.depends_on_temperature and k > 0 else temp
             for s, c_s in enumerate(sch.stage_time):
                 e_row, f_row, a_s = sch.energy[s], sch.heat[s], sch.implicit[s]
                 rhs = sum(w * e for w, e in zip(e_row, energies) if w) + h * sum(w * f for w, f in zip(f_row, heats) if w)
@@ -593,6 +622,7 @@ def march(
             if math.isnan(ice_t) and h_w <= target < h_old:
                 ice_t = t_k + h * (h_old - target) / (h_old - h_w)
         h_before = h_old
+        previous = previous_state
         if (k + 1) % output_every == 0:
             # the boundary flows the scheme took at the end of the step (they
             # differ from those of the state by at most the chord's iteration

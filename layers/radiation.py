@@ -178,7 +178,14 @@ def radiative_coefficient(
     eps = _emissivity(emissivity)
     t1 = _kelvin("surface_temperature", surface_temperature)
     t2 = _kelvin("surroundings_temperature", surroundings_temperature)
-    return (eps * STEFAN_BOLTZMANN * (t1 * t1 + t2 * t2) * (t1 + t2))[()]
+    return linearised_radiation_kelvin(eps, t1, t2)[()]
+
+
+def linearised_radiation_kelvin(emissivity, t1_kelvin, t2_kelvin):
+    """The formula of :func:`radiative_coefficient` without its input checks,
+    on absolute temperatures [K], for callers that checked their ranges once
+    (the time march calls it at every iteration) [W m-2 K-1]."""
+    return emissivity * STEFAN_BOLTZMANN * (t1_kelvin * t1_kelvin + t2_kelvin * t2_kelvin) * (t1_kelvin + t2_kelvin)
 
 
 def hr0(mean_temperature: ArrayLike) -> np.ndarray:
