@@ -9,13 +9,19 @@ unit string.
 
 from __future__ import annotations
 
+import functools
 import math
+import os
 import re
-from typing import Any
-
-import pint
+import shutil
+import tempfile
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
 
 from layers.errors import CaseError
+
+if TYPE_CHECKING:
+    import pint
 
 _POWER = re.compile(r"(?<=[A-Za-z\)])([23])(?![\d.])")
 
@@ -38,10 +44,79 @@ def _as_intervals(text: str) -> str:
     return _OFFSET_UNIT.sub(lambda m: "delta_degF" if m.group(1).lower().endswith(("f", "fahrenheit")) else "delta_degC", text)
 
 
-ureg = pint.UnitRegistry(
-    autoconvert_offset_to_baseunit=True, preprocessors=[_powers], cache_folder=None
-)
-ureg.define("percent_rh = 0.01 = pct")
+def _make_registry(cache_folder: Path | None) -> pint.UnitRegistry:
+    """pint's full default registry with our preprocessing and ``pct``."""
+    import pint
+
+    units = pint.UnitRegistry(
+        autoconvert_offset_to_baseunit=True, preprocessors=[_powers], cache_folder=cache_folder
+    )
+    units.define("percent_rh = 0.01 = pct")
+    return units
+
+
+def _units_cache_folder() -> Path:
+    """The folder of pint's parsed-definitions cache: one per pint version,
+    under the layers cache folder (``$LAYERS_CACHE_DIR``, else
+    ``$XDG_CACHE_HOME/layers``, else ``~/.cache/layers``)."""
+    import pint
+
+    from layers.catalogue import cache_dir
+
+    return cache_dir() / f"units-pint-{pint.__version__}"
+
+
+def _discard(folder: Path) -> None:
+    """Remove a damaged cache folder of ours (renamed aside first, so that a
+    process reading it at the same moment never sees it half removed)."""
+    try:
+        aside = Path(tempfile.mkdtemp(dir=folder.parent, prefix=f".{folder.name}-old-"))
+        os.replace(folder, aside / folder.name)
+    except OSError:
+        return
+    shutil.rmtree(aside, ignore_errors=True)
+
+
+@functools.cache
+def registry() -> pint.UnitRegistry:
+    """The one units registry, built on first use.
+
+    Parsing pint's definitions file takes about 0.15 s, longer than the rest
+    of ``layers check``; pint keeps the parsed definitions in a cache folder
+    (:func:`_units_cache_folder`), which brings it to about 0.02 s.  The
+    folder is filled under a temporary name and renamed into place, so a
+    concurrent process never reads it half written.  A cache that cannot be
+    created, read or written only makes the start slower, never an error:
+    the registry is then built from the definitions, and a damaged cache is
+    removed so that the next start rebuilds it.
+    """
+    try:
+        folder = _units_cache_folder()
+        if folder.is_dir():
+            try:
+                return _make_registry(folder)
+            except Exception:  # noqa: BLE001 - any failure of a damaged cache: drop it, build without
+                _discard(folder)
+                return _make_registry(None)
+        folder.parent.mkdir(parents=True, exist_ok=True)
+        filling = Path(tempfile.mkdtemp(dir=folder.parent, prefix=f".{folder.name}-"))
+    except Exception:  # noqa: BLE001 - no usable cache folder (unwritable, no home): build without one
+        return _make_registry(None)
+    try:
+        built = _make_registry(filling)
+        os.rename(filling, folder)  # fails if another process got there first: keep theirs
+    except Exception:  # noqa: BLE001 - the cache could not be written: the registry (if built) is still good
+        built = None
+    finally:
+        shutil.rmtree(filling, ignore_errors=True)
+    return built if built is not None else _make_registry(None)
+
+
+def __getattr__(name: str) -> Any:
+    """``units.ureg``, the registry, built on first use (:func:`registry`)."""
+    if name == "ureg":
+        return registry()
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 #: Kinds of quantity the case file uses: name -> (SI unit written for pint, unit shown to users).
 KINDS: dict[str, tuple[str, str]] = {
@@ -65,6 +140,8 @@ KINDS: dict[str, tuple[str, str]] = {
 
 def _why(exc: Exception) -> str:
     """A pint parse failure in plain words."""
+    import pint
+
     if isinstance(exc, pint.UndefinedUnitError):
         names = ", ".join(repr(n) for n in getattr(exc, "unit_names", ()) or ())
         return f"unknown unit {names}" if names else "unknown unit"
@@ -92,6 +169,8 @@ def parse_quantity(value: Any, kind: str, *, file: str = "<case>", key: str = "?
     float
         The value in the SI unit of ``kind``.
     """
+    import pint
+
     unit, shown = KINDS[kind]
     if isinstance(value, bool):
         _fail(file, key, f"expected a quantity in {shown}, got {value!r}")
@@ -103,7 +182,7 @@ def parse_quantity(value: Any, kind: str, *, file: str = "<case>", key: str = "?
             number = float(text)  # a bare number written as a string: SI
         except ValueError:
             try:
-                q = ureg.Quantity(_as_intervals(text))
+                q = registry().Quantity(_as_intervals(text))
             except Exception as exc:  # pint raises several unrelated types
                 _fail(file, key, f"cannot read {value!r} as a quantity ({_why(exc)}); write a number and a unit like {shown}")
             if not isinstance(q, pint.Quantity) or (q.dimensionless and kind != "fraction" and str(q.units) == "dimensionless"):
@@ -131,13 +210,15 @@ def parse_temperature(value: Any, *, file: str = "<case>", key: str = "?") -> fl
     float
         Temperature [degC].
     """
+    import pint
+
     if isinstance(value, bool):
         _fail(file, key, f"expected a temperature, got {value!r}")
     if isinstance(value, (int, float)):
         number = float(value)
     elif isinstance(value, str):
         try:
-            q = ureg.Quantity(value.strip())
+            q = registry().Quantity(value.strip())
         except Exception as exc:
             _fail(file, key, f"cannot read {value!r} as a temperature ({_why(exc)}); write e.g. '20 degC', '68 degF' or '293.15 K'")
         if not isinstance(q, pint.Quantity) or q.dimensionless:
@@ -145,7 +226,7 @@ def parse_temperature(value: Any, *, file: str = "<case>", key: str = "?") -> fl
             number = float(magnitude)
         else:
             try:
-                number = float(q.to(ureg.degC).magnitude)
+                number = float(q.to("degC").magnitude)
             except pint.DimensionalityError:
                 _fail(file, key, f"{value!r} is not a temperature (use degC, degF or K)")
     else:
@@ -163,6 +244,9 @@ def unit_factor(unit: str, kind: str, *, file: str, key: str) -> tuple[float, fl
     Used for series columns, which are converted once as whole arrays.
     ``kind`` may be ``"temperature"`` (result in degC) or a key of :data:`KINDS`.
     """
+    import pint
+
+    ureg = registry()
     try:
         if kind == "temperature":
             q0 = ureg.Quantity(0.0, unit).to(ureg.degC).magnitude

@@ -95,3 +95,66 @@ def test_cycle_amplitude_and_dew_margin_in_degC_equal_kelvin(write_case):
     times = kelvin.time.start + np.arange(24) * np.timedelta64(1, "h")
     np.testing.assert_array_equal(celsius.outside.air_temperature(times), kelvin.outside.air_temperature(times))
     assert kelvin.outside.air_temperature(times).max() == pytest.approx(32.0)
+
+
+# --------------------------------------------------------------------------- #
+# the registry's definitions cache: faster when it works, never an error when it does not
+
+
+def _fresh_registry():
+    """Build the registry as a new process would (the module keeps one per process)."""
+    from layers import units
+
+    return units.registry.__wrapped__()
+
+
+def _check(registry) -> None:
+    # NIST SP 811 (2008) Appendix B.8, from memory: 1 Btu_IT in/(h ft2 degF) = 0.1442279 W/(m K)
+    q = registry.Quantity("1 Btu*in/(h*ft**2*delta_degF)").to("W/(m*K)").magnitude
+    assert q == pytest.approx(0.1442279, rel=NIST)
+    assert registry.Quantity(5, "pct").to("dimensionless").magnitude == pytest.approx(0.05)
+
+
+def test_registry_fills_its_cache_once_and_then_reads_it(tmp_path, monkeypatch):
+    monkeypatch.setenv("LAYERS_CACHE_DIR", str(tmp_path / "cache"))
+    from layers import units
+
+    _check(_fresh_registry())
+    folder = units._units_cache_folder()
+    assert folder.parent == tmp_path / "cache"
+    cached = sorted(p.name for p in folder.iterdir())
+    assert any(name.endswith(".pickle") for name in cached)
+    # no half-filled temporary folder is left beside it
+    assert [p.name for p in folder.parent.iterdir()] == [folder.name]
+    _check(_fresh_registry())
+    assert sorted(p.name for p in folder.iterdir()) == cached
+
+
+def test_registry_without_a_writable_cache_folder_still_works(tmp_path, monkeypatch):
+    blocker = tmp_path / "not-a-folder"
+    blocker.write_text("a file where the cache folder would go")
+    monkeypatch.setenv("LAYERS_CACHE_DIR", str(blocker / "cache"))
+    _check(_fresh_registry())
+    assert blocker.is_file()
+
+
+def test_registry_with_a_damaged_cache_rebuilds_it(tmp_path, monkeypatch):
+    monkeypatch.setenv("LAYERS_CACHE_DIR", str(tmp_path / "cache"))
+    from layers import units
+
+    _fresh_registry()
+    folder = units._units_cache_folder()
+    for pickled in folder.glob("*.pickle"):
+        pickled.write_bytes(pickled.read_bytes()[:100])  # as if a writer had been killed
+    _check(_fresh_registry())  # works from the definitions, and drops the damaged cache
+    assert not folder.exists()
+    _check(_fresh_registry())  # the next start fills it again
+    assert any(folder.glob("*.pickle"))
+
+
+def test_units_ureg_is_the_one_registry():
+    from layers import units
+
+    assert units.ureg is units.registry()
+    with pytest.raises(AttributeError):
+        units.no_such_name  # noqa: B018
