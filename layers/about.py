@@ -1,11 +1,12 @@
-"""The package's version and the one general caution (imports nothing from the package)."""
+"""The package's version and the one general caution (imports nothing).
 
-from importlib.metadata import PackageNotFoundError, version
+The version is written here once; ``pyproject.toml`` reads it from this file
+(``[tool.setuptools.dynamic]``), so the installed metadata and
+``layers.__version__`` cannot disagree, and no command pays for
+``importlib.metadata`` at start-up.
+"""
 
-try:
-    __version__ = version("layers")
-except PackageNotFoundError:  # running from a source tree that is not installed
-    __version__ = "0.0.0+unknown"
+__version__ = "0.1.0"
 
 CAUTION = (
     "Engineering estimate only. Touch-safety limits, condensation control and "
