@@ -287,6 +287,7 @@ class MarchResult:
     max_iterations_used: int
     smoothed_steps: int
     factorisations: int
+    drive_range: tuple[float, float]          # [degC] initial state and every boundary temperature met
     time_to_freezing: float = math.nan        # [s] contents first at 0 degC
     time_to_ice_fraction: float = math.nan    # [s] ice fraction first at the target
 
@@ -490,6 +491,11 @@ def march(
         seconds = t0 + h * (k + np.arange(m)[:, None] + np.array(fractions)[None, :])
         st.drive_in.load(seconds.ravel())
         st.drive_out.load(seconds.ravel())
+        for drive in (st.drive_in, st.drive_out):
+            for name in ("air", "radiant", "surface", "contents", "sky"):
+                if name in drive.forcing:
+                    drive_range[0] = min(drive_range[0], float(np.min(drive.forcing[name])))
+                    drive_range[1] = max(drive_range[1], float(np.max(drive.forcing[name])))
         chunk_start = k
         # node values k-1 .. k+m+1 of what drives each side, for the jump test:
         # a step whose change exceeds JUMP and JUMP_RATIO times the change of
@@ -510,6 +516,7 @@ def march(
             rough[0] = True
     rough = np.zeros(0, dtype=bool)
     previous_jump = False
+    drive_range = [float(np.min(temp)), float(np.max(temp))]  # initial state and boundary temperatures
 
     def flat(k: int, c: float) -> int:
         return (k - chunk_start) * n_frac + index[c]
@@ -629,7 +636,7 @@ def march(
             # tolerance times a conductance change below REFACTOR_TOLERANCE)
             record(j, temp, h_w, c, surfaces, qi, qo)
             j += 1
-        if progress is not None and (k + 1) % report == 0:
+        if progress is not None and ((k + 1) % report == 0 or k == 0):
             progress(k + 1)
     if st.unconverged:
         warnings.warn(
@@ -664,6 +671,7 @@ def march(
         unconverged_steps=st.unconverged,
         max_iterations_used=st.max_iter,
         smoothed_steps=smoothed,
+        drive_range=(drive_range[0], drive_range[1]),
         factorisations=st.factorisations,
         time_to_freezing=freeze_t,
         time_to_ice_fraction=ice_t,

@@ -97,8 +97,8 @@ def _starts_with_a_step(case: Case, system: System) -> float:
     return jump
 
 
-def run_march(case: Case, mesh: Mesh, progress: Callable[[int, int], None] | None = None) -> tuple[MarchResult, int]:
-    """Initial state and march of a case: the march result and the periodic cycles used."""
+def run_march(case: Case, mesh: Mesh, progress: Callable[[int, int], None] | None = None) -> tuple[MarchResult, int, System]:
+    """Initial state and march of a case: the march result, the periodic cycles used and the system marched."""
     system = system_for(case, mesh)
     initial, cycles = initial_state(case, mesh, system)
     plan = case.time
@@ -119,7 +119,31 @@ def run_march(case: Case, mesh: Mesh, progress: Callable[[int, int], None] | Non
         output_every=plan.output_stride, scheme=plan.scheme, initial_water=water0,
         smooth_start=step_size > 0.0, ice_target=_ice_target(case), progress=callback,
     )
-    return result, cycles
+    return result, cycles, system
+
+
+#: A run whose cells leave the range of their initial and boundary temperatures
+#: by more than this gets a warning [K] (the numerical overshoot of a scheme
+#: that is not monotone; sun, sky and imposed fluxes legitimately leave it).
+RANGE_WARNING = 0.1
+
+
+def _warn_outside_range(case: Case, system: System, res: MarchResult) -> None:
+    """Warn when the cells leave the range spanned by the initial state and
+    every temperature that drives a boundary (maximum principle)."""
+    if any(ex.kind == "flux" or (ex.kind == "film" and ex.has_sun_or_sky) for ex in (system.inside, system.outside)):
+        return
+    low, high = res.drive_range
+    t = res.temperature
+    above, below = float(np.max(t)) - high, low - float(np.min(t))
+    if max(above, below) > RANGE_WARNING:
+        where = f"{above:.3g} K above the highest" if above >= below else f"{below:.3g} K below the lowest"
+        warnings.warn(
+            f"{case.path}: cell temperatures reach {where} initial or boundary temperature (overshoot of "
+            f"{resolve_scheme(case.time.scheme).name} at step {case.time.step:g} s; a shorter step or tr-bdf2 reduces it)",
+            UserWarning,
+            stacklevel=3,
+        )
 
 
 def simulate(case: Case, progress: Callable[[int, int], None] | None = None) -> xr.Dataset:
@@ -138,7 +162,8 @@ def simulate(case: Case, progress: Callable[[int, int], None] | None = None) -> 
         Variables and attributes as the product contract lists them.
     """
     mesh = case.mesh()
-    res, cycles = run_march(case, mesh, progress)
+    res, cycles, system = run_march(case, mesh, progress)
+    _warn_outside_range(case, system, res)
     seconds = res.time
     extra: dict = {}
     attrs: dict = {}

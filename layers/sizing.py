@@ -70,7 +70,7 @@ def freeze_times(case: Case, thickness: float, progress: Callable[[int, int], No
     from layers.simulation import run_march
 
     trial = with_thickness(case, case.sizing.layer, thickness)
-    result, _ = run_march(trial, trial.mesh(), progress)
+    result, _, _ = run_march(trial, trial.mesh(), progress)
     return FreezeTimes(result.time_to_freezing, result.time_to_ice_fraction)
 
 

@@ -257,3 +257,49 @@ def test_interface_temperatures_are_the_surfaces_and_layer_faces():
     q = 25.0 / sum(r)
     # the brick-EPS face is reported on its inner side (the contact lies outside it)
     assert faces[0, 1] == pytest.approx(20.0 - q * (r[0] + r[1]), abs=1e-9)
+
+
+def test_a_long_run_allocates_nothing_per_step_before_it_starts():
+    """A year at 1-minute steps (525,600 steps) keeping two records: boundary
+    data come chunk by chunk, so the memory in use when the first progress
+    report arrives is far below one float per step and stage (which alone
+    would be 4 x 525,600 x 8 B = 17 MB per side); 2 MB allows the mesh, one
+    chunk of forcing and the factors."""
+    import tracemalloc
+
+    case = _case(SLAB.format(cells=20).replace('surface_temperature = "0 degC"\n[time]', 'surface_temperature = "5 degC"\n[time]'))
+    system = system_for(case, case.mesh())
+
+    class Stop(Exception):
+        pass
+
+    def stop(done):
+        raise Stop(tracemalloc.get_traced_memory())
+
+    tracemalloc.start()
+    try:
+        march(system, np.zeros(20), 60.0, 525_600, output_every=525_600, scheme="tr-bdf2", progress=stop)
+    except Stop as exc:
+        current, peak = exc.args[0]
+    finally:
+        tracemalloc.stop()
+    assert peak < 2_000_000, peak
+
+
+def test_a_run_that_overshoots_says_so():
+    """The check behind the run's overshoot warning, on a real overshoot: the
+    step case marched by Crank-Nicolson without start smoothing reaches about
+    281 degC, and the warning names how far above 180 degC; with smoothing
+    (what a run does) nothing is said."""
+    from layers.simulation import _warn_outside_range
+
+    case = _case(STEP.format(scheme="crank-nicolson"))
+    system = system_for(case, case.mesh())
+    rough = march(system, np.full(case.mesh().n, 10.0), 900.0, 24, scheme="crank-nicolson", smooth_start=False)
+    assert rough.temperature.max() > 250.0
+    with pytest.warns(UserWarning, match="K above the highest"):
+        _warn_outside_range(case, system, rough)
+    smooth = march(system, np.full(case.mesh().n, 10.0), 900.0, 24, scheme="crank-nicolson", smooth_start=True)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        _warn_outside_range(case, system, smooth)
