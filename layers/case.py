@@ -243,12 +243,17 @@ def load_case(path: str | Path, *, series_dir: Path | None = None) -> Case:
         raise CaseError(file, "(file)", f"cannot read the case file ({exc.strerror})") from None
     try:
         text = raw.decode("utf-8")
-        data = tomllib.loads(text)
     except UnicodeDecodeError:
         raise CaseError(file, "(file)", "is not UTF-8 text") from None
+    return parse_case(read_toml(text, file), file=file, text=text, base_dir=path.parent, series_dir=series_dir)
+
+
+def read_toml(text: str, file: str = "<case>") -> dict:
+    """Parse case text (TOML); a syntax error is a :class:`CaseError` naming ``file``."""
+    try:
+        return tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise CaseError(file, "(syntax)", f"malformed TOML: {exc}") from None
-    return parse_case(data, file=file, text=text, base_dir=path.parent, series_dir=series_dir)
 
 
 def parse_case(

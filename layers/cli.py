@@ -153,13 +153,11 @@ def cmd_periodic(args: argparse.Namespace) -> int:
     from layers.case import load_case
     from layers.report import periodic_dataset, periodic_report
     from layers.results import refuse_existing, write_output
-    from layers.units import parse_quantity
+    from layers.units import parse_period
 
     refuse_existing(args.out)
     case = load_case(args.case)
-    period = parse_quantity(args.period, "duration", file="(command line)", key="--period")
-    if period <= 0:
-        raise CaseError("(command line)", "--period", "must be positive")
+    period = parse_period(args.period, file="(command line)", key="--period")
     report = periodic_report(case, period)
     print(report.text)
     written = write_output(periodic_dataset(case, report), args.out)

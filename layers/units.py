@@ -238,6 +238,27 @@ def parse_temperature(value: Any, *, file: str = "<case>", key: str = "?") -> fl
     return number
 
 
+def parse_period(value: Any, *, file: str = "<case>", key: str = "period") -> float:
+    """Parse the period of a cycle: a duration that must be positive.
+
+    Parameters
+    ----------
+    value : str or float
+        ``"24 h"``, ``"1 d"``, or a bare number of seconds [s].
+    file, key : str
+        Where the value came from, for the error message [-].
+
+    Returns
+    -------
+    float
+        The period [s].
+    """
+    period = parse_quantity(value, "duration", file=file, key=key)
+    if period <= 0:
+        _fail(file, key, f"must be positive, got {value!r}")
+    return period
+
+
 def unit_factor(unit: str, kind: str, *, file: str, key: str) -> tuple[float, float]:
     """Scale and offset that convert numbers in ``unit`` to SI: ``si = a * v + b``.
 
