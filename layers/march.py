@@ -58,7 +58,6 @@ from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.linalg import lapack
 
 from layers.contents import WaterNode
 from layers.errors import ConvergenceWarning
@@ -160,6 +159,14 @@ class System:
             k = mesh.conductivity()
             self._k, self._g, self._halves = k, mesh.conductances(k), mesh.half_resistances(k)
 
+    def contents_temperature(self, enthalpy: float) -> float:
+        """Temperature of the contents [degC] (NaN without contents)."""
+        return float(self.water.state(enthalpy)[0]) if self.water is not None else math.nan
+
+    def stored_energy(self, temperature: np.ndarray, enthalpy: float) -> float:
+        """Heat stored in the cells and any contents, relative to 0 degC (liquid) [J per ref. unit]."""
+        return float(self.capacity @ temperature) + (enthalpy if self.water is not None else 0.0)
+
     def conduction(self, temperature: np.ndarray) -> tuple[np.ndarray, np.ndarray, tuple[float, float]]:
         """Cell conductivities [W m-1 K-1], conductances [W K-1 per ref. unit] and the two half-cell resistances."""
         if self.constant_k:
@@ -232,14 +239,17 @@ class _Factor:
     """L D L^T factors of C + a K (symmetric positive definite, tridiagonal)."""
 
     def __init__(self, diag: np.ndarray, off: np.ndarray) -> None:
+        from scipy.linalg import lapack  # here, not at module level: `layers check` needs no scipy
+
         self.diag, self.off = diag, off
+        self._solve = lapack.dpttrs
         self.d, self.e, info = lapack.dpttrf(diag, off)
         if info != 0:
             raise np.linalg.LinAlgError(f"stage matrix not positive definite (dpttrf info={info})")
         self.unit_response: np.ndarray | None = None  # contents: response to a unit source at cell 0
 
     def solve(self, rhs: np.ndarray) -> np.ndarray:
-        x, info = lapack.dpttrs(self.d, self.e, rhs)
+        x, info = self._solve(self.d, self.e, rhs)
         if info != 0:
             raise np.linalg.LinAlgError(f"dpttrs failed (info={info})")
         return x
@@ -372,6 +382,19 @@ class _Stepper:
         self.factorisations += 1
         return factor
 
+    def initial_coefficients(self, temp: np.ndarray, enthalpy: float, i: int) -> tuple[_Coefficients, tuple[float, float]]:
+        """Coefficients at the initial state, with surface temperatures iterated to consistency."""
+        tw = self.s.contents_temperature(enthalpy)
+        surfaces = (float(temp[0]), float(temp[-1]))
+        for _ in range(MAX_ITERATIONS):
+            c = self.coefficients(temp, tw, surfaces, i)
+            new = self.surfaces(temp, c, *self.boundary_heat(temp, c))
+            done = max(abs(new[0] - surfaces[0]), abs(new[1] - surfaces[1])) < TOLERANCE
+            surfaces = new
+            if done or not self.s.depends_on_temperature:
+                break
+        return c, surfaces
+
     # -------------------------------------------------------------- one stage
     def stage(self, temp, h_w, rhs, rhs_w, a, i, surfaces):
         """Solve E(T) - a F(T) = R at forcing index ``i``; returns (T, H, coefficients, surfaces, q_in, q_out)."""
@@ -420,9 +443,190 @@ class _Stepper:
         return temp, h_w, c, surfaces, q_in + chord_in, q_out + chord_out
 
 
-def _fractions(scheme: Scheme) -> tuple[float, ...]:
-    """Every fraction of a step at which forcing is needed (start, stages, half steps)."""
-    return tuple(sorted({0.0, 0.5, 1.0, *scheme.stage_time}))
+class _Forcing:
+    """Boundary data chunk by chunk: every stage fraction of :data:`CHUNK` steps
+    at a time, the jump flags of those steps, and the range of every
+    boundary temperature met so far."""
+
+    def __init__(self, stepper: _Stepper, t0: float, step: float, n_steps: int, smooth_start: bool) -> None:
+        self.stepper, self.t0, self.h, self.n_steps = stepper, t0, step, n_steps
+        scheme = stepper.scheme
+        # every fraction of a step at which forcing is needed (start, stages, half steps)
+        self.fractions = tuple(sorted({0.0, 0.5, 1.0, *scheme.stage_time}))
+        self.position = {c: p for p, c in enumerate(self.fractions)}
+        self.start = -1
+        self.rough = np.zeros(0, dtype=bool)
+        self.smooth_start = smooth_start and scheme.name != "backward-euler"
+        self.smoothing = scheme.name != "backward-euler"
+        self.low, self.high = math.inf, -math.inf
+
+    def index(self, k: int, fraction: float) -> int:
+        """Where step ``k``'s forcing at ``fraction`` of the step sits in the loaded chunk."""
+        return (k - self.start) * len(self.fractions) + self.position[fraction]
+
+    def smooth(self, k: int) -> bool:
+        """Whether step ``k`` is taken as two backward-Euler half steps."""
+        if k - self.start >= self.rough.size:
+            self.load(k)
+        return self.smoothing and (bool(self.rough[k - self.start]) or (self.smooth_start and k < 2))
+
+    def load(self, k: int) -> None:
+        """Forcing for steps k .. k + CHUNK - 1 at every fraction, and the jump flags."""
+        previous_jump = bool(self.rough.size and self.rough[-1])
+        h, t0, n_steps = self.h, self.t0, self.n_steps
+        m = min(CHUNK, n_steps - k) if n_steps > k else 1
+        seconds = (t0 + h * (k + np.arange(m)[:, None] + np.array(self.fractions)[None, :])).ravel()
+        st = self.stepper
+        for drive in (st.drive_in, st.drive_out):
+            drive.load(seconds)
+            for name in ("air", "radiant", "surface", "contents", "sky"):
+                if name in drive.forcing:
+                    self.low = min(self.low, float(np.min(drive.forcing[name])))
+                    self.high = max(self.high, float(np.max(drive.forcing[name])))
+        self.start = k
+        # A step over which a drive changes by more than JUMP and JUMP_RATIO
+        # times its change over both neighbouring steps is a jump: it and the
+        # next step are smoothed (only between two real neighbouring steps;
+        # the start has its own rule).
+        nodes = t0 + h * np.clip(np.arange(k - 1, k + m + 2), 0, n_steps)
+        steps = np.arange(k, k + m)
+        rough = np.zeros(m, dtype=bool)
+        for ex in (st.s.inside, st.s.outside):
+            x = np.broadcast_to(ex.drive_temperature(ex.forcing(nodes)), nodes.shape)
+            change = np.abs(np.diff(x))  # over steps k-1 .. k+m
+            jump = (change[1:-1] > JUMP) & (change[1:-1] > JUMP_RATIO * np.maximum(change[:-2], change[2:]))
+            jump &= (steps > 0) & (steps < n_steps - 1)
+            rough |= jump
+            rough[1:] |= jump[:-1]
+        rough[0] |= k > 0 and previous_jump
+        self.rough = rough
+
+
+@dataclass
+class _State:
+    """The march's state at the end of a step."""
+
+    temperature: np.ndarray
+    enthalpy: float                    # of the contents [J per ref. unit] (0 without)
+    coefficients: _Coefficients        # of the last solve
+    surfaces: tuple[float, float]      # [degC]
+    net: np.ndarray                    # F(T) of the cells [W per ref. unit]
+    net_contents: float                # F of the contents
+    q_in: float                        # heat into the construction at each surface [W per ref. unit]
+    q_out: float
+
+
+class _Records:
+    """The arrays kept at the output times."""
+
+    NAMES = ("q_in", "q_out", "film_in", "film_out", "teq_in", "teq_out", "ts_in", "ts_out", "tw", "ice", "stored")
+
+    def __init__(self, system: System, n_out: int) -> None:
+        self.system = system
+        self.temperature = np.empty((n_out, system.capacity.size))
+        self.faces = np.empty((n_out, system.mesh.interfaces.size))
+        self.values = {name: np.empty(n_out) for name in self.NAMES}
+        self.count = 0
+
+    def add(self, state: _State, q_in: float, q_out: float) -> None:
+        """Keep a state, with the boundary flows [W per ref. unit] the scheme took."""
+        j, v, c, water = self.count, self.values, state.coefficients, self.system.water
+        self.temperature[j] = state.temperature
+        self.faces[j] = self.system.mesh.interface_temperatures(state.temperature, c.k, c.g, q_in, q_out)
+        v["q_in"][j], v["q_out"][j] = q_in, q_out
+        v["film_in"][j], v["film_out"][j] = c.inside.film, c.outside.film
+        v["teq_in"][j], v["teq_out"][j] = c.inside.t_eq, c.outside.t_eq
+        v["ts_in"][j], v["ts_out"][j] = state.surfaces
+        if water is not None:
+            t_w, ice = water.state(state.enthalpy)
+            v["tw"][j], v["ice"][j] = float(t_w), float(ice)
+        v["stored"][j] = self.system.stored_energy(state.temperature, state.enthalpy)
+        self.count += 1
+
+
+class _FreezeWatch:
+    """When the contents first reach 0 degC, and when their ice fraction first reaches a target."""
+
+    def __init__(self, water: WaterNode | None, enthalpy: float, t0: float, ice_target: float) -> None:
+        self.water = water
+        self.to_freezing = self.to_ice_fraction = math.nan
+        self.before = math.nan  # the enthalpy one step before the current one
+        if water is None:
+            return
+        self.target = -ice_target * water.latent
+        if enthalpy <= 0.0:
+            self.to_freezing = t0
+        if enthalpy <= self.target:
+            self.to_ice_fraction = t0
+
+    def update(self, t_start: float, h: float, old: float, new: float) -> None:
+        """After a step of ``h`` [s] from ``t_start`` that took the enthalpy from ``old`` to ``new``."""
+        if self.water is None:
+            return
+        if math.isnan(self.to_freezing) and new <= 0.0 < old:
+            # The enthalpy's rate changes at 0 degC (the pipe wall stops cooling
+            # with the water), so interpolating across the step is only first
+            # order; extrapolate with the liquid-side rate of the step before.
+            if self.before > old:
+                self.to_freezing = t_start + min(h, old * h / (self.before - old))
+            else:
+                self.to_freezing = t_start + h * old / (old - new)
+        if math.isnan(self.to_ice_fraction) and new <= self.target < old:
+            self.to_ice_fraction = t_start + h * (old - self.target) / (old - new)
+        self.before = old
+
+
+def _weighted(weights: tuple[float, ...], values: list) -> float | np.ndarray:
+    return sum(w * v for w, v in zip(weights, values) if w)
+
+
+def _scheme_step(st: _Stepper, forcing: _Forcing, state: _State, previous: np.ndarray | None, k: int, h: float):
+    """One step of the scheme's stage table; returns the last stage's result and the heat
+    through each boundary over the step [J per ref. unit]."""
+    sch, cap = st.scheme, st.s.capacity
+    energies, energies_w = [cap * state.temperature], [state.enthalpy]
+    heats, heats_w = [state.net], [state.net_contents]
+    tally_in, tally_out = [0.0], [0.0]
+    flux_in, flux_out = [state.q_in], [state.q_out]
+    temp, enthalpy, surfaces = state.temperature, state.enthalpy, state.surfaces
+    if previous is not None and st.s.depends_on_temperature:
+        # first iterate extrapolated from the last step: fewer iterations (the converged stage does not depend on it)
+        temp = temp + sch.stage_time[0] * (temp - previous)
+    last = len(sch.stage_time) - 1
+    for s, fraction in enumerate(sch.stage_time):
+        e, f, a = sch.energy[s], sch.heat[s], sch.implicit[s]
+        rhs = _weighted(e, energies) + h * _weighted(f, heats)
+        rhs_w = _weighted(e, energies_w) + h * _weighted(f, heats_w)
+        solved = st.stage(temp, enthalpy, rhs, rhs_w, a * h, forcing.index(k, fraction), surfaces)
+        temp, enthalpy, c, surfaces, q_in, q_out = solved
+        tally_in.append(_weighted(e, tally_in) + h * _weighted(f, flux_in) + a * h * q_in)
+        tally_out.append(_weighted(e, tally_out) + h * _weighted(f, flux_out) + a * h * q_out)
+        if s < last:
+            net, net_w, _, _ = st.net_heat(temp, st.s.contents_temperature(enthalpy), c)
+            energies.append(cap * temp)
+            energies_w.append(enthalpy)
+            heats.append(net)
+            heats_w.append(net_w)
+            flux_in.append(q_in)
+            flux_out.append(q_out)
+    return solved, tally_in[-1], tally_out[-1]
+
+
+def _smoothed_step(st: _Stepper, forcing: _Forcing, state: _State, k: int, h: float):
+    """Step ``k`` as two backward-Euler half steps (start smoothing)."""
+    temp, enthalpy, surfaces = state.temperature, state.enthalpy, state.surfaces
+    heat_in = heat_out = 0.0
+    for fraction in (0.5, 1.0):
+        solved = st.stage(temp, enthalpy, st.s.capacity * temp, enthalpy, 0.5 * h, forcing.index(k, fraction), surfaces)
+        temp, enthalpy, c, surfaces, q_in, q_out = solved
+        heat_in += 0.5 * h * q_in
+        heat_out += 0.5 * h * q_out
+    return solved, heat_in, heat_out
+
+
+def _settled_state(st: _Stepper, temp: np.ndarray, enthalpy: float, c: _Coefficients, surfaces) -> _State:
+    net, net_w, q_in, q_out = st.net_heat(temp, st.s.contents_temperature(enthalpy), c)
+    return _State(temp, enthalpy, c, surfaces, net, net_w, q_in, q_out)
 
 
 def march(
@@ -463,179 +667,41 @@ def march(
     progress : callable, optional
         Called with the number of steps done, now and then.
     """
-    sch = scheme if isinstance(scheme, Scheme) else resolve_scheme(scheme)
-    st = _Stepper(system, sch)
-    water = system.water
-    h = step
-    fractions = _fractions(sch)
-    n_frac = len(fractions)
-    index = {c: p for p, c in enumerate(fractions)}
+    st = _Stepper(system, scheme if isinstance(scheme, Scheme) else resolve_scheme(scheme))
+    water, h = system.water, step
+    forcing = _Forcing(st, t0, h, n_steps, smooth_start)
+    forcing.load(0)
     temp = np.array(initial, dtype=float)
-    h_w = water.enthalpy(initial_water) if water is not None else 0.0
-    h_initial = h_w
-    tw = float(water.state(h_w)[0]) if water is not None else math.nan
-    mesh = system.mesh
-
-    n_out = n_steps // output_every + 1
-    temps = np.empty((n_out, temp.size))
-    faces = np.empty((n_out, mesh.interfaces.size))
-    names = ("q_in", "q_out", "film_in", "film_out", "teq_in", "teq_out", "ts_in", "ts_out", "tw", "ice", "stored")
-    rec = {name: np.empty(n_out) for name in names}
-
-    chunk_start = -1
-
-    def load(k: int) -> None:
-        """Forcing for steps k .. k + CHUNK - 1 at every fraction, and the jump flags."""
-        nonlocal chunk_start, rough
-        m = min(CHUNK, n_steps - k) if n_steps > k else 1
-        seconds = t0 + h * (k + np.arange(m)[:, None] + np.array(fractions)[None, :])
-        st.drive_in.load(seconds.ravel())
-        st.drive_out.load(seconds.ravel())
-        for drive in (st.drive_in, st.drive_out):
-            for name in ("air", "radiant", "surface", "contents", "sky"):
-                if name in drive.forcing:
-                    drive_range[0] = min(drive_range[0], float(np.min(drive.forcing[name])))
-                    drive_range[1] = max(drive_range[1], float(np.max(drive.forcing[name])))
-        chunk_start = k
-        # node values k-1 .. k+m+1 of what drives each side, for the jump test:
-        # a step whose change exceeds JUMP and JUMP_RATIO times the change of
-        # both neighbouring steps is a jump; it and the next step are smoothed
-        node_t = t0 + h * np.clip(np.arange(k - 1, k + m + 2), 0, n_steps)
-        rough = np.zeros(m, dtype=bool)
-        for ex in (system.inside, system.outside):
-            x = np.broadcast_to(ex.drive_temperature(ex.forcing(node_t)), node_t.shape)
-            d1 = np.abs(np.diff(x))  # steps k-1 .. k+m
-            neighbours = np.maximum(d1[:-2], d1[2:])
-            jump = (d1[1:-1] > JUMP) & (d1[1:-1] > JUMP_RATIO * neighbours)
-            # only between two real neighbouring steps (the start has its own rule)
-            steps = np.arange(k, k + m)
-            jump &= (steps > 0) & (steps < n_steps - 1)
-            rough |= jump
-            rough[1:] |= jump[:-1]
-        if k > 0 and previous_jump:
-            rough[0] = True
-    rough = np.zeros(0, dtype=bool)
-    previous_jump = False
-    drive_range = [float(np.min(temp)), float(np.max(temp))]  # initial state and boundary temperatures
-
-    def flat(k: int, c: float) -> int:
-        return (k - chunk_start) * n_frac + index[c]
-
-    load(0)
-    # coefficients at the initial state: iterate the surface temperatures to consistency
-    surfaces = (float(temp[0]), float(temp[-1]))
-    for _ in range(MAX_ITERATIONS):
-        c = st.coefficients(temp, tw, surfaces, flat(0, 0.0))
-        _, _, qi, qo = st.net_heat(temp, tw, c)
-        new = st.surfaces(temp, c, qi, qo)
-        done = max(abs(new[0] - surfaces[0]), abs(new[1] - surfaces[1])) < TOLERANCE
-        surfaces = new
-        if done or not system.depends_on_temperature:
-            break
-
-    def record(j: int, temp: np.ndarray, h_w: float, c: _Coefficients, surfaces, q_in: float, q_out: float) -> None:
-        temps[j] = temp
-        faces[j] = mesh.interface_temperatures(temp, c.k, c.g, q_in, q_out)
-        rec["q_in"][j], rec["q_out"][j] = q_in, q_out
-        rec["film_in"][j], rec["film_out"][j] = c.inside.film, c.outside.film
-        rec["teq_in"][j], rec["teq_out"][j] = c.inside.t_eq, c.outside.t_eq
-        rec["ts_in"][j], rec["ts_out"][j] = surfaces
-        if water is not None:
-            t_w, ice = water.state(h_w)
-            rec["tw"][j], rec["ice"][j] = float(t_w), float(ice)
-        rec["stored"][j] = float(system.capacity @ temp) + (h_w if water is not None else 0.0)
-
-    f0, fw0, qi0, qo0 = st.net_heat(temp, tw, c)
-    record(0, temp, h_w, c, surfaces, qi0, qo0)
-    stored0 = rec["stored"][0]
+    enthalpy = water.enthalpy(initial_water) if water is not None else 0.0
+    c, surfaces = st.initial_coefficients(temp, enthalpy, forcing.index(0, 0.0))
+    state = _settled_state(st, temp, enthalpy, c, surfaces)
+    records = _Records(system, n_steps // output_every + 1)
+    records.add(state, state.q_in, state.q_out)
+    freeze = _FreezeWatch(water, enthalpy, t0, ice_target)
     heat_in = heat_out = heat_abs = 0.0
-    freeze_t = ice_t = math.nan
-    if water is not None and h_w <= 0.0:
-        freeze_t = t0
-    if water is not None and h_w <= -ice_target * water.latent:
-        ice_t = t0
-    report = max(1, n_steps // 200)
     smoothed = 0
-    h_before = math.nan  # the contents' enthalpy one step before the current one
-    j = 1
+    previous = None
+    report = max(1, n_steps // 200)
     for k in range(n_steps):
-        if k - chunk_start >= rough.size:
-            previous_jump = bool(rough.size and rough[-1])
-            load(k)
-        h_old = h_w
-        previous_state = temp
-        smooth = sch.name != "backward-euler" and (rough[k - chunk_start] or (smooth_start and k < 2))
-        if smooth:
+        if forcing.smooth(k):
             smoothed += 1
-            # two backward-Euler half steps
-            q_step_in = q_step_out = 0.0
-            for half in (0.5, 1.0):
-                e0 = system.capacity * temp
-                temp, h_w, c, surfaces, qi, qo = st.stage(temp, h_w, e0, h_w, 0.5 * h, flat(k, half), surfaces)
-                q_step_in += 0.5 * h * qi
-                q_step_out += 0.5 * h * qo
-            tw = float(water.state(h_w)[0]) if water is not None else math.nan
-            f0, fw0, qi0, qo0 = st.net_heat(temp, tw, c)
-            e_in, e_out = q_step_in, q_step_out
+            solved, e_in, e_out = _smoothed_step(st, forcing, state, k, h)
         else:
-            energies = [system.capacity * temp]
-            energies_w = [h_w]
-            heats, heats_w = [f0], [fw0]
-            tally_in, tally_out = [0.0], [0.0]
-            flux_in, flux_out = [qi0], [qo0]
-            stage_h = h_w
-            # first iterate: the state extrapolated from the last step (fewer iterations when
-            # coefficients depend on temperature; the converged stage does not depend on it)
-            stage_t = temp + sch.stage_time[0] * (temp - previous) if system.depends_on_temperature and k > 0 else temp
-            for s, c_s in enumerate(sch.stage_time):
-                e_row, f_row, a_s = sch.energy[s], sch.heat[s], sch.implicit[s]
-                rhs = sum(w * e for w, e in zip(e_row, energies) if w) + h * sum(w * f for w, f in zip(f_row, heats) if w)
-                rhs_w = sum(w * e for w, e in zip(e_row, energies_w)) + h * sum(w * f for w, f in zip(f_row, heats_w))
-                stage_t, stage_h, c, surfaces, qi, qo = st.stage(stage_t, stage_h, rhs, rhs_w, a_s * h, flat(k, c_s), surfaces)
-                q_prev_in = sum(w * q for w, q in zip(e_row, tally_in)) + h * sum(w * q for w, q in zip(f_row, flux_in))
-                q_prev_out = sum(w * q for w, q in zip(e_row, tally_out)) + h * sum(w * q for w, q in zip(f_row, flux_out))
-                tally_in.append(q_prev_in + a_s * h * qi)
-                tally_out.append(q_prev_out + a_s * h * qo)
-                if s + 1 < len(sch.stage_time):
-                    tw_s = float(water.state(stage_h)[0]) if water is not None else math.nan
-                    f_s, fw_s, _, _ = st.net_heat(stage_t, tw_s, c)
-                    energies.append(system.capacity * stage_t)
-                    energies_w.append(stage_h)
-                    heats.append(f_s)
-                    heats_w.append(fw_s)
-                    flux_in.append(qi)
-                    flux_out.append(qo)
-            temp, h_w = stage_t, stage_h
-            tw = float(water.state(h_w)[0]) if water is not None else math.nan
-            f0, fw0, qi0, qo0 = st.net_heat(temp, tw, c)
-            e_in, e_out = tally_in[-1], tally_out[-1]
-        if water is None:
+            solved, e_in, e_out = _scheme_step(st, forcing, state, previous, k, h)
+        temp, enthalpy, c, surfaces, q_in, q_out = solved
+        previous = state.temperature
+        freeze.update(t0 + k * h, h, state.enthalpy, enthalpy)
+        state = _settled_state(st, temp, enthalpy, c, surfaces)
+        if water is None:  # with contents, the water is part of the stored energy
             heat_in += e_in
             heat_abs += abs(e_in)
         heat_out += e_out
         heat_abs += abs(e_out)
-        if water is not None:
-            t_k = t0 + k * h
-            if math.isnan(freeze_t) and h_w <= 0.0 < h_old:
-                # The enthalpy's rate changes at 0 degC (the pipe wall stops
-                # cooling with the water), so interpolating across the step
-                # is only first order; extrapolate with the liquid-side rate
-                # of the step before.
-                if h_before > h_old:
-                    freeze_t = t_k + min(h, h_old * h / (h_before - h_old))
-                else:
-                    freeze_t = t_k + h * h_old / (h_old - h_w)
-            target = -ice_target * water.latent
-            if math.isnan(ice_t) and h_w <= target < h_old:
-                ice_t = t_k + h * (h_old - target) / (h_old - h_w)
-        h_before = h_old
-        previous = previous_state
         if (k + 1) % output_every == 0:
             # the boundary flows the scheme took at the end of the step (they
             # differ from those of the state by at most the chord's iteration
             # tolerance times a conductance change below REFACTOR_TOLERANCE)
-            record(j, temp, h_w, c, surfaces, qi, qo)
-            j += 1
+            records.add(state, q_in, q_out)
         if progress is not None and ((k + 1) % report == 0 or k == 0):
             progress(k + 1)
     if st.unconverged:
@@ -645,36 +711,38 @@ def march(
             ConvergenceWarning,
             stacklevel=2,
         )
+    v = records.values
+    initial_range = (float(np.min(initial)), float(np.max(initial)))
     return MarchResult(
-        time=t0 + h * output_every * np.arange(n_out),
-        temperature=temps,
-        interface_temperature=faces,
-        q_in=rec["q_in"],
-        q_out=rec["q_out"],
-        film_in=rec["film_in"],
-        film_out=rec["film_out"],
-        t_eq_in=rec["teq_in"],
-        t_eq_out=rec["teq_out"],
-        surface_in=rec["ts_in"],
-        surface_out=rec["ts_out"],
-        contents_temperature=rec["tw"] if water is not None else None,
-        ice_fraction=rec["ice"] if water is not None else None,
+        time=t0 + h * output_every * np.arange(records.count),
+        temperature=records.temperature,
+        interface_temperature=records.faces,
+        q_in=v["q_in"],
+        q_out=v["q_out"],
+        film_in=v["film_in"],
+        film_out=v["film_out"],
+        t_eq_in=v["teq_in"],
+        t_eq_out=v["teq_out"],
+        surface_in=v["ts_in"],
+        surface_out=v["ts_out"],
+        contents_temperature=v["tw"] if water is not None else None,
+        ice_fraction=v["ice"] if water is not None else None,
         heat_in=heat_in,
         heat_out=heat_out,
         heat_abs=heat_abs,
-        stored=rec["stored"],
-        stored_initial=stored0,
-        stored_final=float(system.capacity @ temp) + (h_w if water is not None else 0.0),
-        final=temp,
-        final_enthalpy=h_w,
-        initial_enthalpy=h_initial,
+        stored=v["stored"],
+        stored_initial=float(v["stored"][0]),
+        stored_final=system.stored_energy(state.temperature, state.enthalpy),
+        final=state.temperature,
+        final_enthalpy=state.enthalpy,
+        initial_enthalpy=water.enthalpy(initial_water) if water is not None else 0.0,
         unconverged_steps=st.unconverged,
         max_iterations_used=st.max_iter,
         smoothed_steps=smoothed,
-        drive_range=(drive_range[0], drive_range[1]),
+        drive_range=(min(forcing.low, initial_range[0]), max(forcing.high, initial_range[1])),
         factorisations=st.factorisations,
-        time_to_freezing=freeze_t,
-        time_to_ice_fraction=ice_t,
+        time_to_freezing=freeze.to_freezing,
+        time_to_ice_fraction=freeze.to_ice_fraction,
     )
 
 
