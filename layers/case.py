@@ -37,6 +37,8 @@ PIPE_ORIENTATIONS = ("horizontal", "vertical")
 AUTO_ONLY_KEYS = ("emissivity", "wind_speed", "radiant_temperature", "sky_temperature", "jacket", "tilt", "heat_flow_direction")
 #: A single layer thicker than this is taken for a unit slip [m].
 MAX_LAYER_THICKNESS = 20.0
+#: Thinnest solid layer [m] (a coat of paint is about 50 um; thinner is a typing slip).
+MIN_LAYER_THICKNESS = 1e-6
 #: Most cells a case may have: far beyond what any layered construction needs,
 #: low enough to catch a max_cell written in the wrong unit.
 MAX_CELLS = 20000
@@ -311,15 +313,13 @@ def parse_case(
 
     layers = _parse_layers(top.get("layers", required=True), materials, file)
     rule = _parse_mesh(_Table(top.get("mesh", {}), file, "mesh"))
-    cells = sum(
-        layer.cells if layer.cells else max(rule.min_cells, math.ceil(layer.thickness / rule.max_cell))
-        for layer in layers
-        if layer.material is not None
-    )
+    cells = sum(layer.cells if layer.cells else rule.estimated_cells(layer.thickness) for layer in layers if layer.material is not None)
     if cells > MAX_CELLS:
+        key = "mesh.first_cell" if rule.first_cell is not None and rule.first_cell < rule.max_cell / 4.0 else "mesh.max_cell"
         raise CaseError(
-            file, "mesh.max_cell",
-            f"gives at least {cells} cells (the limit is {MAX_CELLS}; a few hundred resolve any wall or pipe); use a larger max_cell",
+            file, key,
+            f"gives about {cells} cells (the limit is {MAX_CELLS}; a few hundred resolve any wall or pipe); "
+            f"use a larger {key.split('.')[1]}",
         )
 
     # series and cycles
@@ -420,6 +420,8 @@ def _parse_layers(items: Any, materials: dict[str, Material], file: str) -> tupl
             raise t.error("material", "must be a material name")
         material = resolve(name, materials, file=file, key=t.key("material"))
         thickness = _positive(t.get("thickness", required=True), "length", t, "thickness")
+        if thickness < MIN_LAYER_THICKNESS:
+            raise t.error("thickness", f"{thickness:g} m is thinner than any layer a wall or pipe is built of (at least 1 um); leave the layer out")
         if thickness > MAX_LAYER_THICKNESS:
             raise t.error(
                 "thickness",
@@ -443,6 +445,8 @@ def _parse_layers(items: Any, materials: dict[str, Material], file: str) -> tupl
 
 def _parse_mesh(t: _Table) -> MeshRule:
     max_cell = _positive(t.get("max_cell", "5 mm"), "length", t, "max_cell")
+    if max_cell < MIN_LAYER_THICKNESS:
+        raise t.error("max_cell", f"{max_cell:g} m is below 1 um: no wall or pipe needs cells that small")
     growth = t.get("growth", 1.25)
     if isinstance(growth, bool) or not isinstance(growth, (int, float)) or not 1.0 <= growth <= 3.0:
         raise t.error("growth", f"must be a number from 1 to 3, got {growth!r}")
@@ -452,6 +456,8 @@ def _parse_mesh(t: _Table) -> MeshRule:
     first = None
     if t.has("first_cell"):
         first = _positive(t.get("first_cell"), "length", t, "first_cell")
+        if first < MIN_LAYER_THICKNESS:
+            raise t.error("first_cell", f"{first:g} m is below 1 um: no wall or pipe needs cells that small")
     t.finish()
     return MeshRule(max_cell=max_cell, growth=float(growth), min_cells=min_cells, first_cell=first)
 

@@ -122,6 +122,37 @@ JUMP = 1.0
 JUMP_RATIO = 4.0
 #: Boundary data are evaluated this many steps at a time.
 CHUNK = 1024
+#: No construction material survives this temperature (above the melting point of
+#: steel and of refractory ceramics) [degC]; a state beyond it is a bad input.
+HIGHEST_PHYSICAL = 3000.0
+ABSOLUTE_ZERO = -273.15
+
+
+class UnphysicalState(ArithmeticError):
+    """The march left the physical range: not finite, at or below absolute zero,
+    or above :data:`HIGHEST_PHYSICAL`.
+
+    Attributes
+    ----------
+    time : float
+        When [s from the case start].
+    low, high : float
+        The coldest and hottest cell [degC] (NaN where not finite).
+    q_in, q_out : float
+        Heat into the construction through each surface at that state [W per reference unit].
+    """
+
+    def __init__(self, time: float, low: float, high: float, q_in: float, q_out: float) -> None:
+        super().__init__(f"state outside the physical range at t = {time:g} s ({low:g} .. {high:g} degC)")
+        self.time, self.low, self.high, self.q_in, self.q_out = time, low, high, q_in, q_out
+
+
+def _check_physical(state_temperature: np.ndarray, contents: float, time: float, q_in: float, q_out: float) -> None:
+    low, high = float(np.min(state_temperature)), float(np.max(state_temperature))
+    if not math.isnan(contents):
+        low, high = min(low, contents), max(high, contents)
+    if not (low > ABSOLUTE_ZERO and high < HIGHEST_PHYSICAL):  # also catches NaN
+        raise UnphysicalState(time, low, high, q_in, q_out)
 
 
 def resolve_scheme(name: str) -> Scheme:
@@ -675,6 +706,7 @@ def march(
     enthalpy = water.enthalpy(initial_water) if water is not None else 0.0
     c, surfaces = st.initial_coefficients(temp, enthalpy, forcing.index(0, 0.0))
     state = _settled_state(st, temp, enthalpy, c, surfaces)
+    _check_physical(temp, system.contents_temperature(enthalpy), t0, state.q_in, state.q_out)
     records = _Records(system, n_steps // output_every + 1)
     records.add(state, state.q_in, state.q_out)
     freeze = _FreezeWatch(water, enthalpy, t0, ice_target)
@@ -692,6 +724,7 @@ def march(
         previous = state.temperature
         freeze.update(t0 + k * h, h, state.enthalpy, enthalpy)
         state = _settled_state(st, temp, enthalpy, c, surfaces)
+        _check_physical(temp, system.contents_temperature(enthalpy), t0 + (k + 1) * h, q_in, q_out)
         if water is None:  # with contents, the water is part of the stored energy
             heat_in += e_in
             heat_abs += abs(e_in)

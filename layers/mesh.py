@@ -85,6 +85,26 @@ class MeshRule:
     min_cells: int = 3
     first_cell: float | None = None
 
+    def estimated_cells(self, thickness: float) -> int:
+        """About how many cells :meth:`cell_sizes` makes for a layer, without making
+        them (so that an absurd rule is refused before any work) [-].
+
+        Each face is graded geometrically from ``first_cell`` to ``max_cell``;
+        the rest is cut at ``max_cell``.
+        """
+        h_max = self.max_cell
+        h_first = h_max if self.growth == 1.0 else min(self.first_cell or h_max / 4.0, h_max)
+        if self.growth == 1.0 or h_first >= h_max:
+            return max(self.min_cells, math.ceil(thickness / h_max))
+        g = self.growth
+        k_cap = math.ceil(math.log(h_max / h_first) / math.log(g))
+        graded = h_first * (g**k_cap - 1.0) / (g - 1.0)  # length of one graded zone
+        if 2.0 * graded >= thickness:
+            n = 2.0 * math.log1p(0.5 * thickness * (g - 1.0) / h_first) / math.log(g)
+        else:
+            n = 2.0 * k_cap + (thickness - 2.0 * graded) / h_max
+        return max(self.min_cells, math.ceil(n))
+
     def cell_sizes(self, thickness: float, cells: int | None = None) -> np.ndarray:
         """Cell sizes of one layer [m], graded geometrically toward both faces.
 

@@ -7,6 +7,7 @@ state (:mod:`layers.steady`, or the periodic start of :mod:`layers.march`)
 
 from __future__ import annotations
 
+import math
 import warnings
 from collections.abc import Callable
 from dataclasses import dataclass
@@ -15,9 +16,10 @@ import numpy as np
 import xarray as xr
 
 from layers.case import Case
+from layers.errors import CaseError
 from layers.contents import WaterNode
 from layers.exchange import exchanges, in_seconds
-from layers.march import TOLERANCE, MarchResult, System, march, periodic_start, resolve_scheme, settle
+from layers.march import TOLERANCE, MarchResult, System, UnphysicalState, march, periodic_start, resolve_scheme, settle
 from layers.mesh import Mesh
 from layers.results import to_dataset
 from layers.steady import cell_temperatures, steady_state
@@ -97,9 +99,11 @@ def _starts_with_a_step(case: Case, system: System) -> float:
     return jump
 
 
-def run_march(case: Case, mesh: Mesh, progress: Callable[[int, int], None] | None = None) -> tuple[MarchResult, int, System]:
+def run_march(
+    case: Case, mesh: Mesh, progress: Callable[[int, int], None] | None = None, system: System | None = None
+) -> tuple[MarchResult, int, System]:
     """Initial state and march of a case: the march result, the periodic cycles used and the system marched."""
-    system = system_for(case, mesh)
+    system = system or system_for(case, mesh)
     initial, cycles = initial_state(case, mesh, system)
     plan = case.time
     step_size = _starts_with_a_step(case, system)
@@ -146,6 +150,53 @@ def _warn_outside_range(case: Case, system: System, res: MarchResult) -> None:
         )
 
 
+def _warn_service_temperature(case: Case, mesh: Mesh, res: MarchResult) -> list[str]:
+    """Warn for every layer whose material passes its maximum service temperature
+    (at the kept times, cell centres and layer faces); returns the warnings' texts."""
+    texts = []
+    for number, spec in enumerate(case.layers, start=1):
+        if spec.is_gap or spec.material.max_temperature is None:
+            continue
+        cells = res.temperature[:, mesh.layer == number]
+        faces = res.interface_temperature[:, number - 1 : number + 1]
+        hottest = np.maximum(cells.max(axis=1), faces.max(axis=1))
+        j = int(np.argmax(hottest))
+        if hottest[j] > spec.material.max_temperature:
+            when = np.datetime_as_string(case.datetimes(res.time[j : j + 1])[0], unit="m") + "Z"
+            text = (
+                f"layer {number} ({spec.material.name}) reaches {hottest[j]:.1f} degC at {when}, above its maximum "
+                f"service temperature of {spec.material.max_temperature:g} degC: choose a material rated for it"
+            )
+            warnings.warn(f"{case.path}: {text}", UserWarning, stacklevel=3)
+            texts.append(text)
+    return texts
+
+
+def unphysical_error(case: Case, system: System, exc: UnphysicalState) -> CaseError:
+    """The bad input behind a state outside physics, as a CaseError naming the
+    boundary that drives it (the one that moves the most heat at that moment)."""
+    when = np.datetime_as_string(case.datetimes(np.array([exc.time]))[0], unit="m") + "Z"
+    if math.isnan(exc.low) or math.isnan(exc.high):
+        what = "temperatures that are not numbers"
+    elif exc.low <= -273.15:
+        what = f"{exc.low:.4g} degC, below absolute zero"
+    else:
+        what = f"{exc.high:.4g} degC, beyond what any construction material survives"
+    side = system.inside if abs(exc.q_in) >= abs(exc.q_out) or math.isnan(exc.q_out) else system.outside
+    key = {
+        "flux": "heat_flux", "temperature": "surface_temperature", "film": "air_temperature",
+        "contents": "initial_temperature", "adiabatic": "type",
+    }[side.kind]
+    if side.kind == "film" and side.spec.solar_irradiance is not None:
+        key = "solar_irradiance"
+    reason = (
+        f"the run reaches {what} at {when}, driven by this boundary "
+        f"({side.kind}; {abs(exc.q_in if side is system.inside else exc.q_out):.4g} W per {case.reference_unit} at that moment): "
+        "check its value, sign and unit; nothing was archived"
+    )
+    return CaseError(case.path, f"{side.side}.{key}", reason)
+
+
 def simulate(case: Case, progress: Callable[[int, int], None] | None = None) -> xr.Dataset:
     """Run a case and return its results as a labelled Dataset.
 
@@ -162,8 +213,13 @@ def simulate(case: Case, progress: Callable[[int, int], None] | None = None) -> 
         Variables and attributes as the product contract lists them.
     """
     mesh = case.mesh()
-    res, cycles, system = run_march(case, mesh, progress)
+    system = system_for(case, mesh)
+    try:
+        res, cycles, system = run_march(case, mesh, progress, system)
+    except UnphysicalState as exc:
+        raise unphysical_error(case, system, exc) from None
     _warn_outside_range(case, system, res)
+    overheated = _warn_service_temperature(case, mesh, res)
     seconds = res.time
     extra: dict = {}
     attrs: dict = {}
@@ -200,6 +256,8 @@ def simulate(case: Case, progress: Callable[[int, int], None] | None = None) -> 
         attrs["nonlinear_unconverged_steps"] = res.unconverged_steps
         attrs["nonlinear_max_iterations"] = res.max_iterations_used
     attrs["smoothed_steps"] = res.smoothed_steps
+    if overheated:
+        attrs["service_temperature_exceeded"] = "; ".join(overheated)
     net = res.heat_in + res.heat_out
     # relative to the heat exchanged, or to 1 J per reference unit where less than
     # that crossed the boundaries (a construction in equilibrium: only round-off)

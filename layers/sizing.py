@@ -67,10 +67,16 @@ class FreezeTimes(NamedTuple):
 
 def freeze_times(case: Case, thickness: float, progress: Callable[[int, int], None] | None = None) -> FreezeTimes:
     """Time to 0 degC and time to ``max_ice_fraction`` [s] for one candidate (NaN: not within the run)."""
-    from layers.simulation import run_march
+    from layers.march import UnphysicalState
+    from layers.simulation import run_march, system_for, unphysical_error
 
     trial = with_thickness(case, case.sizing.layer, thickness)
-    result, _, _ = run_march(trial, trial.mesh(), progress)
+    mesh = trial.mesh()
+    system = system_for(trial, mesh)
+    try:
+        result, _, _ = run_march(trial, mesh, progress, system)
+    except UnphysicalState as exc:
+        raise unphysical_error(trial, system, exc) from None
     return FreezeTimes(result.time_to_freezing, result.time_to_ice_fraction)
 
 
@@ -128,6 +134,17 @@ def size(case: Case, progress: Callable[[int, int], None] | None = None) -> xr.D
         passes["max_heat_loss"] = margin >= 0
         data["margin_max_heat_loss"] = ("thickness", margin, {"units": flow_units, "long_name": "heat-loss budget minus the magnitude of the heat flow"})
         attrs["max_heat_loss"] = s.max_heat_loss
+    limited = [(j, spec) for j, spec in enumerate(case.layers) if not spec.is_gap and spec.material.max_temperature is not None]
+    if limited:
+        # the hottest face of each layer with a service limit, against that limit
+        # (on by default: a candidate that overheats its insulation does not pass)
+        over = np.stack([st.face_temperature[:, j, :].max(axis=1) - spec.material.max_temperature for j, spec in limited])
+        worst = over.max(axis=0)
+        passes["service_temperature"] = worst <= 0
+        data["margin_service_temperature"] = ("thickness", -worst, {"units": "K", "long_name": "smallest margin of a layer's hottest face below its material's maximum service temperature"})
+        attrs["service_temperature_limits"] = "; ".join(
+            f"layer {j + 1} {spec.material.name} {spec.material.max_temperature:g} degC" for j, spec in limited
+        )
     if s.min_freeze_time is not None:
         if case.time.duration < s.min_freeze_time:
             raise CaseError(case.path, "time.duration", "must be at least sizing.min_freeze_time to test the freeze time")
@@ -186,6 +203,7 @@ def criteria_table(ds: xr.Dataset) -> str:
         "dew_point_margin": "dew point",
         "max_heat_loss": "heat loss",
         "min_freeze_time": "freeze time",
+        "service_temperature": "service temp.",
     }
     head = f"{'thickness':>10} "
     if "surface_temperature_outside" in ds:
@@ -211,6 +229,8 @@ def criteria_table(ds: xr.Dataset) -> str:
         )
     if "max_heat_loss" in ds.attrs:
         limits.append(f"heat-loss budget {float(ds.attrs['max_heat_loss']):g} {flow_units}")
+    if "service_temperature_limits" in ds.attrs:
+        limits.append(f"maximum service temperature: {ds.attrs['service_temperature_limits']}")
     if "min_freeze_time_h" in ds.attrs:
         limits.append(f"{float(ds.attrs['max_ice_fraction']):g} ice not before {float(ds.attrs['min_freeze_time_h']):g} h")
     if limits:

@@ -303,3 +303,45 @@ def test_a_run_that_overshoots_says_so():
     with warnings.catch_warnings():
         warnings.simplefilter("error")
         _warn_outside_range(case, system, smooth)
+
+
+NEGATIVE_FLUX = """
+[[layers]]
+material = "mineral-wool"
+thickness = "100 mm"
+[inside]
+type = "flux"
+heat_flux = "{flux}"
+[outside]
+type = "adiabatic"
+[time]
+duration = "1 d"
+step = "10 min"
+initial = "20 degC"
+"""
+
+
+def test_a_state_below_absolute_zero_is_refused_naming_its_boundary(tmp_path):
+    """A flux drawn out of an insulated, otherwise adiabatic wall drives it below
+    absolute zero within a step: the run stops with exit 2, names the key
+    (inside.heat_flux) and archives nothing."""
+    from layers.cli import main
+
+    case = tmp_path / "neg.toml"
+    case.write_text(NEGATIVE_FLUX.format(flux="-3000 W/m2"))
+    archive = tmp_path / "runs"
+    assert main(["run", str(case), "--archive", str(archive), "--quiet"]) == 2
+    assert not archive.exists() or not any(archive.iterdir())
+
+
+def test_states_outside_physics_raise_from_the_march():
+    """The march itself refuses a state that is not finite or below absolute zero."""
+    from layers.march import UnphysicalState
+
+    case = _case(NEGATIVE_FLUX.format(flux="-3000 W/m2"))
+    system = system_for(case, case.mesh())
+    with pytest.raises(UnphysicalState) as info:
+        march(system, np.full(case.mesh().n, 20.0), 600.0, 144)
+    assert info.value.low <= -273.15 and info.value.q_in == pytest.approx(-3000.0)
+    with pytest.raises(UnphysicalState):
+        march(system, np.full(case.mesh().n, np.nan), 600.0, 1)

@@ -334,3 +334,33 @@ def test_planar_ignores_the_inner_radius():
     assert isinstance(b, Mesh) and b.inner_radius == 0.0
     np.testing.assert_array_equal(a.x, b.x)
     assert a.steady_resistance() == b.steady_resistance()
+
+
+@pytest.mark.parametrize("growth", [1.0, 1.1, 1.25, 2.0])
+@pytest.mark.parametrize("first", [None, 1e-4, 1e-3])
+@pytest.mark.parametrize("thickness", [0.002, 0.02, 0.3, 1.5])
+def test_estimated_cells_is_close_to_the_cells_made(growth, first, thickness):
+    """The estimate that refuses an absurd mesh before any work is within two
+    cells per graded face (rounding of the graded zones) of what the builder
+    makes."""
+    rule = MeshRule(max_cell=0.01, growth=growth, min_cells=3, first_cell=first)
+    made = rule.cell_sizes(thickness).size
+    assert abs(rule.estimated_cells(thickness) - made) <= 4
+
+
+def test_a_tiny_first_cell_or_layer_is_refused_before_any_work(tmp_path):
+    """A first cell of 1e-300 m and a layer of 1e-300 mm are refused with exit 2
+    at once (each used to hang the mesh builder or archive NaN)."""
+    import time
+
+    from layers.cli import main
+
+    base = '[[layers]]\nmaterial = "brick"\nthickness = "{t}"\n[mesh]\nfirst_cell = "{f}"\n' \
+        '[inside]\ntype = "temperature"\nsurface_temperature = "20 degC"\n' \
+        '[outside]\ntype = "temperature"\nsurface_temperature = "0 degC"\n[time]\nduration = "1 h"\nstep = "1 h"\n'
+    for t, f in (("200 mm", "1e-300 m"), ("1e-300 mm", "1 mm")):
+        case = tmp_path / "c.toml"
+        case.write_text(base.format(t=t, f=f))
+        start = time.monotonic()
+        assert main(["check", str(case)]) == 2
+        assert time.monotonic() - start < 5.0
