@@ -334,6 +334,7 @@ def parse_case(
         raise CaseError(file, "inside.type", "a contents boundary needs cylinder or sphere geometry")
 
     time = _parse_time(_Table(top.get("time", {}), file, "time"), series, timezone)
+    _check_budget(file, cells, len(layers), time)
     for spec in (inside, outside):
         for name, forcing in spec.values.items():
             span = forcing.span() if isinstance(forcing, Forcing) else None
@@ -385,6 +386,31 @@ def parse_case(
 
 def _iso(t: np.datetime64) -> str:
     return str(np.datetime_as_string(t, unit="m"))
+
+
+#: Most time steps a run may take: a century at 1-minute steps (a longer march is a step
+#: written in the wrong unit, and would run for hours).
+MAX_STEPS = 60_000_000
+#: Most memory the kept records of a run may take [bytes].
+MAX_RECORD_BYTES = 4 * 2**30
+
+
+def _check_budget(file: str, cells: int, n_layers: int, time: TimePlan) -> None:
+    """Refuse a plan whose step count or kept records are beyond any sensible run,
+    before any work, with the numbers and the key to change."""
+    if time.n_steps > MAX_STEPS:
+        raise CaseError(
+            file, "time.step",
+            f"{time.duration:g} s in steps of {time.step:g} s is {time.n_steps:.3g} steps (the limit is {MAX_STEPS:.0e}); use a longer step",
+        )
+    records = time.n_steps // max(time.output_stride, 1) + 1
+    size = records * (cells + n_layers + 16) * 8
+    if size > MAX_RECORD_BYTES:
+        raise CaseError(
+            file, "time.output_every",
+            f"keeps {records:.3g} records of {cells} cells, about {size / 2**30:.3g} GiB (the limit is "
+            f"{MAX_RECORD_BYTES / 2**30:g} GiB); keep fewer records with a longer output_every",
+        )
 
 
 def _positive(value: Any, kind: str, table: _Table, name: str, allow_zero: bool = False) -> float:

@@ -345,3 +345,20 @@ def test_states_outside_physics_raise_from_the_march():
     assert info.value.low <= -273.15 and info.value.q_in == pytest.approx(-3000.0)
     with pytest.raises(UnphysicalState):
         march(system, np.full(case.mesh().n, np.nan), 600.0, 1)
+
+
+@pytest.mark.parametrize("step,output,key", [("10 ms", "1 h", "time.step"), ("1 s", "1 s", "time.output_every")])
+def test_a_plan_beyond_any_sensible_run_is_refused_before_work(tmp_path, step, output, key):
+    """A year at 10 ms steps (3.2e9 steps) and a year at 1 s steps keeping every
+    step (3.2e7 records of 40 cells, about 12 GiB) are refused by `check` at
+    once, naming the key to change."""
+    import time
+
+    from layers.cli import main
+
+    text = SLAB.format(cells=40).replace('duration = "1 h"\nstep = "1 h"', f'duration = "365 d"\nstep = "{step}"\noutput_every = "{output}"')
+    case = tmp_path / "c.toml"
+    case.write_text(text)
+    start = time.monotonic()
+    assert main(["check", str(case)]) == 2
+    assert time.monotonic() - start < 5.0
