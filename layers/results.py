@@ -244,9 +244,11 @@ def write_once(path: str | os.PathLike, write: Callable[[str], None]) -> Path:
 
     ``write`` fills a temporary file in the same folder, which is then
     hard-linked into place (``link`` fails if the name exists meanwhile), so
-    an interrupted write leaves no partial file under the final name.  The
-    temporary name carries the process id, so a later writer can remove what
-    a killed one left behind.
+    an interrupted write leaves no partial file under the final name, only a
+    hidden ``.<stem>.<host>-<pid>.<random>.partial`` that the next write to
+    the folder removes once it is sure the writer is gone: same host, process
+    no longer running, file older than :data:`STALE_PARTIAL_AGE`.  A folder
+    shared by several hosts never loses another host's write in progress.
 
     Raises
     ------
@@ -258,7 +260,7 @@ def write_once(path: str | os.PathLike, write: Callable[[str], None]) -> Path:
         raise FileExistsError(str(path))
     path.parent.mkdir(parents=True, exist_ok=True)
     _remove_stale_partials(path.parent)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.stem}.{os.getpid()}.", suffix=".partial", dir=path.parent)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.stem}.{_host()}-{os.getpid()}.", suffix=".partial", dir=path.parent)
     os.close(fd)
     try:
         write(tmp)
@@ -280,21 +282,39 @@ def _umask() -> int:
     return mask
 
 
+#: A partial file younger than this is never removed, whoever wrote it [s].
+STALE_PARTIAL_AGE = 600.0
+
+
+def _host() -> str:
+    """This host's name, reduced to letters, digits and hyphens (it goes into file names)."""
+    import re
+    import socket
+
+    return re.sub(r"[^A-Za-z0-9]+", "-", socket.gethostname()).strip("-") or "host"
+
+
 def _remove_stale_partials(folder: Path) -> None:
-    """Delete temporary files left by writers that were killed (their process is gone)."""
+    """Delete temporary files left by killed writers of this host (older than
+    :data:`STALE_PARTIAL_AGE`, their process gone); other hosts' are left alone."""
+    import time
+
+    host = _host()
+    now = time.time()
     for stale in folder.glob(".*.partial"):
-        parts = stale.name.split(".")
-        try:
-            pid = int(parts[-3])
-        except (ValueError, IndexError):
+        owner = stale.name.split(".")
+        if len(owner) < 4:
             continue
-        if pid == os.getpid():
+        their_host, _, pid_text = owner[-3].rpartition("-")
+        if their_host != host or not pid_text.isdigit() or int(pid_text) == os.getpid():
             continue
         try:
-            os.kill(pid, 0)
+            if now - stale.stat().st_mtime < STALE_PARTIAL_AGE:
+                continue
+            os.kill(int(pid_text), 0)
         except ProcessLookupError:
             stale.unlink(missing_ok=True)
-        except PermissionError:
+        except OSError:
             continue
 
 

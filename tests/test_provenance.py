@@ -313,7 +313,32 @@ def test_run_killed_while_writing_leaves_no_file_and_is_cleaned_up(tmp_path):
     _kill_when(proc, partial_written)
     assert [p for p in sorted(runs.iterdir()) if not p.name.endswith(".partial")] == files
     assert list_runs(runs) == before
-    # the next run cleans up what the killed writer left
+    # a young partial is left alone (its writer might be slow, not dead) ...
+    assert main(["run", str(case), "--archive", str(runs), "--quiet"]) == 0
+    (left,) = runs.glob(".*.partial")
+    # ... and once it is old, the next run of this host removes it
+    old = time.time() - 3600
+    os.utime(left, (old, old))
     assert main(["run", str(case), "--archive", str(runs), "--quiet"]) == 0
     assert not list(runs.glob(".*.partial"))
-    assert len(list_runs(runs)) == len(before) + 1
+    assert len(list_runs(runs)) == len(before) + 2
+
+
+def test_partial_files_of_other_hosts_are_never_removed(tmp_path):
+    """On an archive shared by several hosts, a partial file named for another
+    host is kept however old it is and whatever its process number (that
+    process may be writing on the other host); one of this host whose writer
+    is gone and which is old is removed."""
+    from layers.results import _host
+
+    runs, _, _ = _archive_with_one_run(tmp_path)
+    dead = 2**22 + 12345  # above the usual pid_max: no such process here
+    other = runs / f".wall.another-host-{dead}.abcd.partial"
+    mine = runs / f".wall.{_host()}-{dead}.efgh.partial"
+    for path in (other, mine):
+        path.write_bytes(b"half a file")
+        os.utime(path, (time.time() - 86400, time.time() - 86400))
+    case = tmp_path / "again.toml"
+    case.write_text(SHORT)
+    assert main(["run", str(case), "--archive", str(runs), "--quiet"]) == 0
+    assert other.exists() and not mine.exists()
