@@ -152,6 +152,47 @@ def _fail(file: str, key: str, reason: str) -> None:
     raise CaseError(file, key, reason)
 
 
+#: Longest quantity text read (a number and a compound unit fit in far less).
+MAX_TEXT = 80
+_NUMBER = r"[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d{1,3})?"
+_QUANTITY = re.compile(rf"^\s*({_NUMBER})\s*(.*?)\s*$", re.S)
+#: A unit: names (letters, degree and micro signs, percent) joined by *, / and
+#: spaces, with parentheses, m2 / m3 / m² style powers and one-digit exponents.
+_UNIT = re.compile(r"^(?:[A-Za-z_°µ%Ω]+[23²³]?|[*/()\s]|(?:\*\*|\^)\s*-?[1-4])+$")
+
+
+def _shown(text: str) -> str:
+    """At most one line and about 80 characters of what the user wrote."""
+    line = text.splitlines()[0] if text.splitlines() else ""
+    line = line if len(line) <= MAX_TEXT else line[: MAX_TEXT - 3] + "..."
+    return repr(line) + (" (and more lines)" if len(text.splitlines()) > 1 else "")
+
+
+def checked_text(text: str, *, file: str, key: str, unit_only: bool = False) -> tuple[float, str]:
+    """A quantity (or, with ``unit_only``, a unit) as text that is safe to hand
+    to the units parser: a plain number, an optional exponent and a unit made
+    of names, products, quotients and small powers.  Anything else (operators
+    such as ``**`` between numbers, long text, control characters) is refused
+    here, so that no expression is ever evaluated.
+
+    Returns
+    -------
+    (float, str)
+        The number (1 with ``unit_only``) [-] and the unit text ('' for none).
+    """
+    if len(text) > MAX_TEXT:
+        _fail(file, key, f"{_shown(text)} is too long for a quantity ({len(text)} characters; a number and a unit fit in {MAX_TEXT})")
+    number, unit = 1.0, text.strip()
+    if not unit_only:
+        m = _QUANTITY.match(text)
+        if m is None:
+            _fail(file, key, f"cannot read {_shown(text)} as a number and a unit")
+        number, unit = float(m.group(1)), m.group(2)
+    if unit and unit != "1" and not _UNIT.match(unit):
+        _fail(file, key, f"cannot read {_shown(unit)} as a unit: write names such as 'mm', 'W/(m*K)' or 'degC', with powers like m2 or m**2")
+    return number, unit
+
+
 def parse_quantity(value: Any, kind: str, *, file: str = "<case>", key: str = "?") -> float:
     """Parse a number or a string with units into SI.
 
@@ -177,12 +218,12 @@ def parse_quantity(value: Any, kind: str, *, file: str = "<case>", key: str = "?
     if isinstance(value, (int, float)):
         number = float(value)
     elif isinstance(value, str):
-        text = value.strip()
-        try:
-            number = float(text)  # a bare number written as a string: SI
-        except ValueError:
+        magnitude, unit_text = checked_text(value, file=file, key=key)
+        if not unit_text:
+            number = magnitude  # a bare number written as a string: SI
+        else:
             try:
-                q = registry().Quantity(_as_intervals(text))
+                q = registry().Quantity(magnitude, _as_intervals(unit_text))
             except Exception as exc:  # pint raises several unrelated types
                 _fail(file, key, f"cannot read {value!r} as a quantity ({_why(exc)}); write a number and a unit like {shown}")
             if not isinstance(q, pint.Quantity) or (q.dimensionless and kind != "fraction" and str(q.units) == "dimensionless"):
@@ -217,8 +258,9 @@ def parse_temperature(value: Any, *, file: str = "<case>", key: str = "?") -> fl
     if isinstance(value, (int, float)):
         number = float(value)
     elif isinstance(value, str):
+        magnitude, unit_text = checked_text(value, file=file, key=key)
         try:
-            q = registry().Quantity(value.strip())
+            q = registry().Quantity(magnitude, unit_text) if unit_text else magnitude
         except Exception as exc:
             _fail(file, key, f"cannot read {value!r} as a temperature ({_why(exc)}); write e.g. '20 degC', '68 degF' or '293.15 K'")
         if not isinstance(q, pint.Quantity) or q.dimensionless:
@@ -267,6 +309,7 @@ def unit_factor(unit: str, kind: str, *, file: str, key: str) -> tuple[float, fl
     """
     import pint
 
+    checked_text(unit, file=file, key=key, unit_only=True)
     ureg = registry()
     try:
         if kind == "temperature":

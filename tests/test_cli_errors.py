@@ -72,7 +72,7 @@ def test_good_case_runs(tmp_path, capsys):
         (('air_temperature = "20 degC"', 'air_temperature = "20 m"'), "inside.air_temperature", "not a temperature"),
         (('air_temperature = "series:t_out"', 'air_temperature = "series:t_in"'), "outside.air_temperature", "no series named"),
         (('air_temperature = "series:t_out"', 'air_temperature = "Series:t_out"'), "outside.air_temperature", "lower case"),
-        (('air_temperature = "20 degC"', 'air_temperature = "warm"'), "inside.air_temperature", "unknown unit 'warm'"),
+        (('air_temperature = "20 degC"', 'air_temperature = "warm"'), "inside.air_temperature", "cannot read 'warm' as a number and a unit"),
         (('step = "1 h"', 'step = "1 h"\ninitial = "cold"'), "time.initial", "must be a temperature"),
         (('type = "film"\nair_temperature = "series:t_out"', 'type = "film"\nair_temperature = "series:t_out"\nfilm_coefficient = "auto"\nwind_speed = "-3 m/s"'),
          "outside.wind_speed", "plausible range"),

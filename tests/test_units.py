@@ -158,3 +158,43 @@ def test_units_ureg_is_the_one_registry():
     assert units.ureg is units.registry()
     with pytest.raises(AttributeError):
         units.no_such_name  # noqa: B018
+
+
+@pytest.mark.parametrize(
+    "text",
+    ["9**9**9 mm", "2*3 mm", "1e3**2 mm", "(1+1) m", "10 mm; import os", "1 m**99", "x" * 400, "nan mm"],
+)
+def test_quantities_are_parsed_without_evaluating_expressions(text):
+    """Only a number, an optional exponent and a unit are read; operators
+    between numbers, large powers and long text are refused at once (each
+    within a second: "9**9**9 mm" used to hang the parser), and the message
+    echoes at most about 80 characters."""
+    import time
+
+    from layers.errors import CaseError
+    from layers.units import parse_quantity
+
+    start = time.monotonic()
+    with pytest.raises(CaseError) as info:
+        parse_quantity(text, "length", file="c.toml", key="layers[1].thickness")
+    assert time.monotonic() - start < 1.0
+    assert len(str(info.value)) < 300 and "\n" not in str(info.value)
+
+
+@pytest.mark.parametrize(
+    "text,kind,si",
+    [
+        ("1e3 mm", "length", 1.0),  # was read as 1 e**3 mm (the m2-style power rule caught "e3")
+        ("2.5E-2 m", "length", 0.025),
+        ("0.035 W/(m*K)", "conductivity", 0.035),
+        ("5 W/(m^2*K)", "film_coefficient", 5.0),
+        ("1 m**2*K/W", "areal_resistance", 1.0),
+        ("1400 J/(kg*K)", "specific_heat", 1400.0),
+        ("0.25", "length", 0.25),
+    ],
+)
+def test_plain_quantities_still_read(text, kind, si):
+    """Ordinary quantities read as before; exponents in the number are numbers."""
+    from layers.units import parse_quantity
+
+    assert parse_quantity(text, kind) == pytest.approx(si, rel=1e-12)
