@@ -83,7 +83,7 @@ def check_report(case: Case) -> str:
     lines.append("")
     r_si, r_cond, r_se = design_resistance(case, mesh)
     total = r_si + r_cond + r_se
-    if case.geometry == "planar":
+    if case.geometry == "planar" and all(sp.kind in ("film", "temperature") for sp in (case.inside, case.outside)):
         lines.append(
             f"U-value:   {1.0 / total:.4g} W/(m2*K)   (Rsi {r_si:.3g} + R {r_cond:.4g} + Rse {r_se:.3g} = {total:.4g} m2K/W, ISO 6946)"
         )

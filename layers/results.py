@@ -125,10 +125,9 @@ def to_dataset(
     ds = xr.Dataset(data_vars=data_vars, coords=coords)
     # CF cell bounds: the faces of each cell, as the solver used them
     ds["x_bounds"] = (("x", "nv"), np.stack([mesh.x_lo, mesh.x_hi], axis=1), {"units": "m", "long_name": "faces of each cell (distance from the inside surface)"})
-    ds["layer_interface"] = (
-        "interface",
-        mesh.interfaces,
-        {"units": "m", "long_name": "distance of each layer face from the inside surface"},
+    ds = ds.assign_coords(
+        interface=("interface", np.arange(mesh.interfaces.size, dtype=np.int32), {"long_name": "layer face number (0 = inside surface)", "units": "1"}),
+        layer_interface=("interface", mesh.interfaces, {"units": "m", "long_name": "distance of each layer face from the inside surface"}),
     )
     ds.attrs = {
         "Conventions": "CF-1.10",

@@ -1,9 +1,11 @@
 """Insulation sizing: candidate thicknesses x criteria.
 
-Steady criteria (touch limit, dew point, heat-loss budget) use the vectorised
-steady state of :mod:`layers.steady` at the case's design conditions (the
-boundary values at its start time).  The freeze-time criterion runs the
-transient contents model (:mod:`layers.nonlinear`) once per candidate.
+Steady criteria (touch limit, dew point, heat-loss budget, the materials'
+maximum service temperatures) use the one steady solver of
+:mod:`layers.steady`, vectorised over the candidates, at the case's design
+conditions (``[sizing] design_time``, else the run's start; without sun and
+sky).  The freeze-time criterion runs the march (:mod:`layers.march`, with
+the contents) once per candidate.
 """
 
 from __future__ import annotations
