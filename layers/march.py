@@ -52,6 +52,7 @@ time), never for the whole run at once.
 
 from __future__ import annotations
 
+import functools
 import math
 import warnings
 from collections.abc import Callable
@@ -92,6 +93,19 @@ class Scheme:
     implicit: tuple[float, ...]
     energy: tuple[tuple[float, ...], ...]
     heat: tuple[tuple[float, ...], ...]
+
+    @functools.cached_property
+    def terms(self) -> tuple[tuple[tuple[tuple[int, float], ...], tuple[tuple[int, float], ...]], ...]:
+        """Per stage, the nonzero (j, e_ij) and (j, f_ij): the table without its zeros."""
+        return tuple(
+            (tuple((j, w) for j, w in enumerate(e) if w), tuple((j, w) for j, w in enumerate(f) if w))
+            for e, f in zip(self.energy, self.heat)
+        )
+
+    @functools.cached_property
+    def uses_start_heat(self) -> bool:
+        """Whether a stage needs the net heat F at the start of the step."""
+        return any(row and row[0] for row in self.heat)
 
 
 _W = (1.0 - GAMMA) / (2.0 - GAMMA)
@@ -148,7 +162,7 @@ class UnphysicalState(ArithmeticError):
 
 
 def _check_physical(state_temperature: np.ndarray, contents: float, time: float, q_in: float, q_out: float) -> None:
-    low, high = float(np.min(state_temperature)), float(np.max(state_temperature))
+    low, high = float(state_temperature.min()), float(state_temperature.max())
     if not math.isnan(contents):
         low, high = min(low, contents), max(high, contents)
     if not (low > ABSOLUTE_ZERO and high < HIGHEST_PHYSICAL):  # also catches NaN
@@ -426,10 +440,25 @@ class _Stepper:
                 break
         return c, surfaces
 
+    def _linear_stage(self, rhs, a, i, surfaces, h_w):
+        """A stage whose matrix depends on neither temperature nor time: (C + a K) T = R + a b,
+        one solve with the factor made once for this stage weight."""
+        temp = rhs  # only its size and the conduction matter for a fixed matrix
+        c = self.coefficients(temp, math.nan, surfaces, i)
+        b = rhs.copy()
+        b[0] += a * (c.inside.conductance * c.inside.t_ext + c.inside.q)
+        b[-1] += a * (c.outside.conductance * c.outside.t_ext + c.outside.q)
+        new_t = self._factor(a, c).solve(b)
+        q_in, q_out = self.boundary_heat(new_t, c)
+        self.max_iter = max(self.max_iter, 1)
+        return new_t, h_w, c, self.surfaces(new_t, c, q_in, q_out), q_in, q_out
+
     # -------------------------------------------------------------- one stage
     def stage(self, temp, h_w, rhs, rhs_w, a, i, surfaces):
         """Solve E(T) - a F(T) = R at forcing index ``i``; returns (T, H, coefficients, surfaces, q_in, q_out)."""
         water = self.s.water
+        if self.fixed_matrix and water is None:
+            return self._linear_stage(rhs, a, i, surfaces, h_w)
         cap = self.s.capacity
         tw = float(water.state(h_w)[0]) if water is not None else math.nan
         for iteration in range(1, MAX_ITERATIONS + 1):
@@ -541,7 +570,7 @@ class _State:
     enthalpy: float                    # of the contents [J per ref. unit] (0 without)
     coefficients: _Coefficients        # of the last solve
     surfaces: tuple[float, float]      # [degC]
-    net: np.ndarray                    # F(T) of the cells [W per ref. unit]
+    net: np.ndarray | None             # F(T) of the cells [W per ref. unit] (None where no stage needs it)
     net_contents: float                # F of the contents
     q_in: float                        # heat into the construction at each surface [W per ref. unit]
     q_out: float
@@ -563,7 +592,8 @@ class _Records:
         """Keep a state, with the boundary flows [W per ref. unit] the scheme took."""
         j, v, c, water = self.count, self.values, state.coefficients, self.system.water
         self.temperature[j] = state.temperature
-        self.faces[j] = self.system.mesh.interface_temperatures(state.temperature, c.k, c.g, q_in, q_out)
+        if not self.system.constant_k:  # else all at once in finish()
+            self.faces[j] = self.system.mesh.interface_temperatures(state.temperature, c.k, c.g, q_in, q_out)
         v["q_in"][j], v["q_out"][j] = q_in, q_out
         v["film_in"][j], v["film_out"][j] = c.inside.film, c.outside.film
         v["teq_in"][j], v["teq_out"][j] = c.inside.t_eq, c.outside.t_eq
@@ -573,6 +603,13 @@ class _Records:
             v["tw"][j], v["ice"][j] = float(t_w), float(ice)
         v["stored"][j] = self.system.stored_energy(state.temperature, state.enthalpy)
         self.count += 1
+
+    def finish(self) -> None:
+        """Layer-face temperatures of every kept state, in one pass where k is constant."""
+        system = self.system
+        if system.constant_k:
+            k, g, _ = system.conduction(self.temperature[0])
+            self.faces[:] = system.mesh.interface_temperatures(self.temperature, k, g, self.values["q_in"], self.values["q_out"])
 
 
 class _FreezeWatch:
@@ -607,14 +644,18 @@ class _FreezeWatch:
         self.before = old
 
 
-def _weighted(weights: tuple[float, ...], values: list) -> float | np.ndarray:
-    return sum(w * v for w, v in zip(weights, values) if w)
+def _combine(terms: tuple[tuple[int, float], ...], values: list):
+    """sum of w * values[j] over the (j, w) terms (0.0 for none)."""
+    out = 0.0
+    for j, w in terms:
+        out = out + (values[j] if w == 1.0 else w * values[j])
+    return out
 
 
 def _scheme_step(st: _Stepper, forcing: _Forcing, state: _State, previous: np.ndarray | None, k: int, h: float):
     """One step of the scheme's stage table; returns the last stage's result and the heat
     through each boundary over the step [J per ref. unit]."""
-    sch, cap = st.scheme, st.s.capacity
+    sch, cap, water = st.scheme, st.s.capacity, st.s.water
     energies, energies_w = [cap * state.temperature], [state.enthalpy]
     heats, heats_w = [state.net], [state.net_contents]
     tally_in, tally_out = [0.0], [0.0]
@@ -625,13 +666,17 @@ def _scheme_step(st: _Stepper, forcing: _Forcing, state: _State, previous: np.nd
         temp = temp + sch.stage_time[0] * (temp - previous)
     last = len(sch.stage_time) - 1
     for s, fraction in enumerate(sch.stage_time):
-        e, f, a = sch.energy[s], sch.heat[s], sch.implicit[s]
-        rhs = _weighted(e, energies) + h * _weighted(f, heats)
-        rhs_w = _weighted(e, energies_w) + h * _weighted(f, heats_w)
-        solved = st.stage(temp, enthalpy, rhs, rhs_w, a * h, forcing.index(k, fraction), surfaces)
+        e, f = sch.terms[s]
+        a = sch.implicit[s] * h
+        rhs = _combine(e, energies)
+        rhs_w = _combine(e, energies_w) if water is not None else 0.0
+        if f:
+            rhs = rhs + h * _combine(f, heats)
+            rhs_w = rhs_w + h * _combine(f, heats_w) if water is not None else 0.0
+        solved = st.stage(temp, enthalpy, rhs, rhs_w, a, forcing.index(k, fraction), surfaces)
         temp, enthalpy, c, surfaces, q_in, q_out = solved
-        tally_in.append(_weighted(e, tally_in) + h * _weighted(f, flux_in) + a * h * q_in)
-        tally_out.append(_weighted(e, tally_out) + h * _weighted(f, flux_out) + a * h * q_out)
+        tally_in.append(_combine(e, tally_in) + h * _combine(f, flux_in) + a * q_in)
+        tally_out.append(_combine(e, tally_out) + h * _combine(f, flux_out) + a * q_out)
         if s < last:
             net, net_w, _, _ = st.net_heat(temp, st.s.contents_temperature(enthalpy), c)
             energies.append(cap * temp)
@@ -656,7 +701,11 @@ def _smoothed_step(st: _Stepper, forcing: _Forcing, state: _State, k: int, h: fl
 
 
 def _settled_state(st: _Stepper, temp: np.ndarray, enthalpy: float, c: _Coefficients, surfaces) -> _State:
-    net, net_w, q_in, q_out = st.net_heat(temp, st.s.contents_temperature(enthalpy), c)
+    if st.scheme.uses_start_heat or st.s.water is not None:
+        net, net_w, q_in, q_out = st.net_heat(temp, st.s.contents_temperature(enthalpy), c)
+    else:  # backward Euler needs no net heat at the start of a step
+        net, net_w = None, 0.0
+        q_in, q_out = st.boundary_heat(temp, c)
     return _State(temp, enthalpy, c, surfaces, net, net_w, q_in, q_out)
 
 
@@ -724,7 +773,10 @@ def march(
         previous = state.temperature
         freeze.update(t0 + k * h, h, state.enthalpy, enthalpy)
         state = _settled_state(st, temp, enthalpy, c, surfaces)
-        _check_physical(temp, system.contents_temperature(enthalpy), t0 + (k + 1) * h, q_in, q_out)
+        if k % 64 == 63 or (k + 1) % output_every == 0 or k == n_steps - 1:
+            # a state outside physics stays outside it (NaN spreads, a runaway does not
+            # come back), so looking every 64 steps and at every kept state suffices
+            _check_physical(temp, system.contents_temperature(enthalpy), t0 + (k + 1) * h, q_in, q_out)
         if water is None:  # with contents, the water is part of the stored energy
             heat_in += e_in
             heat_abs += abs(e_in)
@@ -744,6 +796,7 @@ def march(
             ConvergenceWarning,
             stacklevel=2,
         )
+    records.finish()
     v = records.values
     initial_range = (float(np.min(initial)), float(np.max(initial)))
     return MarchResult(

@@ -265,22 +265,24 @@ class Mesh:
 
         Parameters
         ----------
-        temperature : (n,) cell temperatures [degC]
-        k : (n,) cell conductivities [W m-1 K-1]
-        conductances : (n-1,) between cell centres [W K-1 per reference unit]
-        q_in, q_out : float
+        temperature : (..., n) cell temperatures [degC]
+        k : (n,) or (..., n) cell conductivities [W m-1 K-1]
+        conductances : (n-1,) or (..., n-1) between cell centres [W K-1 per reference unit]
+        q_in, q_out : float or (...) array
             Heat into the construction through the inside and the outside
             surface [W per reference unit].
         """
         c = self.interface_cell
-        outward_flux = np.empty(self.n + 1)  # at each cell face, inside to outside
-        outward_flux[0] = q_in
-        outward_flux[1:-1] = conductances * (temperature[:-1] - temperature[1:])
-        outward_flux[-1] = -q_out
+        temperature = np.asarray(temperature, dtype=float)
+        lead = temperature.shape[:-1]
+        outward_flux = np.empty((*lead, self.n + 1))  # at each cell face, inside to outside
+        outward_flux[..., 0] = q_in
+        outward_flux[..., 1:-1] = conductances * (temperature[..., :-1] - temperature[..., 1:])
+        outward_flux[..., -1] = -np.asarray(q_out)
         hi = self.interface_outward
-        flux = np.where(hi, outward_flux[c + 1], outward_flux[c])
-        half = np.where(hi, self.shape_hi[c], self.shape_lo[c]) / k[c]
-        return temperature[c] - np.where(hi, 1.0, -1.0) * flux * (half + self.interface_offset)
+        flux = np.where(hi, outward_flux[..., c + 1], outward_flux[..., c])
+        half = np.where(hi, self.shape_hi[c], self.shape_lo[c]) / np.asarray(k)[..., c]
+        return temperature[..., c] - np.where(hi, 1.0, -1.0) * flux * (half + self.interface_offset)
 
     def steady_resistance(self) -> float:
         """Surface-to-surface resistance for constant conductivity [K W-1 per reference unit]."""
