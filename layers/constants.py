@@ -2,6 +2,8 @@
 
 #: 0 degC in kelvin [K] (the definition of the Celsius scale).
 ZERO_CELSIUS = 273.15
+#: Absolute zero in degrees Celsius [degC].
+ABSOLUTE_ZERO_CELSIUS = -ZERO_CELSIUS
 
 #: Stefan-Boltzmann constant [W m-2 K-4] (CODATA 2018; exact in the 2019 SI).
 STEFAN_BOLTZMANN = 5.670374419e-8

@@ -36,6 +36,11 @@ from types import MappingProxyType
 import numpy as np
 from numpy.typing import ArrayLike
 
+from layers.checks import choice as _choice
+from layers.checks import finite as _finite
+from layers.checks import non_negative as _non_negative
+from layers.checks import positive as _positive
+from layers.checks import temperature as _temperature
 from layers.constants import ZERO_CELSIUS
 
 __all__ = [
@@ -101,40 +106,7 @@ _CROSSFLOW_CYLINDERS = ("cylinder", "horizontal-cylinder", "vertical-cylinder")
 # ---------------------------------------------------------------------------
 
 
-def _finite(name: str, value: ArrayLike) -> np.ndarray:
-    array = np.asarray(value, dtype=float)
-    if np.any(np.isnan(array)):
-        raise ValueError(f"{name} contains NaN")
-    if np.any(np.isinf(array)):
-        raise ValueError(f"{name} must be finite")
-    return array
-
-
-def _positive(name: str, value: ArrayLike) -> np.ndarray:
-    array = _finite(name, value)
-    if np.any(array <= 0.0):
-        raise ValueError(f"{name} must be > 0, got {array.min():g}")
-    return array
-
-
-def _non_negative(name: str, value: ArrayLike) -> np.ndarray:
-    array = _finite(name, value)
-    if np.any(array < 0.0):
-        raise ValueError(f"{name} must be >= 0, got {array.min():g}")
-    return array
-
-
-def _temperature(name: str, value: ArrayLike) -> np.ndarray:
-    array = _finite(name, value)
-    if np.any(array <= -ZERO_CELSIUS):
-        raise ValueError(f"{name} must be above absolute zero (-273.15 degC)")
-    return array
-
-
-def _choice(name: str, value: str, allowed: tuple[str, ...]) -> str:
-    if value not in allowed:
-        raise ValueError(f"{name} must be one of {', '.join(allowed)}; got {value!r}")
-    return value
+# the argument checks are layers.checks (imported above under short names)
 
 
 # ---------------------------------------------------------------------------

@@ -60,6 +60,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from layers.constants import ABSOLUTE_ZERO_CELSIUS
 from layers.contents import WaterNode
 from layers.errors import ConvergenceWarning
 from layers.exchange import Exchange
@@ -139,7 +140,6 @@ CHUNK = 1024
 #: No construction material survives this temperature (above the melting point of
 #: steel and of refractory ceramics) [degC]; a state beyond it is a bad input.
 HIGHEST_PHYSICAL = 3000.0
-ABSOLUTE_ZERO = -273.15
 
 
 class UnphysicalState(ArithmeticError):
@@ -165,7 +165,7 @@ def _check_physical(state_temperature: np.ndarray, contents: float, time: float,
     low, high = float(state_temperature.min()), float(state_temperature.max())
     if not math.isnan(contents):
         low, high = min(low, contents), max(high, contents)
-    if not (low > ABSOLUTE_ZERO and high < HIGHEST_PHYSICAL):  # also catches NaN
+    if not (low > ABSOLUTE_ZERO_CELSIUS and high < HIGHEST_PHYSICAL):  # also catches NaN
         raise UnphysicalState(time, low, high, q_in, q_out)
 
 

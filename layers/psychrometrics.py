@@ -26,6 +26,7 @@ from __future__ import annotations
 import numpy as np
 from numpy.typing import ArrayLike
 
+import layers.checks as checks
 from layers.constants import ZERO_CELSIUS
 
 __all__ = [
@@ -41,15 +42,8 @@ _B_ICE, _C_ICE = 21.875, 265.5  # [-], [degC] over ice, theta < 0
 
 
 def _temperature_array(name: str, value: ArrayLike) -> np.ndarray:
-    """Return `value` as a float array; raise ValueError for NaN or <= 0 K."""
-    array = np.asarray(value, dtype=float)
-    if np.any(np.isnan(array)):
-        raise ValueError(f"{name} contains NaN")
-    if np.any(array <= -ZERO_CELSIUS):
-        raise ValueError(f"{name} must be above absolute zero (-273.15 degC)")
-    if np.any(np.isinf(array)):
-        raise ValueError(f"{name} must be finite")
-    return array
+    """Return `value` as a float array; raise ValueError for NaN, infinity or <= 0 K."""
+    return checks.temperature(name, value)
 
 
 def _relative_humidity_array(value: ArrayLike) -> np.ndarray:

@@ -18,6 +18,7 @@ from types import MappingProxyType
 import numpy as np
 from numpy.typing import ArrayLike
 
+import layers.checks as checks
 from layers.constants import ISO6946_REFERENCE_WIND_SPEED, STEFAN_BOLTZMANN, ZERO_CELSIUS
 from layers.convection import iso6946_external_convection, iso6946_internal_convection
 
@@ -34,28 +35,13 @@ __all__ = [
     "iso6946_external_surface_resistance",
 ]
 
-def _finite(name: str, value: ArrayLike) -> np.ndarray:
-    array = np.asarray(value, dtype=float)
-    if np.any(np.isnan(array)):
-        raise ValueError(f"{name} contains NaN")
-    if np.any(np.isinf(array)):
-        raise ValueError(f"{name} must be finite")
-    return array
-
-
 def _kelvin(name: str, value: ArrayLike) -> np.ndarray:
     """Temperature in degC -> K; raise ValueError for NaN, inf or <= 0 K."""
-    array = _finite(name, value)
-    if np.any(array <= -ZERO_CELSIUS):
-        raise ValueError(f"{name} must be above absolute zero (-273.15 degC)")
-    return array + ZERO_CELSIUS
+    return checks.temperature(name, value) + ZERO_CELSIUS
 
 
 def _emissivity(value: ArrayLike) -> np.ndarray:
-    array = _finite("emissivity", value)
-    if np.any((array < 0.0) | (array > 1.0)):
-        raise ValueError(f"emissivity must be within [0, 1], got {array.min():g} to {array.max():g}")
-    return array
+    return checks.within("emissivity", value, 0.0, 1.0)
 
 
 # ---------------------------------------------------------------------------
@@ -243,7 +229,7 @@ def sky_temperature_swinbank(air_temperature: ArrayLike) -> np.ndarray:
 
 
 def _tilt(tilt_deg: ArrayLike) -> np.ndarray:
-    tilt = _finite("tilt_deg", tilt_deg)
+    tilt = checks.finite("tilt_deg", tilt_deg)
     if np.any((tilt < 0.0) | (tilt > 180.0)):
         raise ValueError("tilt_deg must be within [0, 180] (0 = facing up, 90 = vertical)")
     return np.radians(tilt)

@@ -429,7 +429,7 @@ def periodic_report(case: Case, period: float) -> PeriodicReport:
 def periodic_dataset(case: Case, report: PeriodicReport) -> xr.Dataset:
     """What ``layers periodic -o`` writes: the characteristics with the case's provenance."""
     from layers.about import __version__
-    from layers.results import _now, cf_encoding
+    from layers.results import utc_now, cf_encoding
 
     ds = report.characteristics.to_dataset(title=case.title)
     ds.attrs.update({
@@ -437,7 +437,7 @@ def periodic_dataset(case: Case, report: PeriodicReport) -> xr.Dataset:
         "case": case.text,
         "case_sha256": case.sha256,
         "software_version": __version__,
-        "created": _now(),
+        "created": utc_now(),
         "geometry": case.geometry,
         "caution": CAUTION,
     })

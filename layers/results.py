@@ -136,12 +136,12 @@ def to_dataset(
         "label": case.label,
         "institution": "",
         "source": f"layers {__version__} finite-volume heat conduction",
-        "history": f"{_now()} layers run {Path(case.path).name}",
+        "history": f"{utc_now()} layers run {Path(case.path).name}",
         "case": case.text,
         "case_file": Path(case.path).name,
         "case_sha256": case.sha256,
         "software_version": __version__,
-        "created": _now(),
+        "created": utc_now(),
         "geometry": case.geometry,
         "reference_unit": case.reference_unit,
         "scheme": case.time.scheme,
@@ -171,7 +171,7 @@ def to_dataset(
         ds.attrs["case_path"] = str(Path(case.path).resolve())
     if case.provenance:
         ds.attrs.update(case.provenance)
-        ds.attrs["history"] = f"{_now()} layers run --again {Path(case.provenance['rerun_of']).name}"
+        ds.attrs["history"] = f"{utc_now()} layers run --again {Path(case.provenance['rerun_of']).name}"
     ds.attrs = {k: v for k, v in ds.attrs.items() if v != ""}
     # Headline results as attributes, so that `layers list` reads headers only.
     ds.attrs.update(headline_attributes(ds))
@@ -185,11 +185,12 @@ def cf_encoding(ds: xr.Dataset, history: str | None = None) -> xr.Dataset:
     for name in ds.coords:
         ds[name].encoding["_FillValue"] = None
     if history is not None or not ds.attrs.get("history"):
-        ds.attrs["history"] = f"{_now()} {history or 'layers'}"
+        ds.attrs["history"] = f"{utc_now()} {history or 'layers'}"
     return ds
 
 
-def _now() -> str:
+def utc_now() -> str:
+    """The present moment, UTC, ISO 8601 to the second (``created``, ``history``)."""
     return dt.datetime.now(dt.timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
 
 

@@ -61,6 +61,7 @@ from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
 import numpy as np
 
+from layers.constants import ABSOLUTE_ZERO_CELSIUS
 from layers.errors import CaseError, SeriesError
 from layers.units import KINDS, unit_factor
 
@@ -76,7 +77,7 @@ __all__ = [
 #: Plausible range of each kind after conversion: kind -> (low, high, unit shown).
 #: Values outside are refused; kinds not listed are not range-checked.
 RANGES: dict[str, tuple[float, float, str]] = {
-    "temperature": (-273.15, 2000.0, "degC"),
+    "temperature": (ABSOLUTE_ZERO_CELSIUS, 2000.0, "degC"),
     "irradiance": (0.0, 1500.0, "W/m2"),
     "fraction": (0.0, 1.0, "1"),
     "speed": (0.0, 100.0, "m/s"),

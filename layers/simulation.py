@@ -17,6 +17,7 @@ import xarray as xr
 
 from layers.case import Case
 from layers.errors import CaseError
+from layers.constants import ABSOLUTE_ZERO_CELSIUS
 from layers.contents import WaterNode
 from layers.exchange import exchanges, in_seconds
 from layers.march import TOLERANCE, MarchResult, System, UnphysicalState, march, periodic_start, resolve_scheme, settle
@@ -178,7 +179,7 @@ def unphysical_error(case: Case, system: System, exc: UnphysicalState) -> CaseEr
     when = np.datetime_as_string(case.datetimes(np.array([exc.time]))[0], unit="m") + "Z"
     if math.isnan(exc.low) or math.isnan(exc.high):
         what = "temperatures that are not numbers"
-    elif exc.low <= -273.15:
+    elif exc.low <= ABSOLUTE_ZERO_CELSIUS:
         what = f"{exc.low:.4g} degC, below absolute zero"
     else:
         what = f"{exc.high:.4g} degC, beyond what any construction material survives"

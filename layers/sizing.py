@@ -21,7 +21,7 @@ import xarray as xr
 from layers.about import CAUTION, __version__
 from layers.case import Case
 from layers.errors import CaseError
-from layers.results import HEAT_FLOW_UNITS, _now, cf_encoding
+from layers.results import HEAT_FLOW_UNITS, utc_now, cf_encoding
 from layers.steady import design_time, steady_state
 
 CAUTION_TOUCH = (
@@ -185,7 +185,7 @@ def size(case: Case, progress: Callable[[int, int], None] | None = None) -> xr.D
         "case": case.text,
         "case_sha256": case.sha256,
         "software_version": __version__,
-        "created": _now(),
+        "created": utc_now(),
         "geometry": case.geometry,
         "sized_layer": s.layer,
         "recommended_thickness": recommended,

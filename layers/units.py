@@ -18,6 +18,7 @@ import tempfile
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
+from layers.constants import ABSOLUTE_ZERO_CELSIUS
 from layers.errors import CaseError
 
 if TYPE_CHECKING:
@@ -275,7 +276,7 @@ def parse_temperature(value: Any, *, file: str = "<case>", key: str = "?") -> fl
         _fail(file, key, f"expected a temperature, got {type(value).__name__} {value!r}")
     if not math.isfinite(number):
         _fail(file, key, f"{value!r} is not a finite temperature")
-    if number < -273.15:
+    if number < ABSOLUTE_ZERO_CELSIUS:
         _fail(file, key, f"{value!r} is below absolute zero")
     return number
 
