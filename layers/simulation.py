@@ -100,11 +100,22 @@ def _starts_with_a_step(case: Case, system: System) -> float:
     return jump
 
 
-def run_march(
-    case: Case, mesh: Mesh, progress: Callable[[int, int], None] | None = None, system: System | None = None
-) -> tuple[MarchResult, int, System]:
-    """Initial state and march of a case: the march result, the periodic cycles used and the system marched."""
-    system = system or system_for(case, mesh)
+def run_march(case: Case, mesh: Mesh, progress: Callable[[int, int], None] | None = None) -> tuple[MarchResult, int, System]:
+    """Initial state and march of a case: the march result, the periodic cycles used and the system marched.
+
+    Raises
+    ------
+    CaseError
+        When the state leaves the physical range, naming the boundary that drives it.
+    """
+    system = system_for(case, mesh)
+    try:
+        return _run_march(case, mesh, system, progress)
+    except UnphysicalState as exc:
+        raise unphysical_error(case, system, exc) from None
+
+
+def _run_march(case: Case, mesh: Mesh, system: System, progress) -> tuple[MarchResult, int, System]:
     initial, cycles = initial_state(case, mesh, system)
     plan = case.time
     step_size = _starts_with_a_step(case, system)
@@ -114,7 +125,7 @@ def run_march(
             "backward-Euler half steps but still rings wherever a boundary changes abruptly; "
             "tr-bdf2 (the default) damps it",
             UserWarning,
-            stacklevel=3,
+            stacklevel=4,
         )
     total = plan.n_steps
     callback = (lambda done: progress(done, total)) if progress else None
@@ -214,11 +225,7 @@ def simulate(case: Case, progress: Callable[[int, int], None] | None = None) -> 
         Variables and attributes as the product contract lists them.
     """
     mesh = case.mesh()
-    system = system_for(case, mesh)
-    try:
-        res, cycles, system = run_march(case, mesh, progress, system)
-    except UnphysicalState as exc:
-        raise unphysical_error(case, system, exc) from None
+    res, cycles, system = run_march(case, mesh, progress)
     _warn_outside_range(case, system, res)
     overheated = _warn_service_temperature(case, mesh, res)
     seconds = res.time

@@ -69,16 +69,10 @@ class FreezeTimes(NamedTuple):
 
 def freeze_times(case: Case, thickness: float, progress: Callable[[int, int], None] | None = None) -> FreezeTimes:
     """Time to 0 degC and time to ``max_ice_fraction`` [s] for one candidate (NaN: not within the run)."""
-    from layers.march import UnphysicalState
-    from layers.simulation import run_march, system_for, unphysical_error
+    from layers.simulation import run_march
 
     trial = with_thickness(case, case.sizing.layer, thickness)
-    mesh = trial.mesh()
-    system = system_for(trial, mesh)
-    try:
-        result, _, _ = run_march(trial, mesh, progress, system)
-    except UnphysicalState as exc:
-        raise unphysical_error(trial, system, exc) from None
+    result, _, _ = run_march(trial, trial.mesh(), progress)
     return FreezeTimes(result.time_to_freezing, result.time_to_ice_fraction)
 
 
