@@ -23,7 +23,7 @@ import numpy as np
 from layers.errors import CaseError
 from layers.materials import Material, material_from_table, resolve
 from layers.mesh import GEOMETRIES, LayerSpec, Mesh, MeshRule, build_mesh
-from layers.series import RANGES, ColumnSpec, Forcing, Series, daily_cycle, read_series
+from layers.series import RANGES, Clock, ColumnSpec, Forcing, Series, daily_cycle, read_series
 from layers.units import parse_quantity, parse_temperature
 
 BOUNDARY_TYPES = ("film", "temperature", "flux", "adiabatic", "contents")
@@ -761,27 +761,9 @@ def _parse_datetime(value: Any, file: str, key: str, timezone: str) -> np.dateti
     else:
         raise CaseError(file, key, f"expected an ISO 8601 date and time, got {value!r}")
     if stamp.tzinfo is None:
-        stamp = stamp.replace(tzinfo=_tzinfo(timezone, file))
+        return Clock(timezone, file=file, key="series.timezone").localize(stamp, (file, key))
     utc = stamp.astimezone(dt.timezone.utc).replace(tzinfo=None)
-    return np.datetime64(utc.isoformat(timespec="seconds"), "s")
-
-
-def _tzinfo(name: str, file: str) -> dt.tzinfo:
-    if name in ("UTC", "Z", "utc"):
-        return dt.timezone.utc
-    if name[:1] in "+-":
-        try:
-            hours, minutes = name[1:].split(":")
-            delta = dt.timedelta(hours=int(hours), minutes=int(minutes))
-        except ValueError:
-            raise CaseError(file, "series.timezone", f"cannot read offset {name!r} (use +HH:MM)") from None
-        return dt.timezone(delta if name[0] == "+" else -delta)
-    from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
-
-    try:
-        return ZoneInfo(name)
-    except (ZoneInfoNotFoundError, ValueError):
-        raise CaseError(file, "series.timezone", f"unknown time zone {name!r}") from None
+    return Clock("UTC", file=file, key=key).localize(utc, (file, key))
 
 
 def _parse_time(t: _Table, series: Series | None, timezone: str) -> TimePlan:

@@ -48,6 +48,7 @@ netCDF
 from __future__ import annotations
 
 import csv
+import functools
 import hashlib
 import io
 import math
@@ -92,6 +93,7 @@ _ISO = re.compile(
 )
 _OFFSET = re.compile(r"(?:UTC|GMT)?\s*([+-])(\d{1,2})(?::?(\d{2}))?$")
 _EPOCH = datetime(1970, 1, 1)
+_NUMBER = re.compile(r"\s*[+-]?\d+(?:\.\d*)?(?:[eE][+-]?\d+)?\s*")
 _EPOCH64 = np.datetime64("1970-01-01T00:00:00", "s")
 
 
@@ -183,8 +185,39 @@ def _show(value: float) -> str:
     return f"{value:.6g}"
 
 
-class _Clock:
-    """How naive local times become UTC: a fixed offset or an IANA zone."""
+#: Years a time axis may span: datetime64[ns] holds 1678 to 2261; no weather or
+#: process record of a construction falls outside this narrower range.
+YEARS = (1800, 2200)
+_YEAR_SECONDS = (
+    int((datetime(YEARS[0], 1, 1) - datetime(1970, 1, 1)).total_seconds()),
+    int((datetime(YEARS[1] + 1, 1, 1) - datetime(1970, 1, 1)).total_seconds()),
+)
+
+
+def check_years(seconds: np.ndarray, where: Callable[[int], tuple[str, str]]) -> None:
+    """Refuse times outside :data:`YEARS` [s since 1970, UTC]."""
+    outside = np.flatnonzero((seconds < _YEAR_SECONDS[0]) | (seconds >= _YEAR_SECONDS[1]))
+    if outside.size:
+        i = int(outside[0])
+        stamp = np.datetime_as_string(np.datetime64(int(seconds[i]), "s"), unit="m")
+        raise SeriesError(*where(i), f"{stamp} is outside the years {YEARS[0]} to {YEARS[1]} that a time axis holds")
+
+
+@functools.cache
+def _zone_names() -> frozenset[str]:
+    """The IANA zone names this machine knows."""
+    from zoneinfo import available_timezones
+
+    return frozenset(available_timezones())
+
+
+class Clock:
+    """How naive local times become UTC: a fixed offset or an IANA zone.
+
+    One reader of time-zone names for the case and its series: ``UTC`` (or
+    ``Z``, ``GMT``), a fixed offset ``+HH:MM`` up to 18 h, or an IANA zone
+    name (``Europe/Berlin``); nothing else (``localtime`` is not a zone).
+    """
 
     def __init__(self, text: str, *, file: str, key: str) -> None:
         self.text = text
@@ -202,6 +235,8 @@ class _Clock:
             self.offset = off if sign == "+" else -off
             return
         try:
+            if name in ("localtime", "posixrules", "Factory") or name not in _zone_names():
+                raise ZoneInfoNotFoundError(name)
             self.zone = ZoneInfo(name)
         except (ZoneInfoNotFoundError, ValueError):
             raise SeriesError(
@@ -222,6 +257,13 @@ class _Clock:
     def _zone_offset(self, local_seconds: int, fold: int) -> int:
         wall = (_EPOCH + timedelta(seconds=int(local_seconds))).replace(tzinfo=self.zone, fold=fold)
         return int(wall.utcoffset().total_seconds())
+
+    def localize(self, stamp: datetime, where: tuple[str, str]) -> np.datetime64:
+        """A naive local date-time as UTC (seconds)."""
+        local = np.array([int((stamp - _EPOCH).total_seconds())], dtype=np.int64)
+        utc = self.to_utc(local, lambda i: where)
+        check_years(utc, lambda i: where)
+        return np.datetime64(int(utc[0]), "s")
 
     def to_utc(self, local: np.ndarray, where: Callable[[int], tuple[str, str]]) -> np.ndarray:
         """Naive local times [s since 1970 on the wall clock] -> UTC [s since 1970].
@@ -288,8 +330,20 @@ class _Raw:
     column: Callable[[str], str]  # name -> "column T_out" / "variable T_out"
 
 
-def _parse_times(texts: list[str], clock: _Clock, where: Callable[[int], tuple[str, str]]) -> np.ndarray:
-    """ISO 8601 strings -> UTC seconds since 1970 (int64)."""
+def _parse_times(texts: list[str], clock: Clock, where: Callable[[int], tuple[str, str]]) -> np.ndarray:
+    """ISO 8601 strings -> UTC seconds since 1970 (int64), within :data:`YEARS`."""
+    seconds = _iso_seconds(texts, clock, where)
+    check_years(seconds, where)
+    return seconds
+
+
+def _iso_seconds(texts: list[str], clock: Clock, where: Callable[[int], tuple[str, str]]) -> np.ndarray:
+    if texts and all(_NUMBER.fullmatch(t) for t in texts[:3]):
+        raise SeriesError(
+            *where(0),
+            f"{texts[0]!r} is a number, not a time; if the column holds seconds since 1970 (Unix time), "
+            "write them as ISO 8601 times (e.g. 2026-07-01T13:00Z) or in a netCDF file with CF time units",
+        )
     if texts and min(map(len, texts)) >= 10:
         # fast path: numpy reads naive ISO 8601 itself; it warns on (and we
         # then take the slow path for) offsets, and gives NaT for empty cells
@@ -318,6 +372,8 @@ def _parse_times(texts: list[str], clock: _Clock, where: Callable[[int], tuple[s
             naive[i] = True
         elif zone != "Z":
             hours, minutes = int(zone[1:3]), int(zone[-2:]) if len(zone) > 3 else 0
+            if hours > 18 or minutes >= 60:
+                raise SeriesError(*where(i), f"offset {zone!r} of {text!r} is out of range (use +HH:MM up to 18 h)")
             offsets[i] = (hours * 3600 + minutes * 60) * (1 if zone[0] == "+" else -1)
     try:
         stamps = np.array(bases, dtype="datetime64[ms]")
@@ -370,7 +426,7 @@ def _sniff_delimiter(header: str) -> str:
     return best if counts[best] else ","
 
 
-def _read_csv(data: bytes, file: str, time: str, columns: list[str], clock: _Clock) -> _Raw:
+def _read_csv(data: bytes, file: str, time: str, columns: list[str], clock: Clock) -> _Raw:
     try:
         text = data.decode("utf-8-sig")
     except UnicodeDecodeError:
@@ -461,7 +517,7 @@ def _check_declared_unit(declared: object, spec: ColumnSpec, factor: tuple[float
         )
 
 
-def _read_netcdf(path: Path, file: str, time: str, specs: Sequence[ColumnSpec], factors: dict[str, tuple[float, float]], clock: _Clock, case_file: str) -> _Raw:
+def _read_netcdf(path: Path, file: str, time: str, specs: Sequence[ColumnSpec], factors: dict[str, tuple[float, float]], clock: Clock, case_file: str) -> _Raw:
     import xarray as xr
 
     if not clock.is_utc:
@@ -494,6 +550,7 @@ def _read_netcdf(path: Path, file: str, time: str, specs: Sequence[ColumnSpec], 
             raise SeriesError(file, f"{time}[{bad[0]}], variable {time}", "missing time (NaT)")
         ms = stamps.astype("datetime64[ms]").astype(np.int64)
         seconds = (ms + 500) // 1000
+        check_years(seconds, lambda i: (file, f"{time}[{i}], variable {time}"))
         raw: dict[str, np.ndarray] = {}
         for spec in specs:
             if spec.column in raw:
@@ -701,7 +758,7 @@ def read_series(
     """
     path = Path(path)
     file = str(path)
-    clock = _Clock(timezone, file=case_file, key="series.timezone")
+    clock = Clock(timezone, file=case_file, key="series.timezone")
     for key, value in (("series.fill_gaps", fill_gaps), ("series.max_interval", max_interval)):
         if value is not None and not (math.isfinite(value) and value > 0):
             raise SeriesError(case_file, key, f"must be a positive duration, got {value!r} s")
@@ -786,7 +843,7 @@ def daily_cycle(
             raise SeriesError("<case>", "series.cycles", f"{label} must be a finite number, got {number!r}")
     if period <= 0:
         raise SeriesError("<case>", "series.cycles", f"period must be positive, got {period!r} s")
-    offset = _Clock(timezone, file="<case>", key="series.timezone").standard_offset()
+    offset = Clock(timezone, file="<case>", key="series.timezone").standard_offset()
     mean, amplitude, period = float(mean), float(amplitude), float(period)
     peak = float(peak_hour) * 3600.0
 

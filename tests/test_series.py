@@ -554,3 +554,46 @@ def test_daily_cycle_with_period_and_clock():
     # an IANA zone is used at its standard offset (CET, UTC+1) all year: no jump in summer
     berlin = daily_cycle(24.0, 7.0, 15, timezone="Europe/Berlin")
     assert berlin(np.array([utc("2026-07-01T14:00")]))[0] == 31.0
+
+
+@pytest.mark.parametrize(
+    "start,words",
+    [
+        ("1500-01-01T00:00", "outside the years 1800 to 2200"),  # was archived as 2084 (ns time stamps wrap)
+        ("2250-06-01T00:00", "outside the years 1800 to 2200"),
+        ("2026-01-01T00:00+99:99", "cannot read"),
+    ],
+)
+def test_case_times_outside_the_time_axis_are_refused(tmp_path, start, words):
+    """A start the time axis cannot hold, or an impossible offset, is a clear refusal (exit 2)."""
+    from layers.cli import main
+
+    case = tmp_path / "c.toml"
+    case.write_text(
+        '[[layers]]\nmaterial = "brick"\nthickness = "200 mm"\n[inside]\ntype = "temperature"\n'
+        'surface_temperature = "20 degC"\n[outside]\ntype = "temperature"\nsurface_temperature = "0 degC"\n'
+        f'[time]\nstart = "{start}"\nduration = "1 h"\nstep = "1 h"\n'
+    )
+    assert main(["check", str(case)]) == 2
+
+
+def test_epoch_seconds_in_a_time_column_get_a_hint(tmp_path):
+    """Unix time in a CSV time column (was read as a year) is refused with a hint."""
+    path = write(tmp_path, "time,T_out\n1767225600,5\n1767229200,6\n")
+    err = refused(path)
+    assert "seconds since 1970" in str(err)
+
+
+def test_out_of_range_offsets_and_non_zone_names_are_refused(tmp_path):
+    """An ISO offset of +99:99 in a row, and 'localtime' as a zone, are refused."""
+    path = write(tmp_path, "time,T_out\n2026-01-01T00:00+99:99,5\n2026-01-01T01:00+99:99,6\n")
+    assert "out of range" in str(refused(path))
+    good = write(tmp_path, "time,T_out\n2026-01-01T00:00,5\n2026-01-01T01:00,6\n", name="good.csv")
+    assert "unknown time zone" in str(refused(good, timezone="localtime"))
+    for ok in ("UTC", "+01:00", "Europe/Berlin"):
+        read_series(good, [T_OUT], timezone=ok)
+
+
+def test_series_years_outside_the_axis_are_refused(tmp_path):
+    path = write(tmp_path, "time,T_out\n1500-01-01T00:00,5\n1500-01-01T01:00,6\n")
+    assert "outside the years" in str(refused(path))
