@@ -702,7 +702,7 @@ def _parse_boundary(value: Any, side: str, geometry: str, ctx: _ForcingContext, 
         if jacket is not None:
             from layers.radiation import JACKET_EMISSIVITY
 
-            if jacket not in JACKET_EMISSIVITY:
+            if not isinstance(jacket, str) or jacket not in JACKET_EMISSIVITY:
                 raise t.error("jacket", f"unknown jacket {jacket!r}; use one of {', '.join(JACKET_EMISSIVITY)}")
             args["jacket"] = str(jacket)
         if not args.get("auto_film"):

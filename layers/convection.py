@@ -81,7 +81,8 @@ atmosphere; equals R*/M with M = 28.9644 kg/kmol of the US Standard Atmosphere
 
 _MOLAR_MASS_AIR = 28.9644e-3  # [kg mol-1] US Standard Atmosphere 1976, sea level
 _DELTA_T_FLOOR = 1e-9  # [K] keeps |dT| > 0 so that no ratio ever becomes 0/0
-_AIR_T_MIN, _AIR_T_MAX = -100.0, 1000.0  # [degC] range of the property fits used
+AIR_PROPERTY_RANGE = (-100.0, 1000.0)  # [degC] range of the property fits used
+_AIR_T_MIN, _AIR_T_MAX = AIR_PROPERTY_RANGE
 
 FREE_CONVECTION_SHAPES = (
     "horizontal-cylinder",

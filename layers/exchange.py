@@ -57,6 +57,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from layers.constants import ISO6946_REFERENCE_WIND_SPEED, ZERO_CELSIUS
+from layers.errors import CaseError
 
 if TYPE_CHECKING:
     from layers.case import BoundarySpec, Case
@@ -259,16 +260,32 @@ class Exchange:
         return np.asarray(iso6946_external_convection(wind), dtype=float)
 
     def body_convection(self, t_surface, t_air, diameter, wind) -> np.ndarray:
-        """The body correlation of :func:`layers.convection.body_convection_coefficient` [W m-2 K-1]."""
-        from layers.convection import body_convection_coefficient
+        """The body correlation of :func:`layers.convection.body_convection_coefficient` [W m-2 K-1].
 
-        return np.asarray(
-            body_convection_coefficient(
-                self.geometry, t_surface, t_air, diameter, wind,
-                orientation=self.case.orientation, height=self.case.height,
-            ),
-            dtype=float,
-        )
+        Raises
+        ------
+        CaseError
+            Where the air or the surface leaves the range of the air-property
+            fits the correlations use (:data:`layers.convection.AIR_PROPERTY_RANGE`).
+        """
+        from layers.convection import AIR_PROPERTY_RANGE, body_convection_coefficient
+
+        try:
+            return np.asarray(
+                body_convection_coefficient(
+                    self.geometry, t_surface, t_air, diameter, wind,
+                    orientation=self.case.orientation, height=self.case.height,
+                ),
+                dtype=float,
+            )
+        except ValueError:
+            low, high = AIR_PROPERTY_RANGE
+            span = f"air {np.min(t_air):.4g} to {np.max(t_air):.4g} degC, surface {np.min(t_surface):.4g} to {np.max(t_surface):.4g} degC"
+            raise CaseError(
+                self.case.path, f"{self.side}.film_coefficient",
+                f"an auto film needs air and surface temperatures from {low:g} to {high:g} degC (the range of its "
+                f"convection correlations), here {span}; give a fixed film_coefficient",
+            ) from None
 
     def _auto(self, forcing, ts, diameter) -> SurfaceFilm:
         from layers.radiation import linearised_radiation_kelvin
@@ -293,6 +310,14 @@ class Exchange:
         """Tabulate the body convection once for a run (pipes and vessels with
         constant wind), so that the march interpolates instead of evaluating
         the correlation at every iteration; see :class:`_ConvectionTable`."""
+        from layers.convection import AIR_PROPERTY_RANGE
+
+        if self.auto and self.geometry != "planar" and (np.min(air) < AIR_PROPERTY_RANGE[0] or np.max(air) > AIR_PROPERTY_RANGE[1]):
+            raise CaseError(
+                self.case.path, f"{self.side}.air_temperature",
+                f"reaches {np.min(air):.4g} to {np.max(air):.4g} degC; an auto film on a pipe or vessel needs air from "
+                f"{AIR_PROPERTY_RANGE[0]:g} to {AIR_PROPERTY_RANGE[1]:g} degC (its convection correlations); give a fixed film_coefficient",
+            )
         if self.auto and self.geometry != "planar" and np.ptp(wind) == 0:
             self._table = _ConvectionTable(self, float(np.min(air)), float(np.max(air)), float(wind.flat[0]), diameter)
 

@@ -276,8 +276,8 @@ def parse_temperature(value: Any, *, file: str = "<case>", key: str = "?") -> fl
         _fail(file, key, f"expected a temperature, got {type(value).__name__} {value!r}")
     if not math.isfinite(number):
         _fail(file, key, f"{value!r} is not a finite temperature")
-    if number < ABSOLUTE_ZERO_CELSIUS:
-        _fail(file, key, f"{value!r} is below absolute zero")
+    if number <= ABSOLUTE_ZERO_CELSIUS:
+        _fail(file, key, f"{value!r} is at or below absolute zero")
     return number
 
 

@@ -1,0 +1,63 @@
+"""Inputs that used to crash (exit 3) are refused with one line and exit 2, writing nothing."""
+
+from __future__ import annotations
+
+import pytest
+
+from layers.cli import main
+
+PIPE = """
+[geometry]
+kind = "cylinder"
+inner_radius = "50 mm"
+[[layers]]
+material = "mineral-wool"
+thickness = "50 mm"
+[inside]
+type = "temperature"
+surface_temperature = "{inside}"
+[outside]
+type = "film"
+air_temperature = "{air}"
+film_coefficient = "auto"
+{extra}
+[time]
+duration = "2 h"
+step = "10 min"
+"""
+
+
+@pytest.mark.parametrize(
+    "inside,air,extra,key",
+    [
+        ("100 degC", "0 K", "", "outside.air_temperature"),  # radiation to 0 K
+        ("100 degC", "-150 degC", "", "outside.air_temperature"),  # below the air-property fits
+        ("100 degC", "20 degC", 'jacket = ["x"]', "outside.jacket"),  # a list where a name belongs
+    ],
+)
+def test_auto_films_outside_their_range_are_refused(tmp_path, capsys, inside, air, extra, key):
+    case = tmp_path / "pipe.toml"
+    case.write_text(PIPE.format(inside=inside, air=air, extra=extra))
+    runs = tmp_path / "runs"
+    assert main(["run", str(case), "--archive", str(runs), "--quiet"]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and key in err, err
+    assert not runs.exists() or not any(runs.iterdir())
+
+
+def test_a_surface_beyond_the_correlations_is_a_case_error():
+    """Where a pipe's surface leaves the air-property range during a run, the
+    correlation's ValueError becomes a CaseError naming the film (exit 2)."""
+    import tomllib
+
+    import numpy as np
+
+    from layers.case import parse_case
+    from layers.errors import CaseError
+    from layers.exchange import exchanges
+
+    text = PIPE.format(inside="100 degC", air="20 degC", extra="")
+    case = parse_case(tomllib.loads(text), text=text)
+    _, outside = exchanges(case)
+    with pytest.raises(CaseError, match="outside.film_coefficient"):
+        outside.body_convection(np.array([2500.0]), np.array([20.0]), 0.2, np.array([0.0]))
