@@ -50,10 +50,11 @@ class _Progress:
 def cmd_run(args: argparse.Namespace) -> int:
     from layers.case import load_case
     from layers.report import run_cautions, run_summary
-    from layers.results import archive, refuse_existing, write_output
+    from layers.results import archive, archive_dir, refuse_existing, usable_folder, write_output
     from layers.simulation import simulate
 
     refuse_existing(args.out)
+    usable_folder(archive_dir(args.archive), make=False)
     if args.again and args.case:
         raise CaseError("(command line)", "--again", f"give a case file or --again RUN.nc, not both (got {args.case})")
     if args.again:
@@ -97,10 +98,11 @@ def cmd_size(args: argparse.Namespace) -> int:
     import math
 
     from layers.case import load_case
-    from layers.results import archive, refuse_existing, write_output
+    from layers.results import archive, archive_dir, refuse_existing, usable_folder, write_output
     from layers.sizing import cautions, criteria_table, size
 
     refuse_existing(args.out)
+    usable_folder(archive_dir(args.archive), make=False)
     case = load_case(args.case)
     if case.sizing is None:
         raise CaseError(case.path, "sizing", "is required by 'layers size' (add a [sizing] table)")

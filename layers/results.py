@@ -327,6 +327,7 @@ def archive(ds: xr.Dataset, stem: str, folder: str | os.PathLike | None = None) 
         The file written.
     """
     folder = archive_dir(folder)
+    usable_folder(folder)
     stamp = dt.datetime.now(dt.timezone.utc).strftime("%Y%m%dT%H%M%SZ")
     for n in range(1, 10000):
         suffix = "" if n == 1 else f"-{n}"
@@ -335,4 +336,23 @@ def archive(ds: xr.Dataset, stem: str, folder: str | os.PathLike | None = None) 
             return write_new(ds, candidate)
         except FileExistsError:
             continue
-    raise FileExistsError(f"no free archive name for {stem} in {folder}")
+        except OSError as exc:
+            raise CaseError(str(folder), "--archive", f"cannot write the run there ({exc.strerror or exc})") from None
+    raise CaseError(str(folder), "--archive", f"no free name for {stem}-{stamp} after 9999 tries")
+
+
+def usable_folder(folder: Path, make: bool = True) -> None:
+    """Refuse an archive folder that is a file or cannot be made (key ``--archive``);
+    with ``make`` false, only look (before a run, so that a bad folder costs no work)."""
+    folder = Path(folder)
+    for part in (folder, *folder.parents):
+        if part.exists():
+            if not part.is_dir():
+                raise CaseError(str(folder), "--archive", f"{'is' if part == folder else f'lies under {part}, which is'} a file, not a folder")
+            break
+    if not make:
+        return
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise CaseError(str(folder), "--archive", f"cannot make the folder ({exc.strerror or exc})") from None

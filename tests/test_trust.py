@@ -61,3 +61,30 @@ def test_a_surface_beyond_the_correlations_is_a_case_error():
     _, outside = exchanges(case)
     with pytest.raises(CaseError, match="outside.film_coefficient"):
         outside.body_convection(np.array([2500.0]), np.array([20.0]), 0.2, np.array([0.0]))
+
+
+OK = """
+[[layers]]
+material = "brick"
+thickness = "200 mm"
+[inside]
+type = "temperature"
+surface_temperature = "20 degC"
+[outside]
+type = "temperature"
+surface_temperature = "0 degC"
+[time]
+duration = "2 h"
+step = "1 h"
+"""
+
+
+@pytest.mark.parametrize("archive", ["afile", "afile/sub"])
+def test_an_archive_that_is_a_file_is_refused_before_any_work(tmp_path, capsys, archive):
+    """--archive naming a file (or a folder under one) used to loop through 9999
+    names and crash; now it is refused at once with exit 2."""
+    (tmp_path / "afile").write_text("not a folder")
+    case = tmp_path / "ok.toml"
+    case.write_text(OK)
+    assert main(["run", str(case), "--archive", str(tmp_path / archive), "--quiet"]) == 2
+    assert "--archive" in capsys.readouterr().err
