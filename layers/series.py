@@ -427,6 +427,8 @@ def _sniff_delimiter(header: str) -> str:
 
 
 def _read_csv(data: bytes, file: str, time: str, columns: list[str], clock: Clock) -> _Raw:
+    if data[:2] in (b"\xff\xfe", b"\xfe\xff") or data[:4000].count(b"\x00") > len(data[:4000]) // 8:
+        raise SeriesError(file, "(file)", "is UTF-16 (or another wide encoding); save it as UTF-8 text (in a spreadsheet: CSV UTF-8)")
     try:
         text = data.decode("utf-8-sig")
     except UnicodeDecodeError:

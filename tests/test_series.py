@@ -597,3 +597,12 @@ def test_out_of_range_offsets_and_non_zone_names_are_refused(tmp_path):
 def test_series_years_outside_the_axis_are_refused(tmp_path):
     path = write(tmp_path, "time,T_out\n1500-01-01T00:00,5\n1500-01-01T01:00,6\n")
     assert "outside the years" in str(refused(path))
+
+
+def test_a_utf16_csv_gets_a_hint_to_save_as_utf8(tmp_path):
+    """A spreadsheet's 'Unicode text' export (UTF-16 with a byte-order mark) is refused
+    with a hint instead of a header full of NUL characters."""
+    path = tmp_path / "wide.csv"
+    path.write_bytes("time,T_out\n2026-07-01T00:00,5\n2026-07-01T01:00,6\n".encode("utf-16"))
+    err = refused(path)
+    assert "UTF-8" in str(err) and "\\x00" not in str(err)
