@@ -88,3 +88,33 @@ def test_an_archive_that_is_a_file_is_refused_before_any_work(tmp_path, capsys, 
     case.write_text(OK)
     assert main(["run", str(case), "--archive", str(tmp_path / archive), "--quiet"]) == 2
     assert "--archive" in capsys.readouterr().err
+
+
+def test_several_processes_writing_to_one_archive_lose_nothing(tmp_path):
+    """Four runs of the same case started together into one archive (same stem,
+    same second: their names collide) all land, each under its own name,
+    complete and readable; no partial file is left."""
+    import subprocess
+    import sys
+
+    import xarray as xr
+
+    from layers.catalogue import list_runs
+
+    case = tmp_path / "same.toml"
+    case.write_text(OK)
+    runs = tmp_path / "runs"
+    procs = [
+        subprocess.Popen([sys.executable, "-m", "layers.cli", "run", str(case), "--archive", str(runs), "--quiet"],
+                         stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+        for _ in range(4)
+    ]
+    for p in procs:
+        _, err = p.communicate(timeout=120)
+        assert p.returncode == 0, err
+    files = sorted(runs.glob("*.nc"))
+    assert len(files) == 4 and not list(runs.glob(".*.partial"))
+    for f in files:
+        with xr.open_dataset(f) as ds:
+            assert ds["temperature"].shape[0] == 3
+    assert len(list_runs(runs)) == 4
