@@ -1,0 +1,217 @@
+"""Fuzzing the command line with mutated case files ("Trust").
+
+Every mutated case must end in one of two ways: exit 0 with a physically sound
+archived dataset (finite temperatures above absolute zero, a time axis that
+starts where the case says), or a clean refusal (exit 1/2, one stderr line
+``layers: ...``, no file left in the archive). Never exit 3, a traceback, a
+hang or a half-written archive. See tests/fuzz_cases.py for the mutations and
+the judge, and docs/fuzz-findings.md for what the campaign found.
+
+* The default suite runs a small fixed sample: the known defect classes, the
+  unmutated small cases (a check of the harness) and a seeded handful of
+  mutations, in two parallel subprocesses, in well under a minute.
+* The campaign is much larger (every demo case, both ``check`` and ``run`` for
+  every mutation, a 20 s limit). It is marked ``slow`` and runs only when
+  asked for, because the project's ``slow`` tests are otherwise part of the
+  default suite:
+
+      python -m pytest -q -m slow tests/test_fuzz.py
+      (or LAYERS_FUZZ_CAMPAIGN=1 python -m pytest -q tests/test_fuzz.py)
+
+Examples that fail today carry ``xfail(strict=True)`` with their class; once a
+defect is fixed the example passes, the strict mark turns that into a failure,
+and the mark is to be removed.
+"""
+
+from __future__ import annotations
+
+import os
+from pathlib import Path
+
+import pytest
+
+import fuzz_cases as fc
+
+# --------------------------------------------------------------------------
+# The default sample
+
+DEFAULT_TIMEOUT = 10.0  # seconds per command ("never longer than a few seconds")
+CAMPAIGN_TIMEOUT = 20.0
+SAMPLE_SEED, SAMPLE_SIZE = 11, 12
+CAMPAIGN_SEED, CAMPAIGN_SIZE = 1, 300
+
+#: Known-defect reproductions run by default (the others run in the campaign).
+DEFAULT_KNOWN = {
+    "flux-extraction-insulated", "cycle-below-0K", "layer-1e-300-mm", "first-cell-1e-300-m",
+    "first-cell-1e-300-m-graded", "units-9**9**9", "year-at-10-ms", "start-year-1500", "offset-99:99",
+    "series-timezone-99:99", "series-epoch-seconds", "start-localtime", "auto-film-5000-degC", "auto-film-0-K",
+    "pipe-radius-1e300-m", "jacket-list", "series-time-key-int", "archive-is-a-file", "archive-read-only",
+    "list-corrupt-cache", "compare-all-nan", "again-bit-flipped", "series-utf16", "long-material-name",
+    "long-series-cell",
+}
+
+#: What fails today, by case id: "<class>: <one line>". Filled from the
+#: observed outcomes; each entry becomes a strict xfail.
+FAILING_TODAY: dict[str, str] = {
+    # default sample (observed at commit 56c2ba3)
+    'known:start-year-1500': 'UNSOUND: exit 0 and archived time[0] is 2084-07-20T23:34:33.709552 but the case starts at 1500-01-01T00:00:00 UTC',
+    'known:auto-film-5000-degC': "CRASH: exit 3: 'layers: internal error: ValueError: air property fits hold from -100 to 1000 degC; got 2507.5 to 2507.5 degC'",
+    'known:auto-film-0-K': "CRASH: exit 3: 'layers: internal error: ValueError: air_temperature must be above absolute zero (-273.15 degC)'",
+    'known:pipe-radius-1e300-m': "CRASH: exit 3: 'layers: internal error: ValueError: rayleigh must be finite'",
+    'known:jacket-list': 'CRASH: exit 3: "layers: internal error: TypeError: unhashable type: \'list\'"',
+    'known:series-time-key-int': 'CRASH: exit 3: "layers: internal error: AttributeError: \'int\' object has no attribute \'lower\'"',
+    'known:archive-is-a-file': "CRASH: exit 3: 'layers: internal error: FileExistsError: no free archive name for case in not-a-folder...",
+    'known:compare-all-nan': "CRASH: exit 3: 'layers: internal error: ValueError: All-NaN slice encountered'",
+    'known:series-utf16': 'BAD-MESSAGE: no hint \'UTF-8\': "layers: weather.csv: row 1, column time: no time column \'time\'; the columns are: \'ÿþt\\\\x00i\\\\x00m\\\\...',
+    'known:long-material-name': 'BAD-MESSAGE: echoes more than 80 characters of the input: "layers: case.toml: layers[1].material: unknown material \'xxxxxxxxxxxxxx...',
+    # campaign only (observed at commit 56c2ba3)
+    'known:start-year-9999': 'UNSOUND: exit 0 and archived time[0] is 1816-03-29T05:56:08.066277 but the case starts at 9999-12-31T00:00:00 UTC',
+    'known:auto-film-planar-0-K': "CRASH: exit 3: 'layers: internal error: ValueError: temperature must be above absolute zero (-273.15 degC)'",
+    's1-0117:custom_outside.type_111111111111111111111111111111111111111': 'BAD-MESSAGE: echoes more than 80 characters of the input: "layers: case.toml: outside.type: unknown boundary type \'111111111111111...',
+    's1-0126:freeze_time.end_2262-04-12T00:00_': "HANG: no answer within the time limit; stderr: ''",
+    's1-0140:pipe_time.initial_1e+300': "CRASH: exit 3: 'layers: internal error: ValueError: air property fits hold from -100 to 1000 degC; got 5e+299 to 5e+299 degC'",
+    's1-0178:freeze_outside.type_20_degC_': 'BAD-MESSAGE: echoes more than 80 characters of the input: "layers: case.toml: outside.type: unknown boundary type \'20 degC        ...',
+    's1-0202:demo:year-masonry-outside_series.columns.rh.unit_9_9_9_mm_': "HANG: no answer within the time limit; stderr: ''",
+    's1-0230:freeze_time.initial_xxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxx': 'BAD-MESSAGE: echoes more than 80 characters of the input: \'layers: case.toml: time.initial: must be a temperature, "steady" or "pe...',
+    's1-0257:pipe_time.initial_1e300_degC_': "CRASH: exit 3: 'layers: internal error: ValueError: air property fits hold from -100 to 1000 degC; got 5e+299 to 5e+299 degC'",
+    's1-0286:custom_time.start_1500-01-01T00:00_': 'UNSOUND: exit 0 and archived time[0] is 2084-07-20T23:34:33.709552 but the case starts at 1500-01-01T00:00:00 UTC',
+}
+
+
+def _strip_known(name: str) -> str:
+    return name.removeprefix("known:")
+
+
+def default_sample() -> list[fc.FuzzCase]:
+    cases = []
+    for case in fc.known_cases():
+        if _strip_known(case.name) in DEFAULT_KNOWN:
+            if case.commands == ("check", "run"):
+                case.commands = ("run",)  # the run validates as check does; the campaign runs both
+            cases.append(case)
+    cases += [c for c in fc.base_cases() if not c.name.startswith("base:demo:")]
+    cases += fc.campaign(SAMPLE_SEED, SAMPLE_SIZE)
+    return cases
+
+
+def campaign_cases() -> list[fc.FuzzCase]:
+    return fc.base_cases() + fc.known_cases() + fc.campaign(CAMPAIGN_SEED, CAMPAIGN_SIZE)
+
+
+def _params(cases: list[fc.FuzzCase]) -> list:
+    out = []
+    for case in cases:
+        marks = []
+        if case.id in FAILING_TODAY:
+            marks.append(pytest.mark.xfail(strict=True, reason=FAILING_TODAY[case.id]))
+        if case.name == "known:archive-read-only" and hasattr(os, "geteuid") and os.geteuid() == 0:
+            marks = [pytest.mark.skip(reason="root writes into a read-only folder")]
+        out.append(pytest.param(case, id=case.id, marks=marks))
+    return out
+
+
+class _Lazy:
+    """Runs a whole list of cases in parallel the first time one outcome is asked for."""
+
+    def __init__(self, cases, timeout: float) -> None:
+        self.cases, self.timeout, self.outcomes = cases, timeout, None
+
+    def __call__(self, case: fc.FuzzCase, root: Path) -> fc.Outcome:
+        if self.outcomes is None:
+            workers = int(os.environ.get("LAYERS_FUZZ_WORKERS", "2"))
+            self.outcomes = fc.run_many(self.cases, root, self.timeout, workers=workers)
+        return self.outcomes[case.id]
+
+
+DEFAULT_CASES = default_sample()
+
+
+@pytest.fixture(scope="module")
+def default_outcomes(tmp_path_factory):
+    lazy = _Lazy(DEFAULT_CASES, DEFAULT_TIMEOUT)
+    root = tmp_path_factory.mktemp("fuzz-default")
+    return lambda case: lazy(case, root)
+
+
+def _assert_trustworthy(outcome: fc.Outcome, case: fc.FuzzCase) -> None:
+    assert outcome.verdict in ("sound", "refused"), (
+        f"{outcome.verdict.upper()} in `layers {outcome.command}` after {outcome.seconds:.1f} s: {outcome.detail}\n"
+        f"mutation: {case.description or case.name}\n--- case ---\n{case.text[:1500]}"
+    )
+
+
+@pytest.mark.parametrize("case", _params(DEFAULT_CASES))
+def test_fuzz_sample(case, default_outcomes):
+    _assert_trustworthy(default_outcomes(case), case)
+
+
+def test_unmutated_bases_run_soundly(default_outcomes):
+    """The harness itself: every small base case runs to a sound dataset (so a
+    refusal of a mutation is the mutation's doing)."""
+    for case in DEFAULT_CASES:
+        if case.name.startswith("base:"):
+            outcome = default_outcomes(case)
+            assert outcome.verdict == "sound", f"{case.name}: {outcome.detail}"
+
+
+# --------------------------------------------------------------------------
+# The judge itself: these must be able to fail
+
+
+def test_judge_flags_unsound_and_bad_messages(tmp_path):
+    import numpy as np
+    import xarray as xr
+
+    case = fc.FuzzCase("judge", '[time]\nstart = "2026-01-01T00:00"\n', injected=("y" * 200,))
+    good = xr.Dataset({"temperature": (("time", "x"), np.array([[20.0, 10.0], [19.0, 9.0]]), {"units": "degC"})},
+                      coords={"time": ("time", [0.0, 3600.0], {"units": "seconds since 2026-01-01T00:00:00"})})
+    good.to_netcdf(tmp_path / "good.nc")
+    assert fc.classify(0, "", [tmp_path / "good.nc"], case, True)[0] == "sound"
+    cold = good.copy(deep=True)
+    cold["temperature"].values[1, 1] = -300.0
+    cold.to_netcdf(tmp_path / "cold.nc")
+    assert fc.classify(0, "", [tmp_path / "cold.nc"], case, True)[0] == "unsound"
+    shifted = good.assign_coords(time=("time", [0.0, 3600.0], {"units": "seconds since 2084-07-20T00:00:00"}))
+    shifted.to_netcdf(tmp_path / "shifted.nc")
+    assert fc.classify(0, "", [tmp_path / "shifted.nc"], case, True)[0] == "unsound"
+    assert fc.classify(2, "layers: case.toml: time.step: bad\n", [tmp_path / "good.nc"], case, False)[0] == "unsound"
+    assert fc.classify(2, "layers: case.toml: time.step: bad\n", [], case, False)[0] == "refused"
+    assert fc.classify(2, "layers: a\nlayers: b\n", [], case, False)[0] == "bad-message"
+    assert fc.classify(2, f"layers: case.toml: k: '{'y' * 90}'\n", [], case, False)[0] == "bad-message"
+    assert fc.classify(3, "layers: internal error: X\n", [], case, False)[0] == "crash"
+    assert fc.classify(2, "Traceback (most recent call last):\n", [], case, False)[0] == "crash"
+    assert fc.classify(None, "", [], case, False)[0] == "hang"
+    assert fc.classify(0, "layers: warning: divide by zero encountered in divide\n", [tmp_path / "good.nc"], case, True)[0] == "bad-message"
+
+
+def test_mutations_are_seeded_and_varied():
+    a, b = fc.campaign(5, 40), fc.campaign(5, 40)
+    assert [c.text for c in a] == [c.text for c in b] and [c.files for c in a] == [c.files for c in b]
+    assert len({c.description.split(" ")[0] for c in a}) > 10
+    assert any(c.text != base.text for c in a for base in fc.base_cases()[:1])
+
+
+# --------------------------------------------------------------------------
+# The campaign (slow; only when asked for)
+
+
+def _campaign_requested(config) -> bool:
+    return "slow" in (config.getoption("markexpr") or "").replace("not slow", "") or bool(os.environ.get("LAYERS_FUZZ_CAMPAIGN"))
+
+
+@pytest.fixture(scope="module")
+def campaign_outcomes(request, tmp_path_factory):
+    if not _campaign_requested(request.config):
+        pytest.skip("the fuzz campaign runs with `python -m pytest -q -m slow tests/test_fuzz.py`")
+    lazy = _Lazy(CAMPAIGN_CASES, CAMPAIGN_TIMEOUT)
+    root = tmp_path_factory.mktemp("fuzz-campaign")
+    return lambda case: lazy(case, root)
+
+
+CAMPAIGN_CASES = campaign_cases()
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("case", _params(CAMPAIGN_CASES))
+def test_fuzz_campaign(case, campaign_outcomes):
+    _assert_trustworthy(campaign_outcomes(case), case)
