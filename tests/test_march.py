@@ -365,3 +365,64 @@ def test_a_plan_beyond_any_sensible_run_is_refused_before_work(tmp_path, step, o
     start = time.monotonic()
     assert main(["check", str(case)]) == 2
     assert time.monotonic() - start < 5.0
+
+
+CONSTANT_K = ["brick", "concrete", "eps", "gypsum-plaster", "softwood", "steel", "calcium-silicate"]
+
+
+@st.composite
+def film_walls(draw, cycle: bool = False):
+    n = draw(st.integers(1, 3))
+    layers = "".join(
+        f'[[layers]]\nmaterial = "{draw(st.sampled_from(CONSTANT_K))}"\nthickness = "{draw(st.floats(10, 200)):.1f} mm"\n'
+        for _ in range(n)
+    )
+    t_in, t_out = draw(st.floats(-10, 60)), draw(st.floats(-30, 40))
+    h_in, h_out = draw(st.floats(2, 30)), draw(st.floats(2, 50))
+    outside = f'"{t_out:.2f} degC"' if not cycle else '"series:c"'
+    text = (
+        layers
+        + f'[inside]\ntype = "film"\nair_temperature = "{t_in:.2f} degC"\nfilm_coefficient = "{h_in:.2f} W/(m2*K)"\n'
+        + f'[outside]\ntype = "film"\nair_temperature = {outside}\nfilm_coefficient = "{h_out:.2f} W/(m2*K)"\n'
+    )
+    if cycle:
+        text += f'[series.cycles.c]\nmean = "{t_out:.2f} degC"\namplitude = "{draw(st.floats(1, 12)):.2f} K"\n'
+    return text
+
+
+@settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(film_walls(), st.floats(-20, 60))
+def test_the_steady_limit_of_a_run_is_the_steady_solver(text, t0):
+    """From any uniform start, a long backward-Euler run under constant
+    boundaries ends in the steady state of the one steady solver: the heat
+    flow through both surfaces matches it to 1e-6 relative.  The slowest
+    case drawn, 0.6 m of softwood (alpha about 1.3e-7 m2/s), has its slowest
+    mode decay by 1/(1 + lambda h) = 1/1.31 per day-step, so after 60 steps
+    about 1e-7 of the initial transient is left."""
+    from layers.steady import steady_state
+
+    case = _case(text + f'[time]\nduration = "60 d"\nstep = "1 d"\ninitial = "{t0:.2f} degC"\nscheme = "backward-euler"\n')
+    ds = simulate(case)
+    system = system_for(case, case.mesh())
+    q = float(steady_state(case, forcing=(system.inside.forcing(np.zeros(1)), system.outside.forcing(np.zeros(1)))).heat_flow[0])
+    scale = max(abs(q), 1e-3)
+    assert abs(float(ds["heat_flow_inside"][-1]) - q) < 1e-6 * scale
+    assert abs(float(ds["heat_flow_outside"][-1]) - q) < 1e-6 * scale
+
+
+@settings(max_examples=15, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(film_walls(cycle=True), st.sampled_from(["tr-bdf2", "crank-nicolson", "backward-euler"]))
+def test_halving_the_step_moves_the_result_toward_the_refined_one(text, scheme):
+    """Under a daily cycle, the surface heat flows after two days at steps of
+    2 h, 1 h and 30 min approach a 5-minute run of the same scheme
+    monotonically: each halving lowers the largest difference (the steps are
+    in each scheme's asymptotic range, omega h <= 0.52)."""
+    def run(step):
+        return simulate(_case(text + f'[time]\nduration = "2 d"\nstep = "{step}"\noutput_every = "2 h"\ninitial = "periodic"\nscheme = "{scheme}"\n'))
+
+    ref = run("5 min")
+    errors = []
+    for step in ("2 h", "1 h", "30 min"):
+        ds = run(step)
+        errors.append(max(float(np.max(np.abs(ds[v].values - ref[v].values))) for v in ("heat_flow_inside", "heat_flow_outside")))
+    assert errors[0] > errors[1] > errors[2] or errors[0] < 1e-9, errors
