@@ -286,6 +286,8 @@ def parse_case(
         inner_radius = parse_quantity(value, "length", file=file, key=geo.key("inner_radius"))
         if inner_radius <= 0:
             raise geo.error("inner_radius", "must be positive")
+        if inner_radius > MAX_LAYER_THICKNESS:
+            raise geo.error("inner_radius", f"{inner_radius:g} m is implausible for a pipe or vessel (bare numbers are metres)")
     elif geo.has("inner_radius"):
         raise geo.error("inner_radius", "applies to cylinder and sphere geometry only")
     pipe_orientation = geo.get("orientation", "horizontal")
@@ -451,7 +453,8 @@ def _parse_layers(items: Any, materials: dict[str, Material], file: str) -> tupl
         if thickness > MAX_LAYER_THICKNESS:
             raise t.error(
                 "thickness",
-                f"{thickness:g} m is implausible for one layer (bare numbers are metres; did you mean \"{t.data['thickness']} mm\"?)",
+                f"{thickness:g} m is implausible for one layer"
+                + (f" (bare numbers are metres; did you mean \"{t.data['thickness']} mm\"?)" if isinstance(t.data["thickness"], (int, float)) else ""),
             )
         contact = 0.0
         if t.has("contact_resistance"):
@@ -557,6 +560,8 @@ def _parse_series(value: Any, file: str, base_dir: Path, series_dir: Path | None
         max_interval = t.get("max_interval")
         max_s = _positive(max_interval, "duration", t, "max_interval") if max_interval is not None else None
         time_col = t.get("time", "time")
+        if not isinstance(time_col, str):
+            raise t.error("time", f"must be the name of the time column, got {time_col!r}")
         embed = t.get("embed_series", False)
         if not isinstance(embed, bool):
             raise t.error("embed_series", "must be true or false")

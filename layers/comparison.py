@@ -65,6 +65,9 @@ def load_run(path: str | os.PathLike) -> xr.Dataset:
         raise CaseError(str(path), "(file)", problem)
     if "temperature" not in ds or "x" not in ds.dims:
         raise CaseError(str(path), "(file)", "not a layers run: no 'temperature' profile")
+    for name in ("temperature", "surface_temperature_outside", "heat_flow_inside"):
+        if name in ds and not np.isfinite(ds[name].values).any():
+            raise CaseError(str(path), name, "holds no finite value (a damaged or foreign file); it cannot be compared or plotted")
     return ds
 
 

@@ -7,6 +7,18 @@ exits with status 2.
 
 from __future__ import annotations
 
+import re
+
+#: At most this many characters of what the user wrote are echoed in a message.
+ECHO = 80
+_QUOTED = re.compile(r"""('[^'\n]{%d,}'|"[^"\n]{%d,}")""" % (ECHO, ECHO))
+
+
+def _clip(text: str) -> str:
+    """One line, with any quoted piece of input longer than :data:`ECHO` cut short."""
+    text = " ".join(str(text).split("\n"))
+    return _QUOTED.sub(lambda m: m.group(0)[: ECHO - 4] + "..." + m.group(0)[0], text)
+
 
 class CaseError(ValueError):
     """Bad input in a case file or a file it refers to.
@@ -23,8 +35,9 @@ class CaseError(ValueError):
 
     def __init__(self, file: str, key: str, reason: str) -> None:
         self.file = str(file)
-        self.key = key
-        self.reason = reason
+        self.key = _clip(key)
+        self.reason = _clip(reason)
+        key, reason = self.key, self.reason
         super().__init__(f"{self.file}: {key}: {reason}")
 
 

@@ -53,28 +53,9 @@ DEFAULT_KNOWN = {
 #: What fails today, by case id: "<class>: <one line>". Filled from the
 #: observed outcomes; each entry becomes a strict xfail.
 FAILING_TODAY: dict[str, str] = {
-    # default sample (observed at commit 56c2ba3)
-    'known:start-year-1500': 'UNSOUND: exit 0 and archived time[0] is 2084-07-20T23:34:33.709552 but the case starts at 1500-01-01T00:00:00 UTC',
-    'known:auto-film-5000-degC': "CRASH: exit 3: 'layers: internal error: ValueError: air property fits hold from -100 to 1000 degC; got 2507.5 to 2507.5 degC'",
-    'known:auto-film-0-K': "CRASH: exit 3: 'layers: internal error: ValueError: air_temperature must be above absolute zero (-273.15 degC)'",
-    'known:pipe-radius-1e300-m': "CRASH: exit 3: 'layers: internal error: ValueError: rayleigh must be finite'",
-    'known:jacket-list': 'CRASH: exit 3: "layers: internal error: TypeError: unhashable type: \'list\'"',
-    'known:series-time-key-int': 'CRASH: exit 3: "layers: internal error: AttributeError: \'int\' object has no attribute \'lower\'"',
-    'known:archive-is-a-file': "CRASH: exit 3: 'layers: internal error: FileExistsError: no free archive name for case in not-a-folder...",
-    'known:compare-all-nan': "CRASH: exit 3: 'layers: internal error: ValueError: All-NaN slice encountered'",
-    'known:series-utf16': 'BAD-MESSAGE: no hint \'UTF-8\': "layers: weather.csv: row 1, column time: no time column \'time\'; the columns are: \'ÿþt\\\\x00i\\\\x00m\\\\...',
-    'known:long-material-name': 'BAD-MESSAGE: echoes more than 80 characters of the input: "layers: case.toml: layers[1].material: unknown material \'xxxxxxxxxxxxxx...',
-    # campaign only (observed at commit 56c2ba3)
-    'known:start-year-9999': 'UNSOUND: exit 0 and archived time[0] is 1816-03-29T05:56:08.066277 but the case starts at 9999-12-31T00:00:00 UTC',
-    'known:auto-film-planar-0-K': "CRASH: exit 3: 'layers: internal error: ValueError: temperature must be above absolute zero (-273.15 degC)'",
-    's1-0117:custom_outside.type_111111111111111111111111111111111111111': 'BAD-MESSAGE: echoes more than 80 characters of the input: "layers: case.toml: outside.type: unknown boundary type \'111111111111111...',
-    's1-0126:freeze_time.end_2262-04-12T00:00_': "HANG: no answer within the time limit; stderr: ''",
-    's1-0140:pipe_time.initial_1e+300': "CRASH: exit 3: 'layers: internal error: ValueError: air property fits hold from -100 to 1000 degC; got 5e+299 to 5e+299 degC'",
-    's1-0178:freeze_outside.type_20_degC_': 'BAD-MESSAGE: echoes more than 80 characters of the input: "layers: case.toml: outside.type: unknown boundary type \'20 degC        ...',
-    's1-0202:demo:year-masonry-outside_series.columns.rh.unit_9_9_9_mm_': "HANG: no answer within the time limit; stderr: ''",
-    's1-0230:freeze_time.initial_xxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxx': 'BAD-MESSAGE: echoes more than 80 characters of the input: \'layers: case.toml: time.initial: must be a temperature, "steady" or "pe...',
-    's1-0257:pipe_time.initial_1e300_degC_': "CRASH: exit 3: 'layers: internal error: ValueError: air property fits hold from -100 to 1000 degC; got 5e+299 to 5e+299 degC'",
-    's1-0286:custom_time.start_1500-01-01T00:00_': 'UNSOUND: exit 0 and archived time[0] is 2084-07-20T23:34:33.709552 but the case starts at 1500-01-01T00:00:00 UTC',
+    # case id -> the defect it shows today (a strict xfail: when the defect is
+    # fixed the test fails until the entry is removed).  Every entry found at
+    # 56c2ba3 (docs/fuzz-findings.md) has been fixed since.
 }
 
 
