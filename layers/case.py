@@ -20,6 +20,7 @@ from typing import Any
 
 import numpy as np
 
+from layers.constants import ISO6946_RSE, ISO6946_RSI_HORIZONTAL
 from layers.errors import CaseError
 from layers.materials import Material, material_from_table, resolve
 from layers.mesh import GEOMETRIES, LayerSpec, Mesh, MeshRule, build_mesh
@@ -28,9 +29,6 @@ from layers.units import parse_quantity, parse_temperature
 
 BOUNDARY_TYPES = ("film", "temperature", "flux", "adiabatic", "contents")
 INITIAL_WORDS = ("steady", "periodic")
-#: ISO 6946:2017 Table 7 conventional surface resistances [m2 K W-1] (horizontal heat flow).
-ISO6946_RSI_HORIZONTAL = 0.13
-ISO6946_RSE = 0.04
 DEFAULT_START = "2026-01-01T00:00"
 #: Film keys that describe the surface exchange and only matter when it is computed.
 PIPE_ORIENTATIONS = ("horizontal", "vertical")
@@ -549,6 +547,9 @@ def _parse_series(value: Any, file: str, base_dir: Path, series_dir: Path | None
             unit = c.get("unit", required=True)
             if not isinstance(unit, str):
                 raise c.error("unit", "must be a unit string such as 'degC' or 'W/m2'")
+            from layers.units import checked_text
+
+            checked_text(unit, file=file, key=c.key("unit"), unit_only=True)
             kind = _column_kind(unit)
             if kind == "unknown":
                 raise c.error("unit", f"unit {unit!r} is not a temperature, irradiance, speed or fraction")

@@ -11,7 +11,7 @@ import re
 
 #: At most this many characters of what the user wrote are echoed in a message.
 ECHO = 80
-_QUOTED = re.compile(r"""('[^'\n]{%d,}'|"[^"\n]{%d,}")""" % (ECHO, ECHO))
+_QUOTED = re.compile(r"""(?<![\w'"])('[^'\n]{%d,}'|"[^"\n]{%d,}")(?![\w])""" % (ECHO, ECHO))
 
 
 def _clip(text: str) -> str:

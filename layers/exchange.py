@@ -56,7 +56,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from layers.constants import ISO6946_REFERENCE_WIND_SPEED, ZERO_CELSIUS
+from layers.constants import ISO6946_REFERENCE_WIND_SPEED, ISO6946_RSE, ZERO_CELSIUS
 from layers.errors import CaseError
 
 if TYPE_CHECKING:
@@ -194,16 +194,20 @@ class Exchange:
         return out
 
     def drive_temperature(self, forcing: dict[str, np.ndarray]) -> np.ndarray:
-        """A temperature [degC] (or, for a flux, W m-2 divided by 10 W m-2 K-1) that
-        follows what drives this boundary; the march looks for jumps in it."""
+        """The temperature [degC] that drives this boundary: the sol-air temperature
+        of a film (an auto film's sun taken over the conventional R_se), a held
+        surface's temperature, the contents' temperature; for a flux, the rise it
+        gives across R_se.  The march looks for jumps in it and compares a start
+        with it.  R_se = 0.04 m2 K W-1, ISO 6946:2017 (from memory)."""
         if self.kind == "film":
-            if self.auto:
-                return forcing["air"] + forcing["solar"] / 25.0
-            return forcing["air"] + forcing["solar"] * self.spec.surface_resistance
+            rs = ISO6946_RSE if self.auto else self.spec.surface_resistance
+            return forcing["air"] + forcing["solar"] * rs
         if self.kind == "temperature":
             return forcing["surface"]
+        if self.kind == "contents":
+            return forcing["contents"]
         if self.kind == "flux":
-            return forcing["flux"] / 10.0
+            return forcing["flux"] * ISO6946_RSE
         return np.zeros(1)
 
     # ------------------------------------------------------------------ #

@@ -60,7 +60,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from layers.constants import ABSOLUTE_ZERO_CELSIUS
+from layers.constants import ABSOLUTE_ZERO_CELSIUS, HIGHEST_PHYSICAL_TEMPERATURE
 from layers.contents import WaterNode
 from layers.errors import ConvergenceWarning
 from layers.exchange import Exchange
@@ -94,6 +94,9 @@ class Scheme:
     implicit: tuple[float, ...]
     energy: tuple[tuple[float, ...], ...]
     heat: tuple[tuple[float, ...], ...]
+    #: Smallest jump in a boundary's drive that is smoothed [K]; None: never (an
+    #: L-stable one-stage scheme needs no smoothing).
+    jump: float | None = None
 
     @functools.cached_property
     def terms(self) -> tuple[tuple[tuple[tuple[int, float], ...], tuple[tuple[int, float], ...]], ...]:
@@ -112,12 +115,18 @@ class Scheme:
 _W = (1.0 - GAMMA) / (2.0 - GAMMA)
 _D = GAMMA * (2.0 - GAMMA)
 SCHEMES: dict[str, Scheme] = {
-    "backward-euler": Scheme("backward-euler", 1, (1.0,), (1.0,), ((1.0,),), ((0.0,),)),
-    "crank-nicolson": Scheme("crank-nicolson", 2, (1.0,), (0.5,), ((1.0,),), ((0.5,),)),
+    "backward-euler": Scheme("backward-euler", 1, (1.0,), (1.0,), ((1.0,),), ((0.0,),), jump=None),
+    # Crank-Nicolson rings at about 60 % of an unsmoothed jump (281 degC after a
+    # 170 K step in the step case): every jump above 1 K is smoothed
+    "crank-nicolson": Scheme("crank-nicolson", 2, (1.0,), (0.5,), ((1.0,),), ((0.5,),), jump=1.0),
+    # TR-BDF2 is L-stable; its trapezoidal stage overshoots by about 0.3 % of a
+    # jump (180.5 degC after the 170 K step): smoothing from 30 K keeps that
+    # below the 0.1 K overshoot warning, and leaves ordinary weather unsmoothed
     "tr-bdf2": Scheme(
         "tr-bdf2", 2, (GAMMA, 1.0), (0.5 * GAMMA, _W),
         ((1.0,), (-((1.0 - GAMMA) ** 2) / _D, 1.0 / _D)),
         ((0.5 * GAMMA,), (0.0, 0.0)),
+        jump=30.0,
     ),
 }
 #: What ``scheme = "auto"`` (the default) means until the exact path exists.
@@ -129,22 +138,19 @@ TOLERANCE = 1e-6
 MAX_ITERATIONS = 50
 #: Refactorise when a matrix entry moved by more than this, relative [-].
 REFACTOR_TOLERANCE = 1e-4
-#: A step over which a boundary's drive changes by more than JUMP [K] and by
-#: more than JUMP_RATIO times its change over either neighbouring step is a
-#: jump; it and the next step are smoothed (our choice: a sampled smooth
-#: cycle changes by about as much from one step to the next, a jump does not).
-JUMP = 1.0
+#: A step over which a boundary's drive changes by more than the scheme's
+#: ``jump`` [K] and by more than JUMP_RATIO times its change over either
+#: neighbouring step is a jump; it and the next step are smoothed (our choice:
+#: a sampled smooth cycle changes by about as much from one step to the next,
+#: a jump does not).
 JUMP_RATIO = 4.0
 #: Boundary data are evaluated this many steps at a time.
 CHUNK = 1024
-#: No construction material survives this temperature (above the melting point of
-#: steel and of refractory ceramics) [degC]; a state beyond it is a bad input.
-HIGHEST_PHYSICAL = 3000.0
 
 
 class UnphysicalState(ArithmeticError):
     """The march left the physical range: not finite, at or below absolute zero,
-    or above :data:`HIGHEST_PHYSICAL`.
+    or above :data:`HIGHEST_PHYSICAL_TEMPERATURE`.
 
     Attributes
     ----------
@@ -161,11 +167,19 @@ class UnphysicalState(ArithmeticError):
         self.time, self.low, self.high, self.q_in, self.q_out = time, low, high, q_in, q_out
 
 
+class BadConductivity(ArithmeticError):
+    """A cell's k(T) is zero, negative or not a number at its temperature."""
+
+    def __init__(self, material: str, layer: int, temperature: float, conductivity: float) -> None:
+        super().__init__(f"{material}: k = {conductivity:g} W/(m K) at {temperature:g} degC")
+        self.material, self.layer, self.temperature, self.conductivity = material, layer, temperature, conductivity
+
+
 def _check_physical(state_temperature: np.ndarray, contents: float, time: float, q_in: float, q_out: float) -> None:
     low, high = float(state_temperature.min()), float(state_temperature.max())
     if not math.isnan(contents):
         low, high = min(low, contents), max(high, contents)
-    if not (low > ABSOLUTE_ZERO_CELSIUS and high < HIGHEST_PHYSICAL):  # also catches NaN
+    if not (low > ABSOLUTE_ZERO_CELSIUS and high < HIGHEST_PHYSICAL_TEMPERATURE):  # also catches NaN
         raise UnphysicalState(time, low, high, q_in, q_out)
 
 
@@ -217,6 +231,9 @@ class System:
         if self.constant_k:
             return self._k, self._g, self._halves
         k = self.mesh.conductivity(temperature)
+        if not np.all(k > 0.0):  # a k(T) law used beyond the temperatures it holds for
+            i = int(np.argmin(np.where(np.isnan(k), -np.inf, k)))
+            raise BadConductivity(self.mesh.materials[i].name, int(self.mesh.layer[i]), float(temperature[i]), float(k[i]))
         return k, self.mesh.conductances(k), self.mesh.half_resistances(k)
 
 
@@ -516,8 +533,9 @@ class _Forcing:
         self.position = {c: p for p, c in enumerate(self.fractions)}
         self.start = -1
         self.rough = np.zeros(0, dtype=bool)
-        self.smooth_start = smooth_start and scheme.name != "backward-euler"
-        self.smoothing = scheme.name != "backward-euler"
+        self.smoothing = scheme.jump is not None
+        self.smooth_start = smooth_start and self.smoothing
+        self.last_jump = False  # whether the last step of the previous chunk is a jump
         self.low, self.high = math.inf, -math.inf
 
     def index(self, k: int, fraction: float) -> int:
@@ -532,7 +550,6 @@ class _Forcing:
 
     def load(self, k: int) -> None:
         """Forcing for steps k .. k + CHUNK - 1 at every fraction, and the jump flags."""
-        previous_jump = bool(self.rough.size and self.rough[-1])
         h, t0, n_steps = self.h, self.t0, self.n_steps
         m = min(CHUNK, n_steps - k) if n_steps > k else 1
         seconds = (t0 + h * (k + np.arange(m)[:, None] + np.array(self.fractions)[None, :])).ravel()
@@ -544,21 +561,24 @@ class _Forcing:
                     self.low = min(self.low, float(np.min(drive.forcing[name])))
                     self.high = max(self.high, float(np.max(drive.forcing[name])))
         self.start = k
-        # A step over which a drive changes by more than JUMP and JUMP_RATIO
-        # times its change over both neighbouring steps is a jump: it and the
-        # next step are smoothed (only between two real neighbouring steps;
-        # the start has its own rule).
-        nodes = t0 + h * np.clip(np.arange(k - 1, k + m + 2), 0, n_steps)
-        steps = np.arange(k, k + m)
         rough = np.zeros(m, dtype=bool)
-        for ex in (st.s.inside, st.s.outside):
-            x = np.broadcast_to(ex.drive_temperature(ex.forcing(nodes)), nodes.shape)
-            change = np.abs(np.diff(x))  # over steps k-1 .. k+m
-            jump = (change[1:-1] > JUMP) & (change[1:-1] > JUMP_RATIO * np.maximum(change[:-2], change[2:]))
-            jump &= (steps > 0) & (steps < n_steps - 1)
-            rough |= jump
-            rough[1:] |= jump[:-1]
-        rough[0] |= k > 0 and previous_jump
+        if self.smoothing:
+            # A step over which a drive changes by more than the scheme's jump and
+            # JUMP_RATIO times its change over each neighbouring step that exists
+            # is a jump: it and the next step are smoothed.
+            nodes = t0 + h * np.arange(k - 1, k + m + 2)
+            steps = np.arange(k - 1, k + m + 1)  # the steps between consecutive nodes
+            real = (steps >= 0) & (steps < n_steps)
+            jumps = np.zeros(m, dtype=bool)
+            for ex in (st.s.inside, st.s.outside):
+                x = np.broadcast_to(ex.drive_temperature(ex.forcing(np.clip(nodes, t0, t0 + h * n_steps))), nodes.shape)
+                change = np.where(real, np.abs(np.diff(x)), 0.0)
+                neighbours = np.maximum(change[:-2], change[2:])
+                jumps |= (change[1:-1] > self.stepper.scheme.jump) & (change[1:-1] > JUMP_RATIO * neighbours)
+            rough |= jumps
+            rough[1:] |= jumps[:-1]
+            rough[0] |= self.last_jump
+            self.last_jump = bool(jumps[-1])
         self.rough = rough
 
 
@@ -756,7 +776,9 @@ def march(
     c, surfaces = st.initial_coefficients(temp, enthalpy, forcing.index(0, 0.0))
     state = _settled_state(st, temp, enthalpy, c, surfaces)
     _check_physical(temp, system.contents_temperature(enthalpy), t0, state.q_in, state.q_out)
-    records = _Records(system, n_steps // output_every + 1)
+    # every output_every-th state, and the last one (where output_every does not divide the run)
+    kept = n_steps // output_every + 1 + (1 if n_steps % output_every else 0)
+    records = _Records(system, kept)
     records.add(state, state.q_in, state.q_out)
     freeze = _FreezeWatch(water, enthalpy, t0, ice_target)
     heat_in = heat_out = heat_abs = 0.0
@@ -782,7 +804,7 @@ def march(
             heat_abs += abs(e_in)
         heat_out += e_out
         heat_abs += abs(e_out)
-        if (k + 1) % output_every == 0:
+        if (k + 1) % output_every == 0 or k == n_steps - 1:
             # the boundary flows the scheme took at the end of the step (they
             # differ from those of the state by at most the chord's iteration
             # tolerance times a conductance change below REFACTOR_TOLERANCE)
@@ -800,7 +822,7 @@ def march(
     v = records.values
     initial_range = (float(np.min(initial)), float(np.max(initial)))
     return MarchResult(
-        time=t0 + h * output_every * np.arange(records.count),
+        time=np.minimum(t0 + h * output_every * np.arange(records.count), t0 + h * n_steps),
         temperature=records.temperature,
         interface_temperature=records.faces,
         q_in=v["q_in"],

@@ -20,7 +20,7 @@ from layers.errors import CaseError
 from layers.constants import ABSOLUTE_ZERO_CELSIUS
 from layers.contents import WaterNode
 from layers.exchange import exchanges, in_seconds
-from layers.march import TOLERANCE, MarchResult, System, UnphysicalState, march, periodic_start, resolve_scheme, settle
+from layers.march import TOLERANCE, BadConductivity, MarchResult, System, UnphysicalState, march, periodic_start, resolve_scheme, settle
 from layers.mesh import Mesh
 from layers.results import to_dataset
 from layers.steady import cell_temperatures, steady_state
@@ -84,20 +84,15 @@ def initial_state(case: Case, mesh: Mesh, system: System) -> tuple[np.ndarray, i
 
 
 def _starts_with_a_step(case: Case, system: System) -> float:
-    """How far [K] a start from a temperature lies from what a temperature
-    boundary (or contents in the bore) holds at the start; 0 otherwise."""
+    """How far [K] a start from a temperature lies from what drives either
+    boundary at the start (:meth:`layers.exchange.Exchange.drive_temperature`); 0 otherwise."""
     if not isinstance(case.time.initial, float):
         return 0.0
-    jump = 0.0
-    for ex in (system.inside, system.outside):
-        forcing = ex.forcing(np.array([0.0]))
-        if ex.kind == "temperature":
-            jump = max(jump, abs(float(forcing["surface"][0]) - case.time.initial))
-        elif ex.kind == "contents":
-            jump = max(jump, abs(float(forcing["contents"][0]) - case.time.initial))
-        elif ex.kind == "film":
-            jump = max(jump, abs(float(ex.drive_temperature(forcing)[0]) - case.time.initial))
-    return jump
+    return max(
+        (abs(float(ex.drive_temperature(ex.forcing(np.array([0.0])))[0]) - case.time.initial)
+         for ex in (system.inside, system.outside) if ex.kind != "adiabatic"),
+        default=0.0,
+    )
 
 
 def run_march(case: Case, mesh: Mesh, progress: Callable[[int, int], None] | None = None) -> tuple[MarchResult, int, System]:
@@ -113,6 +108,12 @@ def run_march(case: Case, mesh: Mesh, progress: Callable[[int, int], None] | Non
         return _run_march(case, mesh, system, progress)
     except UnphysicalState as exc:
         raise unphysical_error(case, system, exc) from None
+    except BadConductivity as exc:
+        raise CaseError(
+            case.path, f"layers[{exc.layer}].material",
+            f"the conductivity of {exc.material} comes out as {exc.conductivity:.3g} W/(m*K) at {exc.temperature:.4g} degC: "
+            "its k(T) law does not hold there; give it values over the whole temperature range of the run",
+        ) from None
 
 
 def _run_march(case: Case, mesh: Mesh, system: System, progress) -> tuple[MarchResult, int, System]:
@@ -236,8 +237,8 @@ def simulate(case: Case, progress: Callable[[int, int], None] | None = None) -> 
             continue
         if spec.auto_film:
             extra[f"film_coefficient_{spec.side}"] = ("W m-2 K-1", f"{spec.side} surface film coefficient, convection plus radiation", film)
-        sun = spec.solar_irradiance is not None and (spec.auto_film or spec.solar_absorptance)
-        if sun or (spec.auto_film and (spec.sky_temperature is not None or spec.values.get("sky_auto"))):
+        ex = system.inside if spec.side == "inside" else system.outside
+        if ex.has_sun_or_sky and (spec.auto_film or spec.solar_absorptance):
             extra[f"sol_air_temperature_{spec.side}"] = t_eq
         air = in_seconds(case, spec.air_temperature)(seconds)
         extra[f"air_temperature_{spec.side}"] = air
@@ -259,7 +260,7 @@ def simulate(case: Case, progress: Callable[[int, int], None] | None = None) -> 
         # heat given up by the contents to the bore over the run (the contents are part of
         # the stored energy, so they do not enter the energy-balance boundary terms)
         attrs["heat_from_contents_total"] = float(res.initial_enthalpy - res.final_enthalpy)
-    if not (mesh.is_linear and not case.inside.auto_film and not case.outside.auto_film):
+    if system.depends_on_temperature:
         attrs["nonlinear_tolerance_K"] = TOLERANCE
         attrs["nonlinear_unconverged_steps"] = res.unconverged_steps
         attrs["nonlinear_max_iterations"] = res.max_iterations_used

@@ -18,7 +18,7 @@ import tempfile
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from layers.constants import ABSOLUTE_ZERO_CELSIUS
+from layers.constants import ABSOLUTE_ZERO_CELSIUS, HIGHEST_PHYSICAL_TEMPERATURE
 from layers.errors import CaseError
 
 if TYPE_CHECKING:
@@ -278,6 +278,8 @@ def parse_temperature(value: Any, *, file: str = "<case>", key: str = "?") -> fl
         _fail(file, key, f"{value!r} is not a finite temperature")
     if number <= ABSOLUTE_ZERO_CELSIUS:
         _fail(file, key, f"{value!r} is at or below absolute zero")
+    if number >= HIGHEST_PHYSICAL_TEMPERATURE:
+        _fail(file, key, f"{value!r} is beyond what any construction material survives ({HIGHEST_PHYSICAL_TEMPERATURE:g} degC)")
     return number
 
 

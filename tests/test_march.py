@@ -405,7 +405,7 @@ def test_the_steady_limit_of_a_run_is_the_steady_solver(text, t0):
     ds = simulate(case)
     system = system_for(case, case.mesh())
     q = float(steady_state(case, forcing=(system.inside.forcing(np.zeros(1)), system.outside.forcing(np.zeros(1)))).heat_flow[0])
-    scale = max(abs(q), 1e-3)
+    scale = max(abs(q), 1.0)  # 1e-6 of the flow, or 1e-6 W/m2 where the air temperatures nearly match
     assert abs(float(ds["heat_flow_inside"][-1]) - q) < 1e-6 * scale
     assert abs(float(ds["heat_flow_outside"][-1]) - q) < 1e-6 * scale
 

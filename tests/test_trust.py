@@ -118,3 +118,35 @@ def test_several_processes_writing_to_one_archive_lose_nothing(tmp_path):
         with xr.open_dataset(f) as ds:
             assert ds["temperature"].shape[0] == 3
     assert len(list_runs(runs)) == 4
+
+
+def test_a_k_of_t_law_that_turns_negative_is_refused(tmp_path, capsys):
+    """A conductivity polynomial that reaches zero at -100 degC, used down to
+    -180 degC, stopped the march with a LinAlgError (exit 3); now the run is
+    refused naming the layer and the temperature."""
+    case = tmp_path / "cold.toml"
+    case.write_text(
+        '[materials.odd]\nconductivity = {polynomial = [0.02, 2e-4]}\ndensity = "50 kg/m3"\n'
+        'specific_heat = "1000 J/(kg*K)"\n[[layers]]\nmaterial = "odd"\nthickness = "50 mm"\n'
+        '[inside]\ntype = "temperature"\nsurface_temperature = "20 degC"\n'
+        '[outside]\ntype = "temperature"\nsurface_temperature = "-180 degC"\n'
+        '[time]\nduration = "2 h"\nstep = "10 min"\ninitial = "20 degC"\n'
+    )
+    assert main(["run", str(case), "--archive", str(tmp_path / "runs"), "--quiet"]) == 2
+    err = capsys.readouterr().err
+    assert "layers[1].material" in err and "k(T)" in err
+
+
+def test_the_last_state_is_kept_when_output_every_does_not_divide_the_run(tmp_path):
+    """A 2 h run kept every 3 h (or a 1 s run with the default 1 h) ends with its
+    final state, not only its initial one."""
+    import xarray as xr
+
+    case = tmp_path / "short.toml"
+    case.write_text(OK.replace('duration = "2 h"\nstep = "1 h"', 'duration = "5 h"\nstep = "1 h"\noutput_every = "2 h"\ninitial = "5 degC"'))
+    runs = tmp_path / "runs"
+    assert main(["run", str(case), "--archive", str(runs), "--quiet"]) == 0
+    (path,) = runs.glob("*.nc")
+    with xr.open_dataset(path) as ds:
+        hours = (ds["time"].values - ds["time"].values[0]) / 3600e9
+        assert list(hours.astype(float)) == [0.0, 2.0, 4.0, 5.0]
