@@ -136,6 +136,14 @@ def _run_march(case: Case, mesh: Mesh, system: System, progress) -> tuple[MarchR
         output_every=plan.output_stride, scheme=plan.scheme, initial_water=water0,
         smooth_start=step_size > 0.0, ice_target=_ice_target(case), progress=callback,
     )
+    jumps = result.smoothed_steps - (min(2, total) if step_size > 0.0 else 0)
+    if plan.scheme == "crank-nicolson" and jumps > 0:
+        warnings.warn(
+            f"{case.path}: crank-nicolson met {jumps} step(s) where a boundary jumps; they were taken as "
+            "backward-Euler half steps, but its fluxes ring after sudden changes: tr-bdf2 (the default) damps them",
+            UserWarning,
+            stacklevel=4,
+        )
     return result, cycles, system
 
 
