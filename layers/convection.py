@@ -37,7 +37,6 @@ import numpy as np
 from numpy.typing import ArrayLike
 
 from layers.checks import choice as _choice
-from layers.checks import finite as _finite
 from layers.checks import non_negative as _non_negative
 from layers.checks import positive as _positive
 from layers.checks import temperature as _temperature

@@ -27,7 +27,6 @@ import numpy as np
 from numpy.typing import ArrayLike
 
 import layers.checks as checks
-from layers.constants import ZERO_CELSIUS
 
 __all__ = [
     "saturation_vapour_pressure",

@@ -11,7 +11,7 @@ from typing import TYPE_CHECKING, NamedTuple
 import numpy as np
 
 from layers.about import CAUTION
-from layers.case import BoundarySpec, Case
+from layers.case import Case
 from layers.errors import CaseError
 from layers.exchange import exchanges
 from layers.formatting import format_duration

@@ -10,7 +10,6 @@ from __future__ import annotations
 import math
 import warnings
 from collections.abc import Callable
-from dataclasses import dataclass
 
 import numpy as np
 import xarray as xr

@@ -54,69 +54,11 @@ NUMPY_WARNINGS = ("divide by zero encountered", "invalid value encountered", "ov
 # TOML writing (enough for case files; no third-party writer needed)
 
 
-def _key(k: str) -> str:
-    return k if re.fullmatch(r"[A-Za-z0-9_-]+", k) else _str(k)
+def to_toml(doc: dict) -> str:
+    """TOML text for a nested dict (the package's own writer, layers.api.toml_text)."""
+    from layers.api import toml_text
 
-
-def _str(s: str) -> str:
-    out = ['"']
-    for ch in s:
-        if ch == '"':
-            out.append('\\"')
-        elif ch == "\\":
-            out.append("\\\\")
-        elif ord(ch) < 0x20 or ord(ch) == 0x7F:
-            out.append(f"\\u{ord(ch):04x}")
-        else:
-            out.append(ch)
-    out.append('"')
-    return "".join(out)
-
-
-def _value(v: object) -> str:
-    if isinstance(v, bool):
-        return "true" if v else "false"
-    if isinstance(v, int):
-        return str(v)
-    if isinstance(v, float):
-        if math.isnan(v):
-            return "nan"
-        if math.isinf(v):
-            return "inf" if v > 0 else "-inf"
-        return repr(v)
-    if isinstance(v, str):
-        return _str(v)
-    if isinstance(v, list):
-        return "[" + ", ".join(_value(x) for x in v) + "]"
-    if isinstance(v, dict):
-        return "{" + ", ".join(f"{_key(k)} = {_value(x)}" for k, x in v.items()) + "}"
-    if hasattr(v, "isoformat"):
-        return v.isoformat()
-    raise TypeError(f"cannot write {type(v).__name__} to TOML")
-
-
-def _is_table_array(v: object) -> bool:
-    return isinstance(v, list) and bool(v) and all(isinstance(x, dict) for x in v)
-
-
-def to_toml(doc: dict, prefix: str = "") -> str:
-    """TOML text for a nested dict: scalars first, then tables and arrays of tables."""
-    lines: list[str] = []
-    for k, v in doc.items():
-        if not isinstance(v, dict) and not _is_table_array(v):
-            lines.append(f"{_key(k)} = {_value(v)}")
-    for k, v in doc.items():
-        name = f"{prefix}.{_key(k)}" if prefix else _key(k)
-        if isinstance(v, dict):
-            lines.append("")
-            lines.append(f"[{name}]")
-            lines.append(to_toml(v, name))
-        elif _is_table_array(v):
-            for item in v:
-                lines.append("")
-                lines.append(f"[[{name}]]")
-                lines.append(to_toml(item, name))
-    return "\n".join(line for line in lines if line is not None).strip("\n") + "\n"
+    return toml_text(doc)
 
 
 # --------------------------------------------------------------------------
@@ -463,7 +405,7 @@ def mutate(name: str, doc: dict, files: dict[str, bytes], rng: random.Random) ->
             pool = NUMBERS + STRINGS
         new = rng.choice(pool)
         _set(doc, path, new)
-        what = f"{_dotted(path)} = {_value(new)[:40]}"
+        what = f"{_dotted(path)} = {new!r:.40}"
         if isinstance(new, str):
             injected.append(new)
     elif kind == "unit":
@@ -492,14 +434,14 @@ def mutate(name: str, doc: dict, files: dict[str, bytes], rng: random.Random) ->
         path = rng.choice(leaves)
         new = rng.choice(OTHER_TYPES)
         _set(doc, path, new)
-        what = f"{_dotted(path)} = {_value(new)}"
+        what = f"{_dotted(path)} = {new!r}"
     elif kind == "time":
         key = rng.choice(list(TIME_KEYS))
         new = rng.choice(TIME_KEYS[key])
         doc.setdefault("time", {})[key] = new
         if key == "end":
             doc["time"].pop("duration", None)
-        what = f"time.{key} = {_value(new)}"
+        what = f"time.{key} = {new!r}"
     elif kind == "series":
         fname = next(iter(files))
         files[fname], what = mutate_csv(files[fname], rng)
