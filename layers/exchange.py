@@ -82,6 +82,46 @@ class SurfaceFilm:
     q_imposed: np.ndarray
 
 
+def thevenin(h, t_eq, q_imposed, area):
+    """A surface exchange as a source temperature behind a resistance.
+
+    Heat into the construction through a surface of ``area`` at temperature
+    T_s is ``h A (t_eq - T_s) + q A = (theta - T_s) / R`` with theta = t_eq +
+    q / h and R = 1 / (h A); a held surface (h = inf) is theta = t_eq, R = 0;
+    a surface with no film (h = 0) has R = inf and only its imposed flow q A.
+
+    Parameters
+    ----------
+    h : float or array
+        Surface coefficient [W m-2 K-1].
+    t_eq : float or array
+        Equivalent temperature [degC].
+    q_imposed : float or array
+        Imposed heat into the construction [W m-2].
+    area : float or array
+        Surface area [m2 per reference unit].
+
+    Returns
+    -------
+    theta : source temperature [degC]
+    resistance : [K W-1 per reference unit] (inf where h = 0)
+    """
+    if np.ndim(h) == 0 and np.ndim(area) == 0:  # the march, once per iteration: plain floats
+        h, t_eq, q_imposed = float(h), float(t_eq), float(q_imposed)
+        if math.isinf(h):
+            return t_eq, 0.0
+        if h > 0.0:
+            return t_eq + q_imposed / h, 1.0 / (h * area)
+        return t_eq, math.inf
+    h = np.asarray(h, dtype=float)
+    positive = h > 0
+    safe = np.where(positive, h, 1.0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        theta = np.where(positive & np.isfinite(h), t_eq + q_imposed / safe, t_eq)
+        resistance = np.where(np.isinf(h), 0.0, np.where(positive, 1.0 / (safe * area), math.inf))
+    return theta, resistance
+
+
 def in_seconds(case: Case, forcing) -> Callable[[np.ndarray], np.ndarray]:
     """A forcing of UTC datetimes as a function of seconds from the case start."""
     return lambda seconds: np.asarray(forcing(case.datetimes(seconds)), dtype=float)

@@ -63,7 +63,7 @@ import numpy as np
 from layers.constants import ABSOLUTE_ZERO_CELSIUS, HIGHEST_PHYSICAL_TEMPERATURE
 from layers.contents import WaterNode
 from layers.errors import ConvergenceWarning
-from layers.exchange import Exchange
+from layers.exchange import Exchange, thevenin
 from layers.mesh import Mesh
 
 GAMMA = 2.0 - math.sqrt(2.0)
@@ -290,11 +290,10 @@ class _Drive:
         if self.exchange.kind == "contents":
             t_eq = contents
         film = h if self.is_film else math.nan
-        if math.isinf(h):
-            return _Side(1.0 / r_half, t_eq, 0.0, film, t_eq)
-        if h > 0.0:
-            return _Side(1.0 / (1.0 / (h * self.area) + r_half), t_eq + q / h, 0.0, film, t_eq)
-        return _Side(0.0, 0.0, q * self.area, film, t_eq)
+        theta, resistance = thevenin(h, t_eq, q, self.area)
+        if math.isinf(resistance):  # no film: only the imposed flow
+            return _Side(0.0, 0.0, q * self.area, film, t_eq)
+        return _Side(1.0 / (resistance + r_half), theta, 0.0, film, t_eq)
 
 
 class _Factor:

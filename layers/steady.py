@@ -31,7 +31,7 @@ import numpy as np
 
 from layers.case import Case
 from layers.errors import CaseError, ConvergenceWarning
-from layers.exchange import Exchange, exchanges
+from layers.exchange import Exchange, exchanges, thevenin
 from layers.mesh import Mesh, shape_factor, surface_area
 
 #: The fixed point stops when no face temperature changes by more than this [K].
@@ -77,16 +77,6 @@ def design_forcing(case: Case, exchange: Exchange, *, sun_and_sky: bool = False)
     and sky unless asked (the usual steady design conditions)."""
     seconds = case.seconds(np.array([design_time(case)]))
     return exchange.forcing(seconds, sun_and_sky=sun_and_sky)
-
-
-def _thevenin(film, area):
-    """(source temperature [degC], resistance [K W-1 per reference unit], fixed flow or None)."""
-    h, t_eq, q = film.h, film.t_eq, film.q_imposed
-    finite = np.isfinite(h)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        theta = np.where(finite & (h > 0), t_eq + q / np.where(h > 0, h, 1.0), t_eq)
-        resistance = np.where(finite, 1.0 / (np.where(h > 0, h, 1.0) * area), 0.0)
-    return theta, resistance
 
 
 def steady_state(
@@ -165,8 +155,8 @@ def steady_state(
         r_cond = sum(resist)
         film_in = ex_in.film(f_in, ts_in, 2.0 * r0)
         film_out = ex_out.film(f_out, ts_out, diameter)
-        theta_i, r_i = _thevenin(film_in, area_in)
-        theta_o, r_o = _thevenin(film_out, area_out)
+        theta_i, r_i = thevenin(film_in.h, film_in.t_eq, film_in.q_imposed, area_in)
+        theta_o, r_o = thevenin(film_out.h, film_out.t_eq, film_out.q_imposed, area_out)
         if ex_in.kind in ("flux", "adiabatic"):
             q = film_in.q_imposed * area_in
             start = theta_o + q * (r_o + r_cond)
