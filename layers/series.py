@@ -64,6 +64,7 @@ import numpy as np
 
 from layers.constants import ABSOLUTE_ZERO_CELSIUS
 from layers.errors import CaseError, SeriesError
+from layers.formatting import format_duration
 from layers.units import KINDS, unit_factor
 
 __all__ = [
@@ -170,15 +171,6 @@ def _iso(t: np.datetime64) -> str:
     if text.endswith(":00"):
         text = text[:-3]
     return text + "Z"
-
-
-def _duration(seconds: float) -> str:
-    """A duration in the largest unit that keeps it readable: ``3 h``, ``90 min``."""
-    s = float(seconds)
-    for unit, size in (("d", 86400.0), ("h", 3600.0), ("min", 60.0)):
-        if abs(s) >= size and (abs(s) >= 10 * size or (s / size) == round(s / size, 2)):
-            return f"{s / size:g} {unit}"
-    return f"{s:g} s"
 
 
 def _show(value: float) -> str:
@@ -613,19 +605,19 @@ def _bridge_gaps(t: np.ndarray, raw: _Raw, file: str, time: str, fill_gaps: floa
     if unfillable.size:
         i = int(unfillable[0]) + 1
         rule = (
-            f"max_interval {_duration(limit)}"
+            f"max_interval {format_duration(limit, approximate=True)}"
             if max_interval is not None
-            else f"the default limit, 3 x the median interval of {_duration(median)}"
+            else f"the default limit, 3 x the median interval of {format_duration(median, approximate=True)}"
         )
         if fill_gaps is None:
             advice = "set series.max_interval if the steps vary on purpose, or series.fill_gaps to interpolate across it"
         else:
-            advice = f"it is also longer than fill_gaps {_duration(fill_gaps)}, so it is not filled"
+            advice = f"it is also longer than fill_gaps {format_duration(fill_gaps, approximate=True)}, so it is not filled"
         more = f" ({unfillable.size - 1} more gaps like it)" if unfillable.size > 1 else ""
         raise SeriesError(
             file,
             f"{raw.row(i)}, {raw.column(time)}",
-            f"gap of {_duration(step[i - 1])} after {raw.row(i - 1)} ({_iso(t[i - 1] + _EPOCH64)} to "
+            f"gap of {format_duration(step[i - 1], approximate=True)} after {raw.row(i - 1)} ({_iso(t[i - 1] + _EPOCH64)} to "
             f"{_iso(t[i] + _EPOCH64)}) is longer than {rule}{more}; {advice}",
         )
     nominal = max(median, 1.0)
@@ -675,12 +667,12 @@ def _fill_missing(
             rule = (
                 "set series.fill_gaps to fill short runs by linear interpolation"
                 if fill_gaps is None
-                else f"longer than fill_gaps {_duration(fill_gaps)}"
+                else f"longer than fill_gaps {format_duration(fill_gaps, approximate=True)}"
             )
             raise SeriesError(
                 file,
                 f"{row(int(s))}, {where}",
-                f"empty or NaN value ({count} in a row, {_duration(span)} between the valid values on either side): {rule}",
+                f"empty or NaN value ({count} in a row, {format_duration(span, approximate=True)} between the valid values on either side): {rule}",
             )
     valid = ~missing
     v[missing] = np.interp(t[missing].astype(np.float64), t[valid].astype(np.float64), v[valid])
