@@ -106,7 +106,7 @@ def thevenin(h, t_eq, q_imposed, area):
     theta : source temperature [degC]
     resistance : [K W-1 per reference unit] (inf where h = 0)
     """
-    if np.ndim(h) == 0 and np.ndim(area) == 0:  # the march, once per iteration: plain floats
+    if isinstance(h, float) and isinstance(area, float):  # the march, once per iteration: plain floats
         h, t_eq, q_imposed = float(h), float(t_eq), float(q_imposed)
         if math.isinf(h):
             return t_eq, 0.0

@@ -272,14 +272,27 @@ class _Drive:
     def use(self, forcing: dict[str, np.ndarray], shape: tuple[int, ...]) -> None:
         self.forcing = forcing
         self._index = -1
-        seconds = np.zeros(shape)
         if not self.dependent:
-            film = self.exchange.film(self.forcing, np.zeros(seconds.shape), self.diameter)
-            self.h = np.broadcast_to(film.h, seconds.shape)
-            self.t_eq = np.broadcast_to(film.t_eq, seconds.shape)
-            self.q = np.broadcast_to(film.q_imposed, seconds.shape)
+            # the exchange does not depend on the surface: reduce it for the whole chunk at once
+            surface = np.zeros(shape)
+            film = self.exchange.film(self.forcing, surface, self.diameter)
+            self.h = np.broadcast_to(film.h, shape)
+            self.t_eq = np.broadcast_to(film.t_eq, shape)
+            self.q = np.broadcast_to(film.q_imposed, shape)
+            theta, resistance = thevenin(self.h, self.t_eq, self.q, self.area)
+            self.theta = np.broadcast_to(theta, shape).tolist()
+            self.resistance = np.broadcast_to(resistance, shape).tolist()
+            self.flows = (self.q * self.area).tolist()
+            self.t_eqs = self.t_eq.tolist()
+            self.films = self.h.tolist() if self.is_film else None
 
     def at(self, i: int, t_surface: float, r_half: float, contents: float = math.nan) -> _Side:
+        if not self.dependent and self.exchange.kind != "contents":
+            film = self.films[i] if self.films is not None else math.nan
+            resistance = self.resistance[i]
+            if resistance == math.inf:  # no film: only the imposed flow
+                return _Side(0.0, 0.0, self.flows[i], film, self.t_eqs[i])
+            return _Side(1.0 / (resistance + r_half), self.theta[i], 0.0, film, self.t_eqs[i])
         if self.dependent:
             if i != self._index:  # the forcing of one stage, picked once for all its iterations
                 self._index, self._values = i, {name: float(values[i]) for name, values in self.forcing.items()}
