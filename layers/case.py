@@ -815,8 +815,6 @@ def _parse_time(t: _Table, series: Series | None, timezone: str) -> TimePlan:
     from layers.march import SCHEME_NAMES
 
     scheme = t.get("scheme", "auto")
-    if scheme == "exact":
-        raise t.error("scheme", "the exact path is not available in this version; use auto (tr-bdf2), tr-bdf2, crank-nicolson or backward-euler")
     if scheme not in SCHEME_NAMES:
         raise t.error("scheme", f"unknown scheme {scheme!r}; use one of {', '.join(SCHEME_NAMES)}")
     period = _positive(t.get("period", "24 h"), "duration", t, "period")

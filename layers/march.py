@@ -129,9 +129,10 @@ SCHEMES: dict[str, Scheme] = {
         jump=30.0,
     ),
 }
-#: What ``scheme = "auto"`` (the default) means until the exact path exists.
+#: What ``scheme = "auto"`` (the default) steps with where the exact path
+#: (:mod:`layers.exact`) does not apply.
 DEFAULT_SCHEME = "tr-bdf2"
-SCHEME_NAMES = ("auto", *SCHEMES)
+SCHEME_NAMES = ("auto", "exact", *SCHEMES)
 
 #: A stage's iteration stops when no temperature changes by more than this [K].
 TOLERANCE = 1e-6
@@ -374,6 +375,7 @@ class MarchResult:
     drive_range: tuple[float, float]          # [degC] initial state and every boundary temperature met
     time_to_freezing: float = math.nan        # [s] contents first at 0 degC
     time_to_ice_fraction: float = math.nan    # [s] ice fraction first at the target
+    scheme: str = ""                          # the scheme that made the result
 
 
 class _Stepper:
@@ -863,6 +865,7 @@ def march(
         factorisations=st.factorisations,
         time_to_freezing=freeze.to_freezing,
         time_to_ice_fraction=freeze.to_ice_fraction,
+        scheme=st.scheme.name,
     )
 
 

@@ -18,6 +18,7 @@ from layers.case import Case
 from layers.errors import CaseError
 from layers.constants import ABSOLUTE_ZERO_CELSIUS
 from layers.contents import WaterNode
+from layers.exact import exact_march, exact_periodic_start, is_exact_ready
 from layers.exchange import exchanges, in_seconds
 from layers.march import TOLERANCE, BadConductivity, MarchResult, System, UnphysicalState, march, periodic_start, resolve_scheme, settle
 from layers.mesh import Mesh
@@ -65,9 +66,23 @@ def _mean_forcing(case: Case, system: System) -> tuple[dict, dict]:
     return out[0], out[1]
 
 
-def initial_state(case: Case, mesh: Mesh, system: System) -> tuple[np.ndarray, int]:
+def scheme_for(case: Case, system: System) -> str:
+    """The scheme a run uses: ``exact`` where asked for or where ``auto`` finds a
+    linear case (:func:`layers.exact.is_exact_ready`), else the stepping scheme."""
+    requested = case.time.scheme
+    if requested in ("auto", "exact") and is_exact_ready(system):
+        return "exact"
+    if requested == "exact":
+        what = "contents in the bore" if system.water is not None else (
+            "an automatic film" if (system.inside.auto or system.outside.auto) else "a temperature-dependent conductivity")
+        raise CaseError(case.path, "time.scheme", f"exact needs a linear case, and this one has {what}; use auto (tr-bdf2 here) or a stepping scheme")
+    return resolve_scheme(requested).name
+
+
+def initial_state(case: Case, mesh: Mesh, system: System, scheme: str | None = None) -> tuple[np.ndarray, int]:
     """Initial cell temperatures [degC] and the number of periodic cycles used."""
     plan = case.time
+    scheme = scheme or scheme_for(case, system)
     if isinstance(plan.initial, float):
         return np.full(mesh.n, plan.initial), 0
     if plan.initial == "steady":
@@ -76,10 +91,12 @@ def initial_state(case: Case, mesh: Mesh, system: System) -> tuple[np.ndarray, i
         if system.depends_on_temperature:
             return settle(system, exact, 0.0, case.inside.initial_temperature), 0
         return exact, 0
+    steps = int(round(plan.period / plan.step))
+    if scheme == "exact":  # the periodic state itself, mode by mode
+        return exact_periodic_start(system, plan.step, steps), 1
     # "periodic": repeat the first period from the steady state of its mean forcing
     state = cell_temperatures(mesh, steady_state(case, forcing=_mean_forcing(case, system)))
-    steps = int(round(plan.period / plan.step))
-    return periodic_start(system, state, plan.step, steps, plan.scheme)
+    return periodic_start(system, state, plan.step, steps, scheme)
 
 
 def _starts_with_a_step(case: Case, system: System) -> float:
@@ -116,10 +133,15 @@ def run_march(case: Case, mesh: Mesh, progress: Callable[[int, int], None] | Non
 
 
 def _run_march(case: Case, mesh: Mesh, system: System, progress) -> tuple[MarchResult, int, System]:
-    initial, cycles = initial_state(case, mesh, system)
+    scheme = scheme_for(case, system)
+    initial, cycles = initial_state(case, mesh, system, scheme)
     plan = case.time
+    total = plan.n_steps
+    callback = (lambda done: progress(done, total)) if progress else None
+    if scheme == "exact":
+        return exact_march(system, initial, plan.step, total, output_every=plan.output_stride, progress=callback), cycles, system
     step_size = _starts_with_a_step(case, system)
-    if plan.scheme == "crank-nicolson" and step_size > STEP_WARNING:
+    if scheme == "crank-nicolson" and step_size > STEP_WARNING:
         warnings.warn(
             f"{case.path}: crank-nicolson after a {step_size:.3g} K step at the start is smoothed by "
             "backward-Euler half steps but still rings wherever a boundary changes abruptly; "
@@ -127,16 +149,14 @@ def _run_march(case: Case, mesh: Mesh, system: System, progress) -> tuple[MarchR
             UserWarning,
             stacklevel=4,
         )
-    total = plan.n_steps
-    callback = (lambda done: progress(done, total)) if progress else None
     water0 = case.inside.initial_temperature if system.water is not None else None
     result = march(
         system, initial, plan.step, total,
-        output_every=plan.output_stride, scheme=plan.scheme, initial_water=water0,
+        output_every=plan.output_stride, scheme=scheme, initial_water=water0,
         smooth_start=step_size > 0.0, ice_target=_ice_target(case), progress=callback,
     )
     jumps = result.smoothed_steps - (min(2, total) if step_size > 0.0 else 0)
-    if plan.scheme == "crank-nicolson" and jumps > 0:
+    if scheme == "crank-nicolson" and jumps > 0:
         warnings.warn(
             f"{case.path}: crank-nicolson met {jumps} step(s) where a boundary jumps; they were taken as "
             "backward-Euler half steps, but its fluxes ring after sudden changes: tr-bdf2 (the default) damps them",
@@ -164,7 +184,7 @@ def _warn_outside_range(case: Case, system: System, res: MarchResult) -> None:
         where = f"{above:.3g} K above the highest" if above >= below else f"{below:.3g} K below the lowest"
         warnings.warn(
             f"{case.path}: cell temperatures reach {where} initial or boundary temperature (overshoot of "
-            f"{resolve_scheme(case.time.scheme).name} at step {case.time.step:g} s; a shorter step or tr-bdf2 reduces it)",
+            f"{res.scheme} at step {case.time.step:g} s; a shorter step or tr-bdf2 reduces it)",
             UserWarning,
             stacklevel=3,
         )
@@ -300,7 +320,7 @@ def simulate(case: Case, progress: Callable[[int, int], None] | None = None) -> 
         extra=extra,
         periodic_cycles=cycles,
     )
-    ds.attrs["scheme"] = resolve_scheme(case.time.scheme).name
+    ds.attrs["scheme"] = res.scheme
     if case.time.scheme == "auto":
         ds.attrs["scheme_requested"] = "auto"
     if case.geometry == "planar" and all(sp.kind == "film" and not sp.auto_film for sp in (case.inside, case.outside)) and mesh.is_linear:

@@ -416,12 +416,15 @@ def test_the_steady_limit_of_a_run_is_the_steady_solver(text, t0):
 
 
 @settings(max_examples=15, deadline=None, suppress_health_check=[HealthCheck.too_slow])
-@given(film_walls(cycle=True), st.sampled_from(["tr-bdf2", "crank-nicolson", "backward-euler"]))
+@given(film_walls(cycle=True), st.sampled_from(["tr-bdf2", "backward-euler"]))
 def test_halving_the_step_moves_the_result_toward_the_refined_one(text, scheme):
     """Under a daily cycle, the surface heat flows after two days at steps of
     2 h, 1 h and 30 min approach a 5-minute run of the same scheme
-    monotonically: each halving lowers the largest difference (the steps are
-    in each scheme's asymptotic range, omega h <= 0.52)."""
+    monotonically: each halving lowers the largest difference (omega h <=
+    0.52 for the cycle, and the L-stable schemes damp the stiff modes of thin
+    layers).  Crank-Nicolson is left out: its stiff modes (lambda h >> 1, a
+    10 mm plaster layer at 2 h steps) are not damped, and hypothesis found
+    such a wall whose error at 1 h was below that at 30 min."""
     def run(step):
         return simulate(_case(text + f'[time]\nduration = "2 d"\nstep = "{step}"\noutput_every = "2 h"\ninitial = "periodic"\nscheme = "{scheme}"\n'))
 
