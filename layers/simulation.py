@@ -155,7 +155,7 @@ def _run_march(case: Case, mesh: Mesh, system: System, progress) -> tuple[MarchR
         output_every=plan.output_stride, scheme=scheme, initial_water=water0,
         smooth_start=step_size > 0.0, ice_target=_ice_target(case), progress=callback,
     )
-    jumps = result.smoothed_steps - (min(2, total) if step_size > 0.0 else 0)
+    jumps = result.smoothed_steps - (min(resolve_scheme(scheme).smoothing_steps, total) if step_size > 0.0 else 0)
     if scheme == "crank-nicolson" and jumps > 0:
         warnings.warn(
             f"{case.path}: crank-nicolson met {jumps} step(s) where a boundary jumps; they were taken as "
