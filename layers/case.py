@@ -35,6 +35,9 @@ PIPE_ORIENTATIONS = ("horizontal", "vertical")
 AUTO_ONLY_KEYS = ("emissivity", "wind_speed", "radiant_temperature", "sky_temperature", "jacket", "tilt", "heat_flow_direction")
 #: A single layer thicker than this is taken for a unit slip [m].
 MAX_LAYER_THICKNESS = 20.0
+#: A length written as a bare number (metres) this long or longer is taken for
+#: millimetres written without their unit, and refused with a hint [m].
+BARE_LENGTH_LIMIT = 1.0
 #: Thinnest solid layer [m] (a coat of paint is about 50 um; thinner is a typing slip).
 MIN_LAYER_THICKNESS = 1e-6
 #: Most cells a case may have: far beyond what any layered construction needs,
@@ -284,8 +287,12 @@ def parse_case(
         inner_radius = parse_quantity(value, "length", file=file, key=geo.key("inner_radius"))
         if inner_radius <= 0:
             raise geo.error("inner_radius", "must be positive")
-        if inner_radius > MAX_LAYER_THICKNESS:
-            raise geo.error("inner_radius", f"{inner_radius:g} m is implausible for a pipe or vessel (bare numbers are metres)")
+        if inner_radius > MAX_LAYER_THICKNESS or (isinstance(value, (int, float)) and inner_radius >= BARE_LENGTH_LIMIT):
+            raise geo.error(
+                "inner_radius",
+                f"{inner_radius:g} m is implausible for a pipe or vessel"
+                + (f" (bare numbers are metres; did you mean \"{value} mm\"?)" if isinstance(value, (int, float)) else ""),
+            )
     elif geo.has("inner_radius"):
         raise geo.error("inner_radius", "applies to cylinder and sphere geometry only")
     pipe_orientation = geo.get("orientation", "horizontal")
@@ -448,11 +455,13 @@ def _parse_layers(items: Any, materials: dict[str, Material], file: str) -> tupl
         thickness = _positive(t.get("thickness", required=True), "length", t, "thickness")
         if thickness < MIN_LAYER_THICKNESS:
             raise t.error("thickness", f"{thickness:g} m is thinner than any layer a wall or pipe is built of (at least 1 um); leave the layer out")
-        if thickness > MAX_LAYER_THICKNESS:
+        bare = isinstance(t.data["thickness"], (int, float))
+        if thickness > MAX_LAYER_THICKNESS or (bare and thickness >= BARE_LENGTH_LIMIT):
             raise t.error(
                 "thickness",
                 f"{thickness:g} m is implausible for one layer"
-                + (f" (bare numbers are metres; did you mean \"{t.data['thickness']} mm\"?)" if isinstance(t.data["thickness"], (int, float)) else ""),
+                + (f" written as a bare number (bare numbers are metres; did you mean \"{t.data['thickness']} mm\"? "
+                   f"write \"{t.data['thickness']} m\" if you mean metres)" if bare else ""),
             )
         contact = 0.0
         if t.has("contact_resistance"):
@@ -860,6 +869,9 @@ def _parse_sizing(
         values = tuple(
             _positive(v, "length", t, f"thicknesses[{i + 1}]") for i, v in enumerate(raw)
         )
+        for i, (v, given) in enumerate(zip(values, raw)):
+            if isinstance(given, (int, float)) and not isinstance(given, bool) and v >= BARE_LENGTH_LIMIT:
+                raise t.error(f"thicknesses[{i + 1}]", f"{given!r} as a bare number is {v:g} m; did you mean \"{given} mm\"?")
         if any(b <= a for a, b in zip(values, values[1:])):
             raise t.error("thicknesses", "must be in increasing order")
     else:

@@ -35,7 +35,7 @@ from layers.catalogue import not_a_run
 from layers.errors import CaseError
 from layers.formatting import display_units, format_utc
 from layers.plots import plot_comparison, save_figure
-from layers.results import cf_encoding, exists_error, refuse_existing, write_output
+from layers.results import cf_encoding, exists_error, read_netcdf, refuse_existing, write_output
 
 #: Output suffixes of ``layers compare -o``.
 IMAGE_SUFFIXES = (".png", ".svg", ".pdf")
@@ -53,13 +53,7 @@ def load_run(path: str | os.PathLike) -> xr.Dataset:
         If the file cannot be read or is not a layers run.
     """
     path = Path(path)
-    if not path.is_file():
-        raise CaseError(str(path), "(file)", "no such file")
-    try:
-        with xr.open_dataset(path, engine="netcdf4") as ds:
-            ds = ds.load()
-    except Exception as exc:  # noqa: BLE001 - any reader failure is bad input, not an internal error
-        raise CaseError(str(path), "(file)", f"cannot read as netCDF ({type(exc).__name__}: {exc})") from None
+    ds = read_netcdf(path)
     problem = not_a_run(list(ds.attrs), list(ds.variables), ds.attrs.get("product"))
     if problem:
         raise CaseError(str(path), "(file)", problem)
@@ -742,7 +736,7 @@ def check_comparison_output(out: str | os.PathLike) -> None:
     suffix = Path(out).suffix.lower()
     if suffix not in (*IMAGE_SUFFIXES, ".nc"):
         raise CaseError(str(out), "-o", "use a .png, .svg or .pdf file for a plot, or .nc for the combined Dataset")
-    refuse_existing(out)
+    refuse_existing(out, (*IMAGE_SUFFIXES, ".nc"))
 
 
 def write_comparison(comparison: Comparison, out: str | os.PathLike) -> Path:

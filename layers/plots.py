@@ -1011,17 +1011,9 @@ def open_run(path: str | os.PathLike) -> xr.Dataset:
     CaseError
         A missing file or one that is not netCDF (key ``run``).
     """
-    path = Path(path)
-    if not path.is_file():
-        raise CaseError(str(path), "run", "no such file")
-    try:
-        with xr.open_dataset(path) as ds:
-            ds = ds.load()
-    except Exception as exc:  # noqa: BLE001 - whatever the netCDF reader says, the file is not a run
-        reason = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
-        raise CaseError(str(path), "run", f"cannot read it as netCDF ({reason})") from None
-    ds.encoding["source"] = str(path)
-    return ds
+    from layers.results import read_netcdf
+
+    return read_netcdf(path, "run")
 
 
 def plot_file(

@@ -217,8 +217,32 @@ def exists_error(path: str | os.PathLike) -> CaseError:
     return CaseError(str(path), "-o", "exists already; layers never overwrites a file (choose another name)")
 
 
-def refuse_existing(path: str | os.PathLike | None) -> None:
-    """Refuse an output path that exists, before any work is done."""
+def read_netcdf(path: str | os.PathLike, key: str = "(file)") -> xr.Dataset:
+    """Open a file the tool wrote, fully into memory (the file is closed again).
+
+    Raises
+    ------
+    CaseError
+        If the file is missing or no netCDF file (a case file gets a hint to run it first).
+    """
+    path = Path(path)
+    if not path.is_file():
+        raise CaseError(str(path), key, "no such file")
+    try:
+        with xr.open_dataset(path, engine="netcdf4") as ds:
+            ds = ds.load()
+    except Exception:  # noqa: BLE001 - whatever the reader says, the file is not one of ours
+        hint = "; it looks like a case file: run it first (layers run CASE.toml)" if path.suffix.lower() == ".toml" else ""
+        raise CaseError(str(path), key, f"is not a netCDF file layers can read{hint}") from None
+    ds.encoding["source"] = str(path)
+    return ds
+
+
+def refuse_existing(path: str | os.PathLike | None, suffixes: tuple[str, ...] = (".nc",)) -> None:
+    """Refuse an output path that exists, or whose suffix is not one the command
+    writes (a netCDF run under a .png name), before any work is done."""
+    if path and Path(path).suffix.lower() not in suffixes:
+        raise CaseError(str(path), "-o", f"this command writes {' or '.join(suffixes)} files; give the name such a suffix")
     if path and Path(path).exists():
         raise exists_error(path)
 

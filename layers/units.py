@@ -27,9 +27,17 @@ if TYPE_CHECKING:
 _POWER = re.compile(r"(?<=[A-Za-z\)])([23])(?![\d.])")
 
 
+#: How the trade writes compound units without brackets, and what they mean.
+_TRADE_UNITS = {"W/m2K": "W/(m2*K)", "W/mK": "W/(m*K)", "W/m2/K": "W/(m2*K)", "W/m/K": "W/(m*K)", "J/kgK": "J/(kg*K)"}
+
+
 def _powers(text: str) -> str:
-    """Read ``m2`` and ``m3`` as ``m**2`` and ``m**3`` (the trade writes them so)."""
-    return _POWER.sub(r"**\1", text.replace("²", "2").replace("³", "3"))
+    """Read ``m2`` and ``m3`` as ``m**2`` and ``m**3``, and ``W/m2K`` as
+    ``W/(m2*K)`` (the trade writes them so)."""
+    text = text.replace("²", "2").replace("³", "3")
+    for written, meant in _TRADE_UNITS.items():
+        text = re.sub(rf"(?<![A-Za-z]){re.escape(written)}(?![A-Za-z0-9])", meant, text)
+    return _POWER.sub(r"**\1", text)
 
 
 _OFFSET_UNIT = re.compile(r"(?<![A-Za-z_])(degC|°C|celsius|degree_Celsius|degF|°F|fahrenheit|degree_Fahrenheit)(?![A-Za-z_])")

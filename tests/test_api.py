@@ -276,7 +276,7 @@ def test_open_run_refuses_what_is_not_a_run(tmp_path):
         layers.open_run(tmp_path / "missing.nc")
     text = tmp_path / "notes.nc"
     text.write_text("not netCDF")
-    with pytest.raises(CaseError, match="cannot read as netCDF"):
+    with pytest.raises(CaseError, match="is not a netCDF file layers can read"):
         layers.open_run(text)
 
 

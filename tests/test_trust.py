@@ -150,3 +150,43 @@ def test_the_last_state_is_kept_when_output_every_does_not_divide_the_run(tmp_pa
     with xr.open_dataset(path) as ds:
         hours = (ds["time"].values - ds["time"].values[0]) / 3600e9
         assert list(hours.astype(float)) == [0.0, 2.0, 4.0, 5.0]
+
+
+@pytest.mark.parametrize(
+    "old,new,key",
+    [
+        ('thickness = "200 mm"', "thickness = 15", "layers[1].thickness"),  # 15 m of brick: mm without their unit
+        ('[inside]', '[sizing]\nlayer = 1\nthicknesses = [20, 30]\nmax_heat_loss = "100 W/m2"\n[inside]', "sizing.thicknesses[1]"),
+    ],
+)
+def test_bare_lengths_of_a_metre_or_more_get_a_hint(tmp_path, capsys, old, new, key):
+    """A bare thickness is metres; 1 m or more written bare is almost always
+    millimetres without their unit, and is refused with a hint."""
+    case = tmp_path / "c.toml"
+    case.write_text(OK.replace(old, new, 1))
+    assert main(["check", str(case)]) == 2
+    err = capsys.readouterr().err
+    assert key in err and "mm" in err
+
+
+def test_run_output_must_be_netcdf(tmp_path, capsys):
+    """`run -o copy.png` would have written netCDF under a picture's name."""
+    case = tmp_path / "c.toml"
+    case.write_text(OK)
+    assert main(["run", str(case), "-o", str(tmp_path / "copy.png"), "--archive", str(tmp_path / "runs")]) == 2
+    assert ".nc" in capsys.readouterr().err and not (tmp_path / "runs").exists()
+
+
+def test_trade_spellings_of_compound_units_are_read():
+    """W/m2K and W/mK as the trade writes them (and as `check` prints them)."""
+    from layers.units import parse_quantity
+
+    assert parse_quantity("8 W/m2K", "film_coefficient") == pytest.approx(8.0)
+    assert parse_quantity("0.035 W/mK", "conductivity") == pytest.approx(0.035)
+
+
+def test_plotting_a_case_file_says_to_run_it_first(tmp_path, capsys):
+    case = tmp_path / "c.toml"
+    case.write_text(OK)
+    assert main(["plot", str(case)]) == 2
+    assert "run it first" in capsys.readouterr().err
