@@ -918,6 +918,19 @@ class Forcing:
         """True for a generated cycle."""
         return self._func is not None
 
+    def linear_between_steps(self, start: np.datetime64, step: float, n_steps: int) -> bool:
+        """Whether the forcing is linear between the steps of a run from ``start``
+        [UTC] with ``n_steps`` steps of ``step`` [s]: a constant, or a series whose
+        samples within the run all fall on step times (a generated cycle is not)."""
+        if self._value is not None:
+            return True
+        if self._func is not None:
+            return False
+        offset = (start - self._t0) / np.timedelta64(1, "s")
+        inside = self._x[(self._x > offset) & (self._x < offset + step * n_steps)] - offset
+        steps = inside / step
+        return bool(np.all(np.abs(steps - np.round(steps)) < 1e-6))
+
     def span(self) -> tuple[np.datetime64, np.datetime64] | None:
         """First and last time covered (UTC), or ``None`` when defined at all times."""
         if self._x is None:

@@ -15,6 +15,7 @@ import numpy as np
 import xarray as xr
 
 from layers.case import Case
+from layers.series import Forcing
 from layers.errors import CaseError
 from layers.constants import ABSOLUTE_ZERO_CELSIUS
 from layers.contents import WaterNode
@@ -71,7 +72,24 @@ def scheme_for(case: Case, system: System) -> str:
     linear case (:func:`layers.exact.is_exact_ready`), else the stepping scheme."""
     requested = case.time.scheme
     if requested in ("auto", "exact") and is_exact_ready(system):
-        return "exact"
+        plan = case.time
+        rough = [
+            f"{spec.side}.{name}"
+            for spec in (case.inside, case.outside)
+            for name, forcing in spec.values.items()
+            if isinstance(forcing, Forcing) and not forcing.linear_between_steps(plan.start, plan.step, plan.n_steps)
+        ]
+        if not rough:
+            return "exact"
+        if requested == "exact":
+            warnings.warn(
+                f"{case.path}: the exact path takes {', '.join(rough)} linear between steps of {plan.step:g} s, but it is a "
+                "generated cycle or a series sampled between the steps; its error is that interpolation's "
+                "(a step on the series' own times, or tr-bdf2, avoids it)",
+                UserWarning,
+                stacklevel=4,
+            )
+            return "exact"
     if requested == "exact":
         what = "contents in the bore" if system.water is not None else (
             "an automatic film" if (system.inside.auto or system.outside.auto) else "a temperature-dependent conductivity")

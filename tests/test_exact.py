@@ -143,13 +143,17 @@ def test_exact_at_the_sample_step_matches_a_one_minute_stepping_run(tmp_path, in
 
 
 def test_exact_periodic_start_repeats_itself(tmp_path):
-    """Under a generated daily cycle the exact periodic start is the periodic
-    state: the state after one period equals the start to 1e-9 K (round-off
-    of a 24-step march)."""
+    """Under a generated daily cycle, asked for explicitly, the exact periodic
+    start is the periodic state of the cycle as the exact path sees it
+    (linear between the hours): the state after one period equals the start
+    to 1e-9 K (round-off of a 24-step march).  The run warns that the cycle
+    is interpolated between steps; under auto the case steps with tr-bdf2."""
     text = SLAB.format(cells=30).replace('surface_temperature = "0 degC"\n[time]', 'surface_temperature = "series:c"\n[time]')
     text = text.replace('duration = "1 h"\nstep = "1 h"\ninitial = "0 degC"', 'duration = "1 d"\nstep = "1 h"\ninitial = "periodic"')
     text += '[series.cycles.c]\nmean = "10 degC"\namplitude = "8 K"\n'
-    ds = simulate(_case(text))
+    assert simulate(_case(text)).attrs["scheme"] == "tr-bdf2"
+    with pytest.warns(UserWarning, match="linear between steps"):
+        ds = simulate(_case(text.replace('initial = "periodic"', 'initial = "periodic"\nscheme = "exact"')))
     assert ds.attrs["scheme"] == "exact"
     t = ds["temperature"].values
     np.testing.assert_allclose(t[-1], t[0], atol=1e-9)
@@ -183,3 +187,17 @@ def test_exact_and_the_march_agree_on_a_fine_step():
     exact = exact_march(system, start, 60.0, 240, output_every=60)
     stepped = march(system, start, 5.0, 2880, output_every=720, scheme="tr-bdf2")
     np.testing.assert_allclose(exact.temperature, stepped.temperature, atol=1e-6)
+
+
+def test_auto_takes_the_exact_path_only_where_the_forcing_is_linear_between_steps(tmp_path):
+    """Hourly weather stepped hourly: exact.  The same weather stepped every
+    2 hours (samples between the steps): tr-bdf2.  Both sides flux or
+    adiabatic (a singular system): tr-bdf2."""
+    _weather(tmp_path)
+    assert simulate(_case(WALL.format(step="1 h", initial="steady", scheme="auto"), tmp_path)).attrs["scheme"] == "exact"
+    coarse = WALL.format(step="2 h", initial="steady", scheme="auto").replace('output_every = "1 h"', 'output_every = "2 h"')
+    assert simulate(_case(coarse, tmp_path)).attrs["scheme"] == "tr-bdf2"
+    boxed = SLAB.format(cells=10).replace(
+        '[inside]\ntype = "temperature"\nsurface_temperature = "0 degC"', '[inside]\ntype = "flux"\nheat_flux = "5 W/m2"'
+    ).replace('[outside]\ntype = "temperature"\nsurface_temperature = "0 degC"', '[outside]\ntype = "adiabatic"')
+    assert simulate(_case(boxed)).attrs["scheme"] == "tr-bdf2"
