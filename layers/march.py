@@ -843,7 +843,7 @@ def march(
             # differ from those of the state by at most the chord's iteration
             # tolerance times a conductance change below REFACTOR_TOLERANCE)
             records.add(state, q_in, q_out)
-        if progress is not None and ((k + 1) % report == 0 or k == 0):
+        if progress is not None and ((k + 1) % report == 0 or k == 0 or k == n_steps - 1):
             progress(k + 1)
     if st.unconverged:
         warnings.warn(
