@@ -280,12 +280,20 @@ def main(argv: Sequence[str] | None = None) -> int:
     try:
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("default")
+            refused = False
             try:
                 return int(args.func(args))
+            except CaseError:
+                refused = True
+                raise
             finally:
                 seen = set()
                 for w in caught:
                     text = str(w.message)
+                    # a refusal is one line: the arithmetic warnings that led up to it
+                    # (overflow, divide by zero) are symptoms of the same bad input
+                    if refused and issubclass(w.category, RuntimeWarning):
+                        continue
                     if text not in seen and not issubclass(w.category, DeprecationWarning):
                         seen.add(text)
                         _err(f"warning: {text}")
