@@ -217,7 +217,8 @@ def run_cautions(ds: xr.Dataset, case: Case) -> list[str]:
 
     - touch: the outside surface reaches :data:`TOUCH_WATCH`;
     - condensation: a surface with a dew point is colder than its air;
-    - freezing: the bore holds stagnant contents.
+    - freezing: the bore holds stagnant contents that reach 0 degC within the run,
+      or whose outside air goes below 0 degC.
     """
     from layers.sizing import CAUTION_DEW, CAUTION_FREEZE, CAUTION_TOUCH
 
@@ -236,8 +237,10 @@ def run_cautions(ds: xr.Dataset, case: Case) -> list[str]:
         if case.geometry == "planar" and np.nanmin(surface - ds[dew].values) < WALL_DEW_WATCH:
             out.append(CAUTION_WALL_DEW)
             break
-    if case.inside.kind == "contents":
-        out.append(CAUTION_FREEZE)
+    freezes = math.isfinite(float(ds.attrs.get("time_to_freezing_h", math.nan)))
+    cold_air = "air_temperature_outside" in ds and float(np.nanmin(ds["air_temperature_outside"].values)) < 0.0
+    if case.inside.kind == "contents" and (freezes or cold_air):
+        out.append(CAUTION_FREEZE)  # where the contents reach 0 degC, or could later under freezing air
     out.append(str(ds.attrs.get("caution", CAUTION)))
     return out
 
@@ -294,10 +297,13 @@ def run_summary(ds: xr.Dataset, case: Case | None = None) -> str:
         def _h(v: float) -> str:
             return f"{v:.2f} h" if math.isfinite(v) else "not within the run"
 
-        lines.append(
-            f"  contents: first at 0 degC after {_h(ds.attrs['time_to_freezing_h'])}; "
-            f"{ds.attrs['max_ice_fraction']:g} ice after {_h(ds.attrs['freeze_time_h'])}"
-        )
+        if math.isfinite(float(ds.attrs["time_to_freezing_h"])):
+            lines.append(
+                f"  contents: first at 0 degC after {_h(ds.attrs['time_to_freezing_h'])}; "
+                f"{ds.attrs['max_ice_fraction']:g} ice after {_h(ds.attrs['freeze_time_h'])}"
+            )
+        else:
+            lines.append(f"  contents: do not reach 0 degC within the run (lowest {float(np.nanmin(ds['contents_temperature'].values)):.2f} degC)")
     lines.append(f"  energy balance error (relative): {ds.attrs['energy_balance_error']:.1e}")
     if ds.attrs.get("series_filled"):
         lines.append(f"  series values filled by fill_gaps (linear in time): {ds.attrs['series_filled']}")
@@ -393,7 +399,10 @@ def auto_film_note(case: Case) -> str | None:
             parts.append(f"{ex.side}: ISO 6946 expression, emissivity {spec.emissivity:g}, {how}")
         if ex.kind == "film" and ex.has_sun_or_sky:
             parts.append(f"{ex.side}: sun and sky do not enter the dynamic characteristics")
-    return "  (auto films as fixed resistances: " + "; ".join(parts) + ")" if parts else None
+    if not parts:
+        return None
+    heading = "auto films as fixed resistances" if any(ex.kind == "film" and ex.auto for ex in exchanges(case)) else "left out"
+    return f"  ({heading}: " + "; ".join(parts) + ")"
 
 
 class PeriodicReport(NamedTuple):

@@ -190,3 +190,21 @@ def test_plotting_a_case_file_says_to_run_it_first(tmp_path, capsys):
     case.write_text(OK)
     assert main(["plot", str(case)]) == 2
     assert "run it first" in capsys.readouterr().err
+
+
+def test_contents_that_never_freeze_get_no_freeze_lines(tmp_path, capsys):
+    """A water-filled sphere in warm air never reaches 0 degC: the summary says
+    so, and no freeze caution is printed (it printed 'first at 0 degC after
+    not within the run' and the freezing caution)."""
+    case = tmp_path / "warm.toml"
+    case.write_text(
+        '[geometry]\nkind = "sphere"\ninner_radius = "100 mm"\n[[layers]]\nmaterial = "steel"\nthickness = "3 mm"\n'
+        '[[layers]]\nmaterial = "mineral-wool"\nthickness = "50 mm"\n'
+        '[inside]\ntype = "contents"\ncontents = "water"\ninitial_temperature = "20 degC"\n'
+        '[outside]\ntype = "film"\nair_temperature = "5 degC"\nfilm_coefficient = "10 W/(m2*K)"\n'
+        '[time]\nduration = "6 h"\nstep = "10 min"\ninitial = "20 degC"\n'
+    )
+    assert main(["run", str(case), "--archive", str(tmp_path / "runs")]) == 0
+    out = capsys.readouterr().out
+    assert "do not reach 0 degC within the run" in out
+    assert "Insulation alone only delays freezing" not in out
