@@ -106,11 +106,15 @@ def size(case: Case, progress: Callable[[int, int], None] | None = None) -> xr.D
     data["surface_temperature_outside"] = ("thickness", ts, {"units": "degC", "long_name": "outside surface temperature at steady design conditions"})
     data["heat_flow"] = ("thickness", q, {"units": flow_units, "long_name": "steady heat flow from inside to outside at design conditions"})
     data["surface_temperature_inside"] = ("thickness", st.surface_temperature_inside, {"units": "degC", "long_name": "inside surface temperature at steady design conditions"})
+    for side, film in (("inside", st.film_inside), ("outside", st.film_outside)):
+        if np.isfinite(film).any():  # the film coefficient each candidate was sized with
+            data[f"film_coefficient_{side}"] = ("thickness", film, {"units": "W m-2 K-1", "long_name": f"{side} surface film coefficient at steady design conditions (convection plus radiation)"})
     if s.max_surface_temperature is not None:
         margin = s.max_surface_temperature - ts
         passes["max_surface_temperature"] = margin >= 0
         data["margin_max_surface_temperature"] = ("thickness", margin, {"units": "K", "long_name": "touch limit minus outside surface temperature"})
         attrs["max_surface_temperature"] = s.max_surface_temperature
+        attrs["max_surface_temperature_units"] = "degC"
     if s.dew_point_margin is not None:
         from layers.exchange import in_seconds
         from layers.psychrometrics import dew_point
@@ -123,13 +127,16 @@ def size(case: Case, progress: Callable[[int, int], None] | None = None) -> xr.D
         passes["dew_point_margin"] = margin >= 0
         data["margin_dew_point_margin"] = ("thickness", margin, {"units": "K", "long_name": "outside surface temperature minus (dew point + margin)"})
         attrs["dew_point"] = td
+        attrs["dew_point_units"] = "degC"
         attrs["dew_point_margin"] = s.dew_point_margin
+        attrs["dew_point_margin_units"] = "K"
         attrs["dew_point_source"] = "ISO 13788:2012 saturation vapour pressure (over water, over ice below 0 degC)"
     if s.max_heat_loss is not None:
         margin = s.max_heat_loss - np.abs(q)
         passes["max_heat_loss"] = margin >= 0
         data["margin_max_heat_loss"] = ("thickness", margin, {"units": flow_units, "long_name": "heat-loss budget minus the magnitude of the heat flow"})
         attrs["max_heat_loss"] = s.max_heat_loss
+        attrs["max_heat_loss_units"] = flow_units
     limited = [(j, spec) for j, spec in enumerate(case.layers) if not spec.is_gap and spec.material.max_temperature is not None]
     if limited:
         # the hottest face of each layer with a service limit, against that limit
@@ -158,6 +165,7 @@ def size(case: Case, progress: Callable[[int, int], None] | None = None) -> xr.D
         passes["min_freeze_time"] = reached >= s.min_freeze_time
         data["margin_min_freeze_time"] = ("thickness", np.where(np.isfinite(margin), margin, np.nan), {"units": "h", "long_name": "freeze time minus the required time (NaN: no freezing within the run)"})
         attrs["min_freeze_time_h"] = s.min_freeze_time / 3600.0
+        attrs["min_freeze_time_h_units"] = "h"
         attrs["max_ice_fraction"] = s.max_ice_fraction
         attrs["run_duration_h"] = case.time.duration / 3600.0
         attrs["scheme"] = case.time.scheme
@@ -168,6 +176,7 @@ def size(case: Case, progress: Callable[[int, int], None] | None = None) -> xr.D
     all_ok = np.logical_and.reduce(list(passes.values())) if passes else np.zeros(thick.size, bool)
     data["passes_all"] = ("thickness", all_ok, {"long_name": "candidate meets every criterion"})
     recommended = float(thick[np.argmax(all_ok)]) if all_ok.any() else math.nan
+    attrs["recommended_thickness_units"] = "m"
     ds = xr.Dataset(
         data,
         coords={"thickness": ("thickness", thick, {"units": "m", "long_name": f"thickness of layer {s.layer} ({case.layers[s.layer - 1].name})"})},

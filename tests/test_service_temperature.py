@@ -73,3 +73,12 @@ def test_a_material_within_its_limit_passes():
     ds = size(_case(HOT_PIR.replace('"pir"', '"mineral-wool"')))
     assert ds["passes_service_temperature"].values.all()
     assert ds.attrs["recommended_thickness"] == pytest.approx(float(ds["thickness"][np.argmax(ds["passes_all"].values)]))
+
+
+def test_sizing_stores_its_film_coefficients_and_the_units_of_its_limits():
+    """The film each candidate was sized with is in the file (here the fixed
+    10 W/(m2 K) of the case: exact), and every limit attribute names its unit."""
+    ds = size(_case(HOT_PIR.replace('"pir"', '"mineral-wool"')))
+    np.testing.assert_allclose(ds["film_coefficient_outside"].values, 10.0, rtol=1e-12)
+    assert ds["film_coefficient_outside"].attrs["units"] == "W m-2 K-1"
+    assert ds.attrs["max_surface_temperature_units"] == "degC" and ds.attrs["recommended_thickness_units"] == "m"
