@@ -1047,6 +1047,11 @@ def plot_file(
     """
     _use_agg()
     ds = open_run(run)
+    product = str(ds.attrs.get("product", "run"))
+    if product == "comparison" or "run" in ds.dims:
+        raise CaseError(str(run), "(file)", "is a comparison Dataset; draw it with `layers compare RUN_A.nc RUN_B.nc -o OUT.png`")
+    if product == "periodic":
+        raise CaseError(str(run), "(file)", "holds ISO 13786 characteristics (numbers, no time series); `layers periodic CASE.toml` prints them")
     kind = kind or ("sizing" if _is_sizing(ds) else "surfaces")
     if kind not in KINDS:
         raise CaseError(str(run), "--kind", f"unknown kind {kind!r}; choose one of {', '.join(KINDS)}")

@@ -208,3 +208,18 @@ def test_contents_that_never_freeze_get_no_freeze_lines(tmp_path, capsys):
     out = capsys.readouterr().out
     assert "do not reach 0 degC within the run" in out
     assert "Insulation alone only delays freezing" not in out
+
+
+def test_plot_of_a_comparison_file_is_refused_with_a_hint(tmp_path, capsys):
+    """`plot` of what `compare -o X.nc` wrote crashed (exit 3); now exit 2 with the command to use."""
+    case = tmp_path / "a.toml"
+    case.write_text(OK)
+    runs = tmp_path / "runs"
+    assert main(["run", str(case), "--archive", str(runs), "--quiet"]) == 0
+    assert main(["run", str(case), "--archive", str(runs), "--quiet"]) == 0
+    first, second = sorted(runs.glob("*.nc"))
+    both = tmp_path / "both.nc"
+    assert main(["compare", str(first), str(second), "-o", str(both)]) == 0
+    capsys.readouterr()
+    assert main(["plot", str(both)]) == 2
+    assert "layers compare" in capsys.readouterr().err
