@@ -821,7 +821,7 @@ def _parse_time(t: _Table, series: Series | None, timezone: str) -> TimePlan:
         raise t.error("initial", f"must be a temperature, \"steady\" or \"periodic\"; got {initial!r}")
     else:
         initial_value = parse_temperature(initial, file=file, key=t.key("initial"))
-    from layers.march import SCHEME_NAMES
+    from layers.schemes import SCHEME_NAMES
 
     scheme = t.get("scheme", "auto")
     if scheme not in SCHEME_NAMES:

@@ -21,7 +21,8 @@ from layers.constants import ABSOLUTE_ZERO_CELSIUS
 from layers.contents import WaterNode
 from layers.exact import exact_march, exact_periodic_start, is_exact_ready
 from layers.exchange import exchanges, in_seconds
-from layers.march import TOLERANCE, BadConductivity, MarchResult, System, UnphysicalState, march, periodic_start, resolve_scheme, settle
+from layers.march import TOLERANCE, BadConductivity, MarchResult, System, UnphysicalState, march, periodic_start, settle
+from layers.schemes import resolve_scheme
 from layers.mesh import Mesh
 from layers.results import to_dataset
 from layers.steady import cell_temperatures, steady_state

@@ -29,7 +29,8 @@ from hypothesis import strategies as st
 from scipy.linalg import eigh
 
 from layers.case import parse_case
-from layers.march import GAMMA, SCHEMES, march
+from layers.march import march
+from layers.schemes import GAMMA, SCHEMES
 from layers.simulation import simulate, system_for
 
 SLAB = """
