@@ -227,6 +227,14 @@ def exact_march(
         zs = np.empty((m + 1, z.size))
         zs[0] = z
         zs[1:] = _recurrence(decay, z, forced)
+        # every step's surface cells (where the extremes beyond the start lie, by
+        # the maximum principle), not only the kept states
+        surface_cells = np.concatenate([zs[1:] @ row_in, zs[1:] @ row_out])
+        if not np.all((surface_cells > ABSOLUTE_ZERO_CELSIUS) & (surface_cells < HIGHEST_PHYSICAL_TEMPERATURE)):
+            bad = np.flatnonzero(~((surface_cells > ABSOLUTE_ZERO_CELSIUS) & (surface_cells < HIGHEST_PHYSICAL_TEMPERATURE))) % m
+            i = int(bad.min())
+            cells = modal.to_cells @ zs[i + 1]
+            _check_physical(cells, math.nan, t0 + h * (k + i + 1), b_in[i + 1] - modal.g_in * cells[0], b_out[i + 1] - modal.g_out * cells[-1])
         # heat through each surface over each step: int beta - G int T_cell
         starts = zs[:-1]
         part_in = (i0[None, :] * b_in[:-1, None] + i1[None, :] * b_in[1:, None])

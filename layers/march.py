@@ -751,9 +751,12 @@ def march(
         previous = state.temperature
         freeze.update(t0 + k * h, h, state.enthalpy, enthalpy)
         state = _settled_state(st, temp, enthalpy, c, surfaces)
-        if k % 64 == 63 or (k + 1) % output_every == 0 or k == n_steps - 1:
-            # a state outside physics stays outside it (NaN spreads, a runaway does not
-            # come back), so looking every 64 steps and at every kept state suffices
+        # Every step the two surface cells, where a diffusion problem takes its
+        # extremes beyond those of its start (maximum principle); every 64 steps
+        # and at every kept state all cells and the contents.
+        if not (ABSOLUTE_ZERO_CELSIUS < temp[0] < HIGHEST_PHYSICAL_TEMPERATURE
+                and ABSOLUTE_ZERO_CELSIUS < temp[-1] < HIGHEST_PHYSICAL_TEMPERATURE) \
+                or k % 64 == 63 or (k + 1) % output_every == 0 or k == n_steps - 1:
             _check_physical(temp, system.contents_temperature(enthalpy), t0 + (k + 1) * h, q_in, q_out)
         if water is None:  # with contents, the water is part of the stored energy
             heat_in += e_in

@@ -201,3 +201,21 @@ def test_auto_takes_the_exact_path_only_where_the_forcing_is_linear_between_step
         '[inside]\ntype = "temperature"\nsurface_temperature = "0 degC"', '[inside]\ntype = "flux"\nheat_flux = "5 W/m2"'
     ).replace('[outside]\ntype = "temperature"\nsurface_temperature = "0 degC"', '[outside]\ntype = "adiabatic"')
     assert simulate(_case(boxed)).attrs["scheme"] == "tr-bdf2"
+
+
+def test_a_state_outside_physics_is_caught_between_kept_states():
+    """A flux drawn out of an insulated slab passes absolute zero within hours;
+    with only the last of 240 hourly states kept, the exact path still stops
+    at the first step outside physics (it checks the surface cells, where a
+    diffusion problem's extremes lie, at every step), not at the end."""
+    from layers.march import UnphysicalState
+
+    text = SLAB.format(cells=10).replace(
+        '[inside]\ntype = "temperature"\nsurface_temperature = "0 degC"', '[inside]\ntype = "flux"\nheat_flux = "-3000 W/m2"'
+    )
+    case = _case(text)
+    with pytest.raises(UnphysicalState) as info:
+        exact_march(system_for(case, case.mesh()), np.zeros(case.mesh().n), 3600.0, 240, output_every=240)
+    # the surface cell falls about 15 K an hour near the crossing (7 h here); the
+    # stop comes at the hour it passes absolute zero, long before the kept state
+    assert info.value.time < 24 * 3600.0 and -290.0 < info.value.low <= -273.15
