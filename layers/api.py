@@ -156,6 +156,41 @@ def size(case: Case, progress: Callable[[int, int], None] | None = None) -> xr.D
     return _size(case, progress=progress)
 
 
+def sweep(case: Case, client: Any = None, progress: Callable[[int, int], None] | None = None) -> xr.Dataset:
+    """Run every point of the case's ``[[sweep]]`` grid as one result.
+
+    Parameters
+    ----------
+    case : Case
+        A case with ``[[sweep]]`` tables (name, key, values or range) [-].
+    client : dask.distributed.Client, optional
+        Run the work on this cluster [-]; the numbers equal the serial run's
+        exactly.  None (the default) runs in this process.
+    progress : callable, optional
+        ``progress(points_done, points_total)`` [-].
+
+    Returns
+    -------
+    xarray.Dataset
+        The run variables with the sweep dimensions in front (a variable
+        the points share is kept once), ``temperature`` only with
+        ``keep_temperature = true`` under ``[time]``; per point
+        ``heat_in_inside_total`` [J per reference unit],
+        ``heat_flow_inside_mean`` [W m-2, W m-1 or W] and
+        ``energy_balance_error`` [-]; each swept value as a coordinate with
+        its units; ``product = "sweep"``.
+
+    Raises
+    ------
+    CaseError
+        If the case has no ``[[sweep]]``, or a point's case is not valid
+        (the message names the point).
+    """
+    from layers.sweep import sweep as _sweep
+
+    return _sweep(case, client=client, progress=progress)
+
+
 def periodic(case: Case, period: str | float = "24 h") -> xr.Dataset:
     """ISO 13786 dynamic thermal characteristics of the case's (planar) construction.
 

@@ -8,6 +8,7 @@ forcing functions of time.
 
 from __future__ import annotations
 
+import contextlib
 import datetime as dt
 import hashlib
 import math
@@ -26,6 +27,7 @@ from layers.materials import Material, material_from_table, resolve
 from layers.mesh import GEOMETRIES, LayerSpec, Mesh, MeshRule, build_mesh
 from layers.series import RANGES, Clock, ColumnSpec, Forcing, Series, daily_cycle, read_series
 from layers.units import parse_quantity, parse_temperature
+from layers.variation import SweepDim, UncertaintySpec, parse_sweep, parse_uncertainty
 
 BOUNDARY_TYPES = ("film", "temperature", "flux", "adiabatic", "contents")
 INITIAL_WORDS = ("steady", "periodic")
@@ -44,7 +46,7 @@ MIN_LAYER_THICKNESS = 1e-6
 #: low enough to catch a max_cell written in the wrong unit.
 MAX_CELLS = 20000
 #: The tables and keys of the top level of a case file.
-TOP_LEVEL_KEYS = ("title", "label", "geometry", "materials", "layers", "mesh", "series", "inside", "outside", "time", "sizing")
+TOP_LEVEL_KEYS = ("title", "label", "geometry", "materials", "layers", "mesh", "series", "inside", "outside", "time", "sizing", "sweep", "uncertainty")
 
 
 class _Table:
@@ -145,6 +147,7 @@ class TimePlan:
     initial: float | str
     scheme: str
     period: float = 86400.0
+    keep_temperature: bool | None = None  # the cell field in the result; None: runs yes, sweeps no
 
     @property
     def n_steps(self) -> int:
@@ -191,15 +194,23 @@ class Case:
     orientation: str = "horizontal"     # cylinders: horizontal | vertical
     height: float | None = None         # vertical cylinder: height of the run [m]
     provenance: dict[str, str] = field(default_factory=dict)  # a re-run: where it came from
+    sweep: tuple[SweepDim, ...] = ()     # [[sweep]] dimensions
+    uncertainty: UncertaintySpec | None = None
     record_paths: bool = False  # record the user's absolute case and series paths in results
+    base_dir: Path | None = None  # where its series file was looked for
 
     @property
     def stem(self) -> str:
         return Path(self.path).stem
 
     def mesh(self) -> Mesh:
-        """The finite-volume mesh of this case (:func:`layers.mesh.build_mesh`)."""
-        return build_mesh(self.layers, self.mesh_rule, self.geometry, self.inner_radius)
+        """The finite-volume mesh of this case (:func:`layers.mesh.build_mesh`), built once."""
+        key = (self.layers, self.mesh_rule, self.geometry, self.inner_radius)
+        cached = self.__dict__.get("_mesh")
+        if cached is None or any(a is not b for a, b in zip(cached[0], key)):
+            cached = (key, build_mesh(self.layers, self.mesh_rule, self.geometry, self.inner_radius))
+            self.__dict__["_mesh"] = cached
+        return cached[1]
 
     @property
     def reference_unit(self) -> str:
@@ -366,6 +377,10 @@ def parse_case(
             "use 'steady' (the insulation in steady state with the contents at their initial_temperature) or a temperature",
         )
 
+    sweep = parse_sweep(top.get("sweep"), data, file)
+    uncertainty = parse_uncertainty(top.get("uncertainty"), data, file)
+    if sweep and uncertainty is not None:
+        raise CaseError(file, "uncertainty", "a case sweeps or samples, not both at once (run the sweep, then sample the chosen design)")
     sizing = None
     if top.has("sizing"):
         sizing = _parse_sizing(_Table(top.get("sizing"), file, "sizing"), layers, geometry, inside, outside, time, timezone)
@@ -388,6 +403,9 @@ def parse_case(
         sizing=sizing,
         materials=materials,
         label=str(label),
+        sweep=sweep,
+        uncertainty=uncertainty,
+        base_dir=base_dir,
     )
 
 
@@ -521,7 +539,34 @@ def _column_kind(unit: str) -> str:
     return "unknown"
 
 
+#: While :func:`reusing_series` is active: series tables already read, by what
+#: they say and where they were read from (the variants of a sweep share one).
+_SERIES_READ: dict | None = None
+
+
+@contextlib.contextmanager
+def reusing_series():
+    """Read each distinct ``[series]`` table once while the block runs (a sweep
+    parses its case once per point; the series file does not change meanwhile)."""
+    global _SERIES_READ
+    outer = _SERIES_READ
+    _SERIES_READ = {} if outer is None else outer
+    try:
+        yield
+    finally:
+        _SERIES_READ = outer
+
+
 def _parse_series(value: Any, file: str, base_dir: Path, series_dir: Path | None = None):
+    if _SERIES_READ is not None and value is not None:
+        key = (repr(value), file, str(base_dir), str(series_dir))
+        if key not in _SERIES_READ:
+            _SERIES_READ[key] = _read_series_table(value, file, base_dir, series_dir)
+        return _SERIES_READ[key]
+    return _read_series_table(value, file, base_dir, series_dir)
+
+
+def _read_series_table(value: Any, file: str, base_dir: Path, series_dir: Path | None = None):
     if value is None:
         return None, {}, {}, "UTC"
     t = _Table(value, file, "series")
@@ -827,6 +872,9 @@ def _parse_time(t: _Table, series: Series | None, timezone: str) -> TimePlan:
     if scheme not in SCHEME_NAMES:
         raise t.error("scheme", f"unknown scheme {scheme!r}; use one of {', '.join(SCHEME_NAMES)}")
     period = _positive(t.get("period", "24 h"), "duration", t, "period")
+    keep = t.get("keep_temperature", None)
+    if keep is not None and not isinstance(keep, bool):
+        raise t.error("keep_temperature", "must be true or false")
     if initial_value == "periodic":
         p = period / step
         if abs(p - round(p)) > 1e-6 * p:
@@ -840,6 +888,7 @@ def _parse_time(t: _Table, series: Series | None, timezone: str) -> TimePlan:
         initial=initial_value,
         scheme=scheme,
         period=period,
+        keep_temperature=keep,
     )
 
 

@@ -87,7 +87,7 @@ def headline_attributes(ds: xr.Dataset) -> dict[str, float | str]:
     """
     seconds = (ds["time"].values - ds["time"].values[0]) / np.timedelta64(1, "s")
     flow = ds["heat_flow_inside"]
-    return _headline(
+    return headline_values(
         seconds=seconds.astype(float),
         start=format_utc(ds["time"].values[0]),
         end=format_utc(ds["time"].values[-1]),
@@ -99,7 +99,7 @@ def headline_attributes(ds: xr.Dataset) -> dict[str, float | str]:
     )
 
 
-def _headline(
+def headline_values(
     *,
     seconds: np.ndarray,
     start: str,
@@ -342,7 +342,7 @@ def _headline_from_variables(nc: Any, names: Sequence[str]) -> dict[str, float |
     flow = nc.variables["heat_flow_inside"]
     inside = nc.variables.get("surface_temperature_inside")
     heat_in = nc.getncattr("heat_in_inside_total") if "heat_in_inside_total" in names else None
-    return _headline(
+    return headline_values(
         seconds=seconds.astype(float),
         start=format_utc(when[0]),
         end=format_utc(when[-1]),

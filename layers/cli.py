@@ -130,6 +130,67 @@ def cmd_size(args: argparse.Namespace) -> int:
     return EXIT_OK if math.isfinite(rec) else EXIT_FAILED
 
 
+#: Most local worker processes ``--workers`` starts.
+MAX_WORKERS = 64
+
+
+def _client(args: argparse.Namespace):
+    """A dask.distributed client for ``--workers N`` (a local cluster of N
+    processes) or ``--scheduler ADDRESS`` (an existing cluster); None: serial."""
+    if args.workers is not None and args.scheduler:
+        raise CaseError("(command line)", "--workers", "give --workers N or --scheduler ADDRESS, not both")
+    if args.workers is None and not args.scheduler:
+        return None, None
+    from dask.distributed import Client, LocalCluster
+
+    if args.workers is not None:
+        if not 1 <= args.workers <= MAX_WORKERS:
+            raise CaseError("(command line)", "--workers", f"must be from 1 to {MAX_WORKERS}, got {args.workers}")
+        cluster = LocalCluster(n_workers=args.workers, threads_per_worker=1, processes=True, dashboard_address=None)
+        return Client(cluster), cluster
+    try:
+        return Client(args.scheduler, timeout="15s"), None
+    except (OSError, TimeoutError, ValueError) as exc:
+        raise CaseError("(command line)", "--scheduler", f"cannot reach the scheduler at {args.scheduler!r} ({exc})") from None
+
+
+def cmd_sweep(args: argparse.Namespace) -> int:
+    import shlex
+
+    from layers.case import load_case
+    from layers.report import run_cautions, sweep_summary
+    from layers.results import archive, archive_dir, refuse_existing, usable_folder, write_output
+    from layers.sweep import sweep
+
+    refuse_existing(args.out)
+    usable_folder(archive_dir(args.archive), make=False)
+    case = load_case(args.case)
+    if not case.sweep:
+        raise CaseError(case.path, "sweep", "is required by 'layers sweep' (add one or more [[sweep]] tables)")
+    case.record_paths = bool(args.record_paths)
+    client, cluster = _client(args)
+    progress = _Progress(args.quiet, f"{case.stem} sweep")
+    try:
+        ds = sweep(case, client=client, progress=progress)
+    finally:
+        progress.close()
+        if client is not None:
+            client.close()
+        if cluster is not None:
+            cluster.close()
+    ds.attrs["command"] = "layers " + shlex.join(args.argv)
+    written = archive(ds, f"{case.stem}-sweep", args.archive)
+    extra = write_output(ds, args.out)
+    if not args.quiet:
+        print(sweep_summary(ds, case))
+    print(f"archived: {written}")
+    if extra:
+        print(f"written:  {extra}")
+    for line in run_cautions(ds, case):
+        print(f"caution: {line}")
+    return EXIT_OK
+
+
 def cmd_check(args: argparse.Namespace) -> int:
     from layers.case import load_case
     from layers.report import check_report
@@ -228,6 +289,16 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--record-paths", action="store_true", help="record the absolute paths of the case and series files in the run")
     r.add_argument("-q", "--quiet", action="store_true", help="no progress bar and no summary (the file written and the caution are still printed)")
     r.set_defaults(func=cmd_run)
+
+    w = sub.add_parser("sweep", help="one run per point of [[sweep]], as one result")
+    w.add_argument("case", help="case file (TOML) with [[sweep]] tables")
+    w.add_argument("-o", "--out", help="also write the result to this netCDF file (never overwritten)")
+    w.add_argument("--archive", help="archive folder (default: $LAYERS_ARCHIVE or runs/)")
+    w.add_argument("--workers", type=int, metavar="N", help="run on a local dask cluster of N worker processes")
+    w.add_argument("--scheduler", metavar="ADDRESS", help="run on an existing dask cluster (e.g. tcp://10.0.0.5:8786)")
+    w.add_argument("--record-paths", action="store_true", help="record the absolute paths of the case and series files")
+    w.add_argument("-q", "--quiet", action="store_true", help="no progress bar and no summary")
+    w.set_defaults(func=cmd_sweep)
 
     c = sub.add_parser("check", help="validate a case; print the mesh and the plan")
     c.add_argument("case")

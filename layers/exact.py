@@ -114,50 +114,399 @@ class ModalSystem:
         _, resistance = thevenin(float(film.h[0]), float(film.t_eq[0]), float(film.q_imposed[0]), float(area))
         return 0.0 if math.isinf(resistance) else 1.0 / (resistance + r_half)
 
-    def drives(self, seconds: np.ndarray) -> tuple[np.ndarray, np.ndarray, dict, dict]:
-        """beta_in, beta_out at ``seconds`` [W per reference unit], and the forcing of each side."""
-        from layers.exchange import thevenin
-
-        out = []
-        forcings = []
-        for ex, g, area in ((self.system.inside, self.g_in, self.system.area_in), (self.system.outside, self.g_out, self.system.area_out)):
+    def forcing(self, seconds: np.ndarray) -> tuple[tuple[dict, object], tuple[dict, object]]:
+        """Each side's forcing and film at ``seconds`` ((inside), (outside)); members
+        of a batch with the same boundaries share it."""
+        pairs = []
+        for ex in (self.system.inside, self.system.outside):
             forcing = ex.forcing(seconds)
-            film = ex.film(forcing, np.zeros(seconds.shape))
-            theta, resistance = thevenin(np.broadcast_to(film.h, seconds.shape), film.t_eq, film.q_imposed, area)
-            imposed = np.broadcast_to(film.q_imposed * area, seconds.shape)
-            beta = np.where(np.isinf(resistance), imposed, g * np.where(np.isinf(resistance), 0.0, theta))
-            out.append(np.asarray(beta, dtype=float) + 0.0 * seconds)
-            forcings.append((forcing, film))
-        return out[0], out[1], forcings[0], forcings[1]
+            pairs.append((forcing, ex.film(forcing, np.zeros(seconds.shape))))
+        return pairs[0], pairs[1]
+
+    def drives(self, seconds: np.ndarray) -> tuple[np.ndarray, np.ndarray, tuple, tuple]:
+        """beta_in, beta_out at ``seconds`` [W per reference unit], and the forcing of each side."""
+        f_in, f_out = self.forcing(seconds)
+        u, open_side = _sources(f_in[1], f_out[1], seconds.shape)
+        gain = np.where(open_side, [self.system.area_in, self.system.area_out], [self.g_in, self.g_out])
+        return gain[0] * u[:, 0], gain[1] * u[:, 1], f_in, f_out
 
 
-def _recurrence(decay: np.ndarray, start: np.ndarray, forced: np.ndarray) -> np.ndarray:
-    """x_i = decay x_(i-1) + forced_i for every mode at once, from x_(-1) = start.
+def _sources(film_in, film_out, shape: tuple) -> tuple[np.ndarray, np.ndarray]:
+    """What drives each side of members that share their films: ``u`` (times,
+    sides) and ``open_side`` (sides,).  Through a film u is the Thevenin source
+    temperature theta (:func:`layers.exchange.thevenin`) and the drive is
+    beta = G u; a side with no film (flux, adiabatic) has u its imposed flux
+    and beta = A u.  G and A are each member's own."""
+    from layers.exchange import thevenin
 
-    A parallel prefix over the steps (Hillis & Steele, Commun. ACM 29, 1986,
-    from memory): after the pass with shift s each x_i holds the sum over the
-    last 2 s steps, so log2(m) array passes replace m scalar ones; the powers
-    of the decay only shrink (0 <= decay <= 1), so nothing overflows.
+    u = np.empty((shape[0], 2))
+    open_side = np.zeros(2, dtype=bool)
+    for side, film in enumerate((film_in, film_out)):
+        theta, resistance = thevenin(np.broadcast_to(film.h, shape), film.t_eq, film.q_imposed, 1.0)
+        none = np.broadcast_to(np.isinf(resistance), shape)
+        if none.any() != none.all():
+            raise ValueError("a linear boundary keeps its film, or its lack of one, throughout")
+        open_side[side] = bool(none[0])
+        u[:, side] = np.broadcast_to(film.q_imposed if open_side[side] else theta, shape)
+    return u, open_side
+
+
+#: A mode whose decay over one step is below e^-SLOW_LIMIT (2e-16) is "fast":
+#: it follows its drive within the step, so its state at a step's end is the
+#: forced term alone and it needs no recurrence.  Only the slow modes (a few
+#: tens in a wall at hourly steps, whatever the number of cells) are carried.
+SLOW_LIMIT = 36.0
+#: Most drive values (members x steps x sides) and modal states (members x steps x slow
+#: modes) a batch holds at once: the march's memory does not grow with the run.
+BLOCK_VALUES = 1 << 22
+CHUNK_VALUES = 1 << 18
+
+
+class BatchResult(NamedTuple):
+    """What :meth:`ModalBatch.run` returns, each with the members in front.
+
+    ``kept_steps`` (m,) are the step numbers kept (0 = the initial state).
+    Temperatures [degC]; ``q_in``/``q_out`` heat into the construction through
+    each surface [W per reference unit]; ``heat_*`` totals over the run [J
+    per reference unit]; ``stored`` [J per reference unit, from 0 degC].
     """
-    x = forced.copy()
-    x[0] += decay * start
-    power = decay.copy()
-    shift = 1
-    while shift < x.shape[0]:
-        previous = x.copy()
-        x[shift:] += power[None, :] * previous[:-shift]
-        power = power * power
-        shift *= 2
-    return x
+
+    kept_steps: np.ndarray
+    temperature: np.ndarray | None      # (B, m, n) with keep_fields, else None
+    interface_temperature: np.ndarray   # (B, m, layers + 1)
+    surface_in: np.ndarray              # (B, m)
+    surface_out: np.ndarray
+    q_in: np.ndarray
+    q_out: np.ndarray
+    stored: np.ndarray
+    t_eq_in: np.ndarray                 # (B, m) the Thevenin drive temperature of each side
+    t_eq_out: np.ndarray
+    film_in: np.ndarray                 # (B, m) film coefficient (NaN where the side has none)
+    film_out: np.ndarray
+    heat_in: np.ndarray                 # (B,)
+    heat_out: np.ndarray
+    heat_abs: np.ndarray
+    final: np.ndarray                   # (B, n), NaN beyond a member's cells
+    final_modes: list                   # each member's modal state at the end
+    drive_range: np.ndarray             # (B, 2) coldest and hottest temperature met at a boundary [degC]
 
 
-class _Film(NamedTuple):
-    h: np.ndarray
-    t_eq: np.ndarray
+class ModalBatch:
+    """Many linear systems, advanced exactly
+    together (see the module docstring); one system is a batch of one.
 
+    Every output of a step (the surface cells, the stored heat, the layer
+    faces, the heat through each surface over the step) is a fixed linear
+    functional of the modal state and of the drives at the step's ends, so
+    the per-variant work is a few small matrices built once: the march
+    itself is one vector recurrence over the slow modes of all members and
+    one batched matrix product per chunk of steps.
+    """
 
-def _films(f_in, f_out, shape) -> dict:
-    return {key: _Film(np.broadcast_to(f.h, shape), np.broadcast_to(f.t_eq, shape)) for key, (_, f) in (("in", f_in), ("out", f_out))}
+    def __init__(self, modals: list[ModalSystem], step: float, groups: list[list[int]] | None = None) -> None:
+        if not modals:
+            raise ValueError("an empty batch")
+        # members may differ in their number of cells: cell arrays are padded to
+        # the largest (NaN in results); the march itself runs on the modes
+        self.cells = np.array([m.system.mesh.n for m in modals])
+        self.modals, self.step, self.n = modals, step, int(self.cells.max())
+        h = step
+        parts = []
+        for modal in modals:
+            mesh = modal.system.mesh
+            n = mesh.n
+            decay, phi1, phi2, phi3 = _phi(modal.lam * h)
+            slow = modal.lam * h < SLOW_LIMIT
+            fast = ~slow
+            w = np.stack([h * (phi1 - phi2), h * phi2])                      # (2 ends, modes): the state at the step's end
+            integral = np.stack([h * h * (phi2 - phi3), h * h * phi3])        # the modes' integral over the step
+            p = np.stack([modal.p_in, modal.p_out])                           # (2 sides, modes)
+            # The rows read at each step's end: surface cells, stored heat, layer
+            # faces (linear in the cells and the surface fluxes: read from the
+            # mesh's own rule applied to unit states, so it is not written twice).
+            faces_t = mesh.interface_temperatures(np.eye(n), modal.k, modal.g, 0.0, 0.0).T
+            faces_q = np.stack([mesh.interface_temperatures(np.zeros(n), modal.k, modal.g, q_in, q_out) for q_in, q_out in ((1.0, 0.0), (0.0, 1.0))], axis=1)
+            rows = np.vstack([np.eye(n)[[0, -1]], modal.system.capacity[None, :], faces_t]) @ modal.to_cells  # (R, modes)
+            # state at a step's end: slow modes carried, fast ones their forced term
+            end_fast = np.einsum("rm,sm,em->res", rows[:, fast], p[:, fast], w[:, fast])  # (R, ends, sides)
+            field_fast = np.einsum("cm,sm,em->ces", modal.to_cells[:, fast], p[:, fast], w[:, fast])
+            # the surface cells' integral over a step: h phi_1 z(start) + forced terms; a fast
+            # mode's start is its forced term of the step before (lags -1, 0, +1 below)
+            surf = rows[:2]
+            lags = np.zeros((2, 3, 2))                                         # (surface, lag, side)
+            lags[:, 1:, :] = np.einsum("rm,sm,em->res", surf, p, integral)
+            start_fast = np.einsum("rm,sm,em->res", surf[:, fast] * (h * phi1[fast]), p[:, fast], w[:, fast])
+            lags[:, :2, :] += start_fast
+            pad = self.n - n
+            field_fast = np.pad(field_fast, ((0, pad), (0, 0), (0, 0)))
+            parts.append(dict(
+                slow=slow, decay=decay[slow], drive=(p[:, None, slow] * w[None, :, slow]),  # (sides, ends, slow)
+                rows=rows[:, slow].T, end_fast=end_fast, lags=lags, start_rows=(surf[:, slow] * (h * phi1[slow])).T,
+                start_fast_rows=surf[:, fast] * (h * phi1[fast]), fast_drive=np.einsum("sm,em->sm", p[:, fast], w[:, fast]),
+                field=np.pad(modal.to_cells[:, slow], ((0, pad), (0, 0))), field_fast=field_fast, faces_q=faces_q,
+            ))
+        self.slow_count = max(int(part["slow"].sum()) for part in parts)
+        ms, b = max(self.slow_count, 1), len(modals)
+        n_rows = parts[0]["rows"].shape[1]
+        self.decay = np.zeros((b, ms))
+        self.drive = np.zeros((b, 2, 2, ms))
+        self.rows = np.zeros((b, ms, n_rows))
+        self.start_rows = np.zeros((b, ms, 2))
+        self.field = np.zeros((b, n, ms))
+        for i, part in enumerate(parts):
+            k = int(part["slow"].sum())
+            self.decay[i, :k] = part["decay"]
+            self.drive[i, :, :, :k] = part["drive"]
+            self.rows[i, :k] = part["rows"]
+            self.start_rows[i, :k] = part["start_rows"]
+            self.field[i, :, :k] = part["field"]
+        # per-step products in one matrix each: the drives at both ends of a step
+        # (B, [beta_i, beta_i+1] x sides, slow) and the rows read at every step
+        # (surface cells at the end, surface cells' integral from the start)
+        self.drive_both = np.concatenate([self.drive[:, :, 0, :], self.drive[:, :, 1, :]], axis=1)
+        self.every_rows = np.concatenate([self.rows[:, :, :2], self.start_rows], axis=2)     # (B, slow, 4)
+        self.kept_rows = np.ascontiguousarray(self.rows[:, :, 2:])                          # (B, slow, R - 2)
+        self.end_fast = np.stack([part["end_fast"] for part in parts])      # (B, R, ends, sides)
+        self.lags = np.stack([part["lags"] for part in parts])              # (B, 2, lags, sides)
+        self.field_fast = np.stack([part["field_fast"] for part in parts])  # (B, n, ends, sides)
+        self.faces_q = np.stack([part["faces_q"] for part in parts])        # (B, faces, sides)
+        # the same, laid out for batched products with the drives (B, steps, sides)
+        self.end_fast_both = np.concatenate([self.end_fast[:, :, e].transpose(0, 2, 1) for e in (0, 1)], axis=1)  # (B, 4, R)
+        self.lags_t = [np.ascontiguousarray(self.lags[:, :, lag].transpose(0, 2, 1)) for lag in (0, 1, 2)]    # (B, sides, 2)
+        self.field_fast_t = [np.ascontiguousarray(self.field_fast[:, :, e].transpose(0, 2, 1)) for e in (0, 1)]  # (B, sides, n)
+        self.g = np.array([[m.g_in, m.g_out] for m in modals])               # (B, sides)
+        self.area = np.array([[m.system.area_in, m.system.area_out] for m in modals])
+        # members with the same boundaries share one forcing evaluation
+        self.groups = [np.array(members) for members in (groups or [[i] for i in range(len(modals))])]
+        # each side is driven through its film (beta = G u) or, with none, by an
+        # imposed flux (beta = A u): the gain of each member, and per group the
+        # products of the gains with the slow modes' drive coefficients (4, members x slow)
+        self.nan_beyond = np.where(np.arange(self.n)[None, :] < self.cells[:, None], 0.0, math.nan)  # (B, n)
+        self.one_group = len(self.groups) == 1 and np.array_equal(self.groups[0], np.arange(b))
+        forcing0 = [self.modals[members[0]].forcing(np.zeros(1)) for members in self.groups]
+        self.open_side = [_sources(f_in[1], f_out[1], (1,))[1] for f_in, f_out in forcing0]
+        open_member = np.zeros((b, 2), dtype=bool)
+        for gi, members in enumerate(self.groups):
+            open_member[members] = self.open_side[gi]
+        self.gain = np.where(open_member, self.area, self.g)
+        self.group_drive = [
+            np.einsum("js,jsem->esjm", self.gain[members], self.drive[members]).reshape(4, -1) for members in self.groups
+        ]
+        self.r_in = np.array([m.r_in for m in modals])
+        self.r_out = np.array([m.r_out for m in modals])
+        self._parts = parts
+
+    def _split(self, state: np.ndarray) -> tuple[np.ndarray, list[np.ndarray]]:
+        """The slow modes (B, slow) of cell states (B, n), and each member's fast ones."""
+        slow = np.zeros((len(self.modals), self.decay.shape[1]))
+        fast = []
+        for i, (modal, part) in enumerate(zip(self.modals, self._parts)):
+            z = modal.to_modes @ state[i, : self.cells[i]]
+            k = int(part["slow"].sum())
+            slow[i, :k] = z[part["slow"]]
+            fast.append(z[~part["slow"]])
+        return slow, fast
+
+    def _drives(self, nodes: np.ndarray, kept_local: np.ndarray, out: dict, at: np.ndarray, ranges: np.ndarray) -> tuple[np.ndarray, list]:
+        """Each member's drives at ``nodes`` (B, nodes, sides) and each group's
+        sources u (nodes, sides) (:func:`_sources`), the forcing computed once per
+        group of members with the same boundaries; records the Thevenin
+        temperatures and films at the kept nodes and the range of every boundary
+        temperature met."""
+        beta = np.empty((len(self.modals), nodes.size, 2))
+        sources = []
+        for gi, members in enumerate(self.groups):
+            f_in, f_out = self.modals[members[0]].forcing(nodes)
+            u, open_side = _sources(f_in[1], f_out[1], nodes.shape)
+            if not np.array_equal(open_side, self.open_side[gi]):
+                raise ValueError("a linear boundary keeps its film, or its lack of one, throughout")
+            beta[members] = self.gain[members][:, None, :] * u[None, :, :]
+            sources.append(u)
+            low, high = math.inf, -math.inf
+            for side, (forcing, film) in (("in", f_in), ("out", f_out)):
+                for name in ("air", "radiant", "surface", "sky"):
+                    if name in forcing:
+                        low, high = min(low, float(np.min(forcing[name]))), max(high, float(np.max(forcing[name])))
+                if kept_local.size:
+                    out[f"t_eq_{side}"][np.ix_(members, at)] = np.broadcast_to(film.t_eq, nodes.shape)[kept_local]
+                    out[f"film_{side}"][np.ix_(members, at)] = np.broadcast_to(film.h, nodes.shape)[kept_local]
+            ranges[members, 0] = np.minimum(ranges[members, 0], low)
+            ranges[members, 1] = np.maximum(ranges[members, 1], high)
+        return beta, sources
+
+    def run(
+        self,
+        initial: np.ndarray,
+        n_steps: int,
+        *,
+        output_every: int = 1,
+        t0: float = 0.0,
+        keep_fields: bool = True,
+        progress: Callable[[int], None] | None = None,
+        record: bool = True,
+    ) -> BatchResult:
+        """March every member from ``initial`` (B, n) [degC] for ``n_steps`` steps,
+        keeping every ``output_every``-th state and the last (``record=False``:
+        only the initial state and the end).
+
+        Raises
+        ------
+        UnphysicalState
+            At the first step where a member's surface cell leaves the
+            physical range; its ``member`` attribute is the member's index.
+        """
+        h, n, b = self.step, self.n, len(self.modals)
+        initial = self.padded(initial)
+        last_cell = self.cells - 1
+        members = np.arange(b)
+        steps = np.arange(1, n_steps + 1)
+        kept_steps = np.concatenate([[0], steps[(steps % output_every == 0) | (steps == n_steps)]]) if record else np.array([0])
+        m = kept_steps.size
+        faces = self.faces_q.shape[1]
+        out = {key: np.full((b, m), math.nan) for key in ("t_eq_in", "t_eq_out", "film_in", "film_out")}
+        cells = np.empty((b, m, 2))
+        q = np.empty((b, m, 2))
+        stored = np.empty((b, m))
+        face_t = np.empty((b, m, faces))
+        fields = np.empty((b, m, n)) if keep_fields else None
+        ranges = np.stack([np.nanmin(initial, axis=1), np.nanmax(initial, axis=1)], axis=1)
+        heat = np.zeros((b, 2))
+        heat_abs = np.zeros(b)
+        z, z_fast = self._split(initial)
+        # drives in blocks of up to BLOCK_VALUES numbers, the recurrence in chunks of
+        # up to CHUNK_VALUES modal states (a flat memory whatever the run's length)
+        block = max(1, min(n_steps, BLOCK_VALUES // (2 * b)))
+        chunk = max(8, min(CHUNK, CHUNK_VALUES // (b * self.decay.shape[1])))
+        g = self.g
+        step_tmp = np.empty_like(z)
+
+        beta0 = self._drives(np.array([t0]), np.array([0]), out, np.array([0]), ranges)[0][:, 0, :]
+        surface0 = np.stack([initial[:, 0], initial[members, last_cell]], axis=1)
+        q0 = beta0 - g * surface0
+        cells[:, 0] = surface0
+        q[:, 0] = q0
+        stored[:, 0] = np.array([initial[i, :c] @ modal.system.capacity for i, (c, modal) in enumerate(zip(self.cells, self.modals))])
+        face_t[:, 0] = np.stack([modal.system.mesh.interface_temperatures(initial[i, :c], modal.k, modal.g, q0[i, 0], q0[i, 1])
+                                 for i, (c, modal) in enumerate(zip(self.cells, self.modals))])
+        if fields is not None:
+            fields[:, 0] = initial
+        beta_prev = beta0
+        last = np.stack([beta0, beta0], axis=1)
+        k0 = 0
+        while k0 < n_steps:
+            nb = min(block, n_steps - k0)
+            nodes = t0 + h * (k0 + np.arange(nb + 1))
+            recorded = np.flatnonzero((kept_steps > k0) & (kept_steps <= k0 + nb))
+            beta_block, sources = self._drives(nodes, kept_steps[recorded] - k0, out, recorded, ranges)   # (B, nb + 1, sides)
+            both_block = np.concatenate([beta_block[:, :-1], beta_block[:, 1:]], axis=2)                # (B, nb, 4)
+            ends_block = [np.concatenate([u[:-1], u[1:]], axis=1) for u in sources]                    # (nb, 4) each
+            for c0 in range(0, nb, chunk):
+                k = k0 + c0
+                mm = min(chunk, nb - c0)
+                beta = beta_block[:, c0:c0 + mm + 1]
+                both = both_block[:, c0:c0 + mm]
+                # every slow mode of every member: z_(i+1) = decay z_i + drive, in place; the
+                # drives of a group of members sharing their boundaries in one product
+                if self.one_group:
+                    zs = (ends_block[0][c0:c0 + mm] @ self.group_drive[0]).reshape(mm, b, -1)
+                else:
+                    zs = np.empty((mm, b, self.decay.shape[1]))
+                    for gi, members in enumerate(self.groups):
+                        zs[:, members] = (ends_block[gi][c0:c0 + mm] @ self.group_drive[gi]).reshape(mm, members.size, -1)
+                zs[0] += self.decay * z
+                for i in range(1, mm):
+                    np.multiply(self.decay, zs[i - 1], out=step_tmp)
+                    zs[i] += step_tmp
+                by_member = zs.transpose(1, 0, 2)                                  # (B, mm, slow)
+                every = by_member @ self.every_rows                                # (B, mm, 4)
+                ends = every[:, :, :2] + both @ self.end_fast_both[:, :, :2]      # surface cells at each step's end
+                self._check_surfaces(ends, by_member, beta, t0 + h * k)
+                # heat through each surface over each step: int beta - G int T_cell
+                before = np.concatenate([beta_prev[:, None, :], beta[:, :-2]], axis=1)
+                integral = before @ self.lags_t[0] + beta[:, :-1] @ self.lags_t[1] + beta[:, 1:] @ self.lags_t[2]
+                integral[:, 0] += np.einsum("bm,bmr->br", z, self.start_rows)
+                integral[:, 1:] += every[:, :-1, 2:]
+                if k == 0:  # the fast modes' true start (the lag formula assumes a step before)
+                    for j, part in enumerate(self._parts):
+                        if z_fast[j].size:
+                            assumed = np.einsum("sm,s->m", part["fast_drive"], beta[j, 0])
+                            integral[j, 0] += part["start_fast_rows"] @ (z_fast[j] - assumed)
+                per_step = 0.5 * h * (beta[:, :-1] + beta[:, 1:]) - g[:, None, :] * integral   # (B, mm, sides)
+                heat += per_step.sum(axis=1)
+                heat_abs += np.abs(per_step).sum(axis=(1, 2))
+                keep_here = np.flatnonzero((kept_steps > k) & (kept_steps <= k + mm))
+                if keep_here.size:
+                    local = kept_steps[keep_here] - k                              # 1..mm
+                    rows = local - 1
+                    kept_cells = ends[:, rows]
+                    kq = beta[:, local] - g[:, None, :] * kept_cells
+                    cells[:, keep_here] = kept_cells
+                    q[:, keep_here] = kq
+                    rest = by_member[:, rows] @ self.kept_rows + both[:, rows] @ self.end_fast_both[:, :, 2:]
+                    stored[:, keep_here] = rest[:, :, 0]
+                    face_t[:, keep_here] = rest[:, :, 1:] + kq @ self.faces_q.transpose(0, 2, 1)
+                    if fields is not None:
+                        fields[:, keep_here] = (by_member[:, rows] @ self.field.transpose(0, 2, 1) + beta[:, local - 1] @ self.field_fast_t[0]
+                                                + beta[:, local] @ self.field_fast_t[1]) + self.nan_beyond[:, None, :]
+                z = zs[-1].copy()
+                beta_prev = beta[:, -2]
+                last = beta[:, -2:]
+                if progress is not None:
+                    progress(k + mm)
+            k0 += nb
+        final = (np.einsum("bnm,bm->bn", self.field, z) + np.einsum("bsc,bs->bc", self.field_fast_t[0], last[:, 0])
+                 + np.einsum("bsc,bs->bc", self.field_fast_t[1], last[:, 1]) + self.nan_beyond) if n_steps else initial.copy()
+        final_modes = [modal.to_modes @ final[i, :c] for i, (c, modal) in enumerate(zip(self.cells, self.modals))]
+        surface_in = cells[:, :, 0] + q[:, :, 0] * self.r_in[:, None]
+        surface_out = cells[:, :, 1] + q[:, :, 1] * self.r_out[:, None]
+        return BatchResult(
+            kept_steps=kept_steps, temperature=fields, interface_temperature=face_t, surface_in=surface_in, surface_out=surface_out,
+            q_in=q[:, :, 0], q_out=q[:, :, 1], stored=stored, t_eq_in=out["t_eq_in"], t_eq_out=out["t_eq_out"],
+            film_in=out["film_in"], film_out=out["film_out"], heat_in=heat[:, 0], heat_out=heat[:, 1], heat_abs=heat_abs,
+            final=final, final_modes=final_modes, drive_range=ranges,
+        )
+
+    def _check_surfaces(self, ends: np.ndarray, by_member: np.ndarray, beta: np.ndarray, t_start: float) -> None:
+        """Stop at the first step where a member's surface cell (where a diffusion
+        problem's extremes beyond its start lie) leaves the physical range."""
+        surface = ends[:, :, :2]
+        sound = (surface > ABSOLUTE_ZERO_CELSIUS) & (surface < HIGHEST_PHYSICAL_TEMPERATURE)
+        if sound.all():
+            return
+        bad = ~sound.all(axis=2)
+        first = np.where(bad.any(axis=1), np.argmax(bad, axis=1), bad.shape[1] + 1)
+        member = int(np.argmin(first))
+        i = int(first[member])
+        state = self.field[member] @ by_member[member, i] + beta[member, i] @ self.field_fast_t[0][member] + beta[member, i + 1] @ self.field_fast_t[1][member]
+        state = state[: self.cells[member]]
+        qs = beta[member, i + 1] - self.g[member] * state[[0, -1]]
+        try:
+            _check_physical(state, math.nan, t_start + self.step * (i + 1), float(qs[0]), float(qs[1]))
+        except UnphysicalState as exc:
+            exc.member = member
+            raise
+
+    def padded(self, states) -> np.ndarray:
+        """Cell states of the members (a (B, n) array, or one array per member) as
+        one (B, largest n) array, NaN beyond each member's cells."""
+        out = np.full((len(self.modals), self.n), math.nan)
+        for i, c in enumerate(self.cells):
+            out[i, :c] = np.asarray(states[i], dtype=float)[:c]
+        return out
+
+    def periodic_start(self, steps: int) -> np.ndarray:
+        """The exact start of each member's periodic state of a period of ``steps``
+        steps [degC] (B, largest n; NaN beyond a member's cells): the forced
+        response of one period from rest, r, gives z_0 = r / (1 - e^(-lambda P))
+        mode by mode."""
+        res = self.run([np.zeros(c) for c in self.cells], steps, keep_fields=False, record=False)
+        starts = []
+        for i, modal in enumerate(self.modals):
+            denominator = -np.expm1(-modal.lam * self.step * steps)
+            if np.any(denominator <= 0.0):
+                raise UnphysicalState(0.0, math.nan, math.nan, 0.0, 0.0)  # a mode that never decays: no periodic state
+            starts.append(modal.to_cells @ (res.final_modes[i] / denominator))
+        return self.padded(starts)
 
 
 def exact_march(
@@ -171,152 +520,45 @@ def exact_march(
     progress: Callable[[int], None] | None = None,
     modal: ModalSystem | None = None,
 ) -> MarchResult:
-    """Advance a linear case exactly (see the module docstring); the result has
-    the same fields as :func:`layers.march.march`'s."""
+    """Advance a linear case exactly (see the module docstring): a batch of
+    one; the result has the same fields as :func:`layers.march.march`'s."""
     modal = modal or ModalSystem(system)
-    mesh = system.mesh
-    h = step
-    decay, phi1, phi2, phi3 = _phi(modal.lam * h)
-    w0, w1 = h * (phi1 - phi2), h * phi2            # step: weights of beta at the start and the end
-    i0, i1 = h * h * (phi2 - phi3), h * h * phi3    # integral of the modes over the step
-    z = modal.to_modes @ np.asarray(initial, dtype=float)
-    row_in, row_out = modal.to_cells[0, :], modal.to_cells[-1, :]
-    kept = n_steps // output_every + 1 + (1 if n_steps % output_every else 0)
-    temps = np.empty((kept, mesh.n))
-    q_in_rec, q_out_rec = np.empty(kept), np.empty(kept)
-    times = np.empty(kept)
-    t_eq = {"in": np.empty(kept), "out": np.empty(kept)}
-    film = {"in": np.empty(kept), "out": np.empty(kept)}
-    heat_in = heat_out = heat_abs = 0.0
-    low, high = float(np.min(initial)), float(np.max(initial))
-    j = 0
-
-    def keep(t_index: int, z: np.ndarray, b_in: float, b_out: float, films: dict, col: int) -> None:
-        nonlocal j
-        temp = modal.to_cells @ z
-        temps[j] = temp
-        q_in_rec[j] = b_in - modal.g_in * temp[0]
-        q_out_rec[j] = b_out - modal.g_out * temp[-1]
-        times[j] = t0 + h * t_index
-        for key in ("in", "out"):
-            t_eq[key][j] = films[key].t_eq[col]
-            film[key][j] = films[key].h[col]
-        j += 1
-
-    # the surface cells' response to the modes, and the modes' integral over a step
-    a_in, a_out = row_in * (h * phi1), row_out * (h * phi1)
-    k = 0
-    if n_steps == 0:
-        b_in, b_out, f_in, f_out = modal.drives(np.array([t0]))
-        keep(0, z, b_in[0], b_out[0], _films(f_in, f_out, (1,)), 0)
-    while k < n_steps:
-        m = min(CHUNK, n_steps - k)
-        nodes = t0 + h * (k + np.arange(m + 1))
-        b_in, b_out, f_in, f_out = modal.drives(nodes)
-        for name in ("air", "radiant", "surface", "sky"):
-            for forcing, _ in (f_in, f_out):
-                if name in forcing:
-                    low, high = min(low, float(np.min(forcing[name]))), max(high, float(np.max(forcing[name])))
-        films = _films(f_in, f_out, nodes.shape)
-        if k == 0:
-            keep(0, z, b_in[0], b_out[0], films, 0)
-        # every mode through the chunk at once: z_(i+1) = decay z_i + u_i, one linear recurrence per mode
-        drive_in = w0[None, :] * b_in[:-1, None] + w1[None, :] * b_in[1:, None]
-        drive_out = w0[None, :] * b_out[:-1, None] + w1[None, :] * b_out[1:, None]
-        forced = modal.p_in[None, :] * drive_in + modal.p_out[None, :] * drive_out  # (m, modes)
-        zs = np.empty((m + 1, z.size))
-        zs[0] = z
-        zs[1:] = _recurrence(decay, z, forced)
-        # every step's surface cells (where the extremes beyond the start lie, by
-        # the maximum principle), not only the kept states
-        surface_cells = np.concatenate([zs[1:] @ row_in, zs[1:] @ row_out])
-        if not np.all((surface_cells > ABSOLUTE_ZERO_CELSIUS) & (surface_cells < HIGHEST_PHYSICAL_TEMPERATURE)):
-            bad = np.flatnonzero(~((surface_cells > ABSOLUTE_ZERO_CELSIUS) & (surface_cells < HIGHEST_PHYSICAL_TEMPERATURE))) % m
-            i = int(bad.min())
-            cells = modal.to_cells @ zs[i + 1]
-            _check_physical(cells, math.nan, t0 + h * (k + i + 1), b_in[i + 1] - modal.g_in * cells[0], b_out[i + 1] - modal.g_out * cells[-1])
-        # heat through each surface over each step: int beta - G int T_cell
-        starts = zs[:-1]
-        part_in = (i0[None, :] * b_in[:-1, None] + i1[None, :] * b_in[1:, None])
-        part_out = (i0[None, :] * b_out[:-1, None] + i1[None, :] * b_out[1:, None])
-        cell_in = starts @ a_in + (part_in * modal.p_in[None, :]) @ row_in + (part_out * modal.p_out[None, :]) @ row_in
-        cell_out = starts @ a_out + (part_in * modal.p_in[None, :]) @ row_out + (part_out * modal.p_out[None, :]) @ row_out
-        e_in = 0.5 * h * (b_in[:-1] + b_in[1:]) - modal.g_in * cell_in
-        e_out = 0.5 * h * (b_out[:-1] + b_out[1:]) - modal.g_out * cell_out
-        heat_in += float(np.sum(e_in))
-        heat_out += float(np.sum(e_out))
-        heat_abs += float(np.sum(np.abs(e_in)) + np.sum(np.abs(e_out)))
-        done = k + np.arange(1, m + 1)
-        rows = np.flatnonzero((done % output_every == 0) | (done == n_steps)) + 1  # rows of zs to keep
-        if rows.size:
-            kept_t = zs[rows] @ modal.to_cells.T
-            span = slice(j, j + rows.size)
-            temps[span] = kept_t
-            q_in_rec[span] = b_in[rows] - modal.g_in * kept_t[:, 0]
-            q_out_rec[span] = b_out[rows] - modal.g_out * kept_t[:, -1]
-            times[span] = t0 + h * (k + rows)
-            for key in ("in", "out"):
-                t_eq[key][span] = films[key].t_eq[rows]
-                film[key][span] = films[key].h[rows]
-            j += rows.size
-            sound = (kept_t.min(axis=1) > ABSOLUTE_ZERO_CELSIUS) & (kept_t.max(axis=1) < HIGHEST_PHYSICAL_TEMPERATURE)
-            if not sound.all():  # the earliest kept state outside physics
-                row = int(np.argmin(sound))
-                _check_physical(kept_t[row], math.nan, times[span][row], q_in_rec[span][row], q_out_rec[span][row])
-        z = zs[-1]
-        k += m
-        if progress is not None:
-            progress(k)
-    final = modal.to_cells @ z
-    surface_in = temps[:, 0] + q_in_rec * modal.r_in
-    surface_out = temps[:, -1] + q_out_rec * modal.r_out
-    faces = mesh.interface_temperatures(temps, modal.k, modal.g, q_in_rec, q_out_rec)
-    stored = temps @ system.capacity
+    res = ModalBatch([modal], step).run(initial[None, :], n_steps, output_every=output_every, t0=t0, progress=progress)
+    kept = res.kept_steps.size
+    temps = res.temperature[0]
     return MarchResult(
-        time=times,
+        time=t0 + step * res.kept_steps.astype(float),
         temperature=temps,
-        interface_temperature=faces,
-        q_in=q_in_rec,
-        q_out=q_out_rec,
-        film_in=film["in"] if system.inside.kind == "film" else np.full(kept, math.nan),
-        film_out=film["out"] if system.outside.kind == "film" else np.full(kept, math.nan),
-        t_eq_in=t_eq["in"],
-        t_eq_out=t_eq["out"],
-        surface_in=surface_in,
-        surface_out=surface_out,
+        interface_temperature=res.interface_temperature[0],
+        q_in=res.q_in[0],
+        q_out=res.q_out[0],
+        film_in=res.film_in[0] if system.inside.kind == "film" else np.full(kept, math.nan),
+        film_out=res.film_out[0] if system.outside.kind == "film" else np.full(kept, math.nan),
+        t_eq_in=res.t_eq_in[0],
+        t_eq_out=res.t_eq_out[0],
+        surface_in=res.surface_in[0],
+        surface_out=res.surface_out[0],
         contents_temperature=None,
         ice_fraction=None,
-        heat_in=heat_in,
-        heat_out=heat_out,
-        heat_abs=heat_abs,
-        stored=stored,
-        stored_initial=float(stored[0]),
-        stored_final=float(final @ system.capacity),
-        final=final,
+        heat_in=float(res.heat_in[0]),
+        heat_out=float(res.heat_out[0]),
+        heat_abs=float(res.heat_abs[0]),
+        stored=res.stored[0],
+        stored_initial=float(res.stored[0, 0]),
+        stored_final=float(res.final[0] @ system.capacity),
+        final=res.final[0],
         final_enthalpy=0.0,
         initial_enthalpy=0.0,
         unconverged_steps=0,
         max_iterations_used=0,
         smoothed_steps=0,
         factorisations=0,
-        drive_range=(low, high),
+        drive_range=(float(res.drive_range[0, 0]), float(res.drive_range[0, 1])),
         scheme="exact",
     )
 
 
 def exact_periodic_start(system: System, step: float, steps: int, modal: ModalSystem | None = None) -> np.ndarray:
-    """The exact start of the periodic state of a period of ``steps`` steps [degC]:
-    the forced response of one period from rest, r, gives z_0 = r / (1 - e^(-lambda P))."""
-    modal = modal or ModalSystem(system)
-    h = step
-    decay, phi1, phi2, _ = _phi(modal.lam * h)
-    w0, w1 = h * (phi1 - phi2), h * phi2
-    nodes = h * np.arange(steps + 1)
-    b_in, b_out, _, _ = modal.drives(nodes)
-    z = np.zeros(modal.lam.size)
-    for i in range(steps):
-        z = decay * z + modal.p_in * (w0 * b_in[i] + w1 * b_in[i + 1]) + modal.p_out * (w0 * b_out[i] + w1 * b_out[i + 1])
-    denominator = -np.expm1(-modal.lam * h * steps)
-    if np.any(denominator <= 0.0):
-        raise UnphysicalState(0.0, math.nan, math.nan, 0.0, 0.0)  # a mode that never decays: no periodic state
-    return modal.to_cells @ (z / denominator)
+    """The exact start of the periodic state of a period of ``steps`` steps [degC]
+    (:meth:`ModalBatch.periodic_start` for one system)."""
+    return ModalBatch([modal or ModalSystem(system)], step).periodic_start(steps)[0]

@@ -14,7 +14,7 @@ from layers.about import CAUTION
 from layers.case import Case
 from layers.errors import CaseError
 from layers.exchange import exchanges
-from layers.formatting import format_duration
+from layers.formatting import display_units, format_duration
 from layers.mesh import Mesh
 
 if TYPE_CHECKING:
@@ -251,6 +251,55 @@ def _starts_from_a_temperature(ds: xr.Dataset) -> bool:
     except ValueError:
         return False
     return True
+
+
+#: A sweep summary lists every point up to this many, else the extremes.
+SWEEP_ROWS = 24
+
+
+def sweep_summary(ds: xr.Dataset, case: Case | None = None) -> str:
+    """What ``layers sweep`` prints: the grid, then one row per point (or the
+    points with the lowest and highest mean heat flow when there are many):
+    its swept values, mean heat flow and the extremes of both surfaces."""
+    names = [d for d in ds.dims if d in ds.coords and d not in ("time", "interface", "cell")]
+    flow_units = display_units(ds["heat_flow_inside"].attrs["units"])
+    lines = [
+        f"{ds.attrs.get('title', '')}: sweep of {ds.attrs['sweep_points']} points, {ds.sizes['time']} records each, "
+        f"scheme {ds.attrs['scheme']}",
+        f"  dimensions: {ds.attrs['sweep_dimensions']}",
+    ]
+    stacked = ds.stack(point=names) if len(names) > 1 else ds.rename({names[0]: "point"})
+    mean = stacked["heat_flow_inside_mean"].values if "heat_flow_inside_mean" in stacked else np.full(stacked.sizes["point"], math.nan)
+    order = np.argsort(mean, kind="stable")
+    if order.size > SWEEP_ROWS:
+        half = SWEEP_ROWS // 2
+        shown = list(order[:half]) + [None] + list(order[-half:])
+        lines.append(f"  the {half} points with the lowest and the {half} with the highest mean heat flow (all are in the file):")
+    else:
+        shown = list(range(order.size))
+
+    def label(name: str) -> str:
+        units = ds[name].attrs.get("units", "")
+        return f"{name} [{units}]" if units else name
+
+    heads = [label(n) for n in names] + [f"mean flow [{flow_units}]", "outside min/max [degC]", "inside min [degC]"]
+    widths = [max(len(h), 10) for h in heads]
+    lines.append("  " + "  ".join(h.rjust(w) for h, w in zip(heads, widths)))
+    outside = stacked["surface_temperature_outside"]
+    inside = stacked["surface_temperature_inside"]
+    for i in shown:
+        if i is None:
+            lines.append("  " + "...".rjust(widths[0]))
+            continue
+        values = []
+        for n in names:
+            v = stacked[n].values[i] if len(names) > 1 else stacked["point"].values[i]
+            values.append(f"{v:.6g}" if isinstance(v, (float, np.floating)) else str(v))
+        o = outside.isel(point=i).values if "point" in outside.dims else outside.values
+        t = inside.isel(point=i).values if "point" in inside.dims else inside.values
+        values += [f"{mean[i]:.4g}", f"{np.nanmin(o):.2f} / {np.nanmax(o):.2f}", f"{np.nanmin(t):.2f}"]
+        lines.append("  " + "  ".join(v.rjust(w) for v, w in zip(values, widths)))
+    return "\n".join(lines)
 
 
 def run_summary(ds: xr.Dataset, case: Case | None = None) -> str:

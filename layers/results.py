@@ -40,7 +40,7 @@ def to_dataset(
     mesh: Mesh,
     *,
     seconds: np.ndarray,
-    temperature: np.ndarray,
+    temperature: np.ndarray | None,
     interface_temperature: np.ndarray,
     surface_temperature_inside: np.ndarray,
     surface_temperature_outside: np.ndarray,
@@ -58,7 +58,7 @@ def to_dataset(
     Parameters
     ----------
     seconds : (m,) output times from the start [s]
-    temperature : (m, n) cell temperatures [degC]
+    temperature : (m, n) cell temperatures [degC], or None (``keep_temperature = false``)
     interface_temperature : (m, layers + 1) layer faces, from the march's face fluxes [degC]
     heat_flow_inside, heat_flow_outside : (m,)
         Positive from inside to outside [W per reference unit].
@@ -70,11 +70,6 @@ def to_dataset(
     per = {"planar": "per square metre of wall", "cylinder": "per metre of pipe", "sphere": "whole sphere"}[case.geometry]
     times = case.datetimes(seconds).astype("datetime64[ns]")
     data_vars: dict[str, tuple] = {
-        "temperature": (
-            ("time", "x"),
-            temperature,
-            {"units": "degC", "long_name": "temperature at cell centres", "cell_methods": "time: point"},
-        ),
         "interface_temperature": (
             ("time", "interface"),
             interface_temperature,
@@ -96,6 +91,12 @@ def to_dataset(
             stored_energy, ENERGY_UNITS[case.geometry], f"heat stored in the construction (and any contents, latent heat included) relative to 0 degC and liquid water, {per}"
         ),
     }
+    if temperature is not None:
+        data_vars["temperature"] = (
+            ("time", "x"),
+            temperature,
+            {"units": "degC", "long_name": "temperature at cell centres", "cell_methods": "time: point"},
+        )
     names = {
         # In the bore of a pipe or vessel the "air" is the process fluid (steam,
         # oil, water): no CF standard name applies there.

@@ -10,6 +10,7 @@ from __future__ import annotations
 import math
 import warnings
 from collections.abc import Callable
+from typing import NamedTuple
 
 import numpy as np
 import xarray as xr
@@ -197,7 +198,7 @@ def _warn_outside_range(case: Case, system: System, res: MarchResult) -> None:
     if any(ex.kind == "flux" or (ex.kind == "film" and ex.has_sun_or_sky) for ex in (system.inside, system.outside)):
         return
     low, high = res.drive_range
-    t = res.temperature
+    t = res.temperature if res.temperature is not None else res.interface_temperature
     above, below = float(np.max(t)) - high, low - float(np.min(t))
     if max(above, below) > RANGE_WARNING:
         where = f"{above:.3g} K above the highest" if above >= below else f"{below:.3g} K below the lowest"
@@ -209,16 +210,18 @@ def _warn_outside_range(case: Case, system: System, res: MarchResult) -> None:
         )
 
 
-def _warn_service_temperature(case: Case, mesh: Mesh, res: MarchResult) -> list[str]:
+def _warn_service_temperature(case: Case, mesh: Mesh, res: MarchResult, warn: bool = True) -> list[str]:
     """Warn for every layer whose material passes its maximum service temperature
-    (at the kept times, cell centres and layer faces); returns the warnings' texts."""
+    (at the kept times, cell centres where kept and layer faces); returns the
+    warnings' texts (``warn=False``: only returns them)."""
     texts = []
     for number, spec in enumerate(case.layers, start=1):
         if spec.is_gap or spec.material.max_temperature is None:
             continue
-        cells = res.temperature[:, mesh.layer == number]
         faces = res.interface_temperature[:, number - 1 : number + 1]
-        hottest = np.maximum(cells.max(axis=1), faces.max(axis=1))
+        hottest = faces.max(axis=1)
+        if res.temperature is not None:
+            hottest = np.maximum(res.temperature[:, mesh.layer == number].max(axis=1), hottest)
         j = int(np.argmax(hottest))
         if hottest[j] > spec.material.max_temperature:
             when = np.datetime_as_string(case.datetimes(res.time[j : j + 1])[0], unit="m") + "Z"
@@ -226,7 +229,8 @@ def _warn_service_temperature(case: Case, mesh: Mesh, res: MarchResult) -> list[
                 f"layer {number} ({spec.material.name}) reaches {hottest[j]:.1f} degC at {when}, above its maximum "
                 f"service temperature of {spec.material.max_temperature:g} degC: choose a material rated for it"
             )
-            warnings.warn(f"{case.path}: {text}", UserWarning, stacklevel=3)
+            if warn:
+                warnings.warn(f"{case.path}: {text}", UserWarning, stacklevel=3)
             texts.append(text)
     return texts
 
@@ -256,25 +260,23 @@ def unphysical_error(case: Case, system: System, exc: UnphysicalState) -> CaseEr
     return CaseError(case.path, f"{side.side}.{key}", reason)
 
 
-def simulate(case: Case, progress: Callable[[int, int], None] | None = None) -> xr.Dataset:
-    """Run a case and return its results as a labelled Dataset.
+class RunRecord(NamedTuple):
+    """A finished march as the result Dataset takes it: the arrays of
+    :func:`layers.results.to_dataset` (``fields``), the extra time series
+    (``extra``) and the run's attributes (``attrs``)."""
 
-    Parameters
-    ----------
-    case : Case
-        From :func:`layers.case.load_case`.
-    progress : callable, optional
-        ``progress(steps_done, steps_total)``, called now and then.
+    fields: dict
+    extra: dict
+    attrs: dict
 
-    Returns
-    -------
-    xarray.Dataset
-        Variables and attributes as the product contract lists them.
-    """
-    mesh = case.mesh()
-    res, cycles, system = run_march(case, mesh, progress)
-    _warn_outside_range(case, system, res)
-    overheated = _warn_service_temperature(case, mesh, res)
+
+def run_record(case: Case, mesh: Mesh, system: System, res: MarchResult, cycles: int, *, warn: bool = True) -> RunRecord:
+    """What a run reports, from its march: warnings (overshoot, service
+    temperature), boundary series, contents, the energy balance and attributes.
+    Shared by :func:`simulate` and the members of a sweep."""
+    if warn:
+        _warn_outside_range(case, system, res)
+    overheated = _warn_service_temperature(case, mesh, res, warn=warn)
     seconds = res.time
     extra: dict = {}
     attrs: dict = {}
@@ -322,9 +324,7 @@ def simulate(case: Case, progress: Callable[[int, int], None] | None = None) -> 
     # no inside boundary term; the heat through the bore wall is what the
     # contents gave up, and that is what the run reports for the inside surface.
     heat_in_reported = attrs.get("heat_from_contents_total", res.heat_in)
-    ds = to_dataset(
-        case,
-        mesh,
+    fields = dict(
         seconds=seconds,
         temperature=res.temperature,
         interface_temperature=res.interface_temperature,
@@ -336,13 +336,41 @@ def simulate(case: Case, progress: Callable[[int, int], None] | None = None) -> 
         energy_balance_error=balance,
         heat_in_total=heat_in_reported,
         heat_out_total=-res.heat_out,
-        extra=extra,
         periodic_cycles=cycles,
     )
-    ds.attrs["scheme"] = res.scheme
+    attrs["scheme"] = res.scheme
     if case.time.scheme == "auto":
-        ds.attrs["scheme_requested"] = "auto"
+        attrs["scheme_requested"] = "auto"
     if case.geometry == "planar" and all(sp.kind == "film" and not sp.auto_film for sp in (case.inside, case.outside)) and mesh.is_linear:
         attrs["steady_resistance_total"] = float(mesh.steady_resistance() + case.inside.surface_resistance + case.outside.surface_resistance)
-    ds.attrs.update(attrs)
+    return RunRecord(fields, extra, attrs)
+
+
+def record_dataset(case: Case, mesh: Mesh, record: RunRecord) -> xr.Dataset:
+    """The result Dataset of one run record."""
+    ds = to_dataset(case, mesh, **record.fields, extra=record.extra)
+    ds.attrs.update(record.attrs)
     return ds
+
+
+def simulate(case: Case, progress: Callable[[int, int], None] | None = None) -> xr.Dataset:
+    """Run a case and return its results as a labelled Dataset.
+
+    Parameters
+    ----------
+    case : Case
+        From :func:`layers.case.load_case`.
+    progress : callable, optional
+        ``progress(steps_done, steps_total)``, called now and then.
+
+    Returns
+    -------
+    xarray.Dataset
+        Variables and attributes as the product contract lists them.
+    """
+    mesh = case.mesh()
+    res, cycles, system = run_march(case, mesh, progress)
+    record = run_record(case, mesh, system, res, cycles)
+    if case.time.keep_temperature is False:
+        record.fields["temperature"] = None
+    return record_dataset(case, mesh, record)

@@ -226,6 +226,8 @@ def parse_quantity(value: Any, kind: str, *, file: str = "<case>", key: str = "?
         _fail(file, key, f"expected a quantity in {shown}, got {value!r}")
     if isinstance(value, (int, float)):
         number = float(value)
+    elif isinstance(value, str) and (value, kind) in _READ:
+        number = _READ[(value, kind)]
     elif isinstance(value, str):
         magnitude, unit_text = checked_text(value, file=file, key=key)
         if not unit_text:
@@ -243,11 +245,23 @@ def parse_quantity(value: Any, kind: str, *, file: str = "<case>", key: str = "?
                 noun = kind.replace("_", " ")
                 article = "an" if noun[0] in "aeiou" else "a"
                 _fail(file, key, f"{value!r} is not {article} {noun} (expected a unit like {shown})")
+        _remember(value, kind, number)
     else:
         _fail(file, key, f"expected a quantity in {shown}, got {type(value).__name__} {value!r}")
     if not math.isfinite(number):
         _fail(file, key, f"{value!r} is not a finite number")
     return number
+
+
+#: Quantities already read, by their text and kind (a sweep reads the same texts
+#: once per point; pint's parse is the costly part of reading a case).
+_READ: dict[tuple[str, str], float] = {}
+
+
+def _remember(text: str, kind: str, number: float) -> None:
+    if len(_READ) > 50_000:
+        _READ.clear()
+    _READ[(text, kind)] = number
 
 
 def parse_temperature(value: Any, *, file: str = "<case>", key: str = "?") -> float:
@@ -266,6 +280,8 @@ def parse_temperature(value: Any, *, file: str = "<case>", key: str = "?") -> fl
         _fail(file, key, f"expected a temperature, got {value!r}")
     if isinstance(value, (int, float)):
         number = float(value)
+    elif isinstance(value, str) and (value, "temperature") in _READ:
+        number = _READ[(value, "temperature")]
     elif isinstance(value, str):
         magnitude, unit_text = checked_text(value, file=file, key=key)
         try:
@@ -280,6 +296,8 @@ def parse_temperature(value: Any, *, file: str = "<case>", key: str = "?") -> fl
                 number = float(q.to("degC").magnitude)
             except pint.DimensionalityError:
                 _fail(file, key, f"{value!r} is not a temperature (use degC, degF or K)")
+        if math.isfinite(number):
+            _remember(value, "temperature", number)
     else:
         _fail(file, key, f"expected a temperature, got {type(value).__name__} {value!r}")
     if not math.isfinite(number):

@@ -19,7 +19,7 @@ import pytest
 
 from layers.case import parse_case
 from layers.errors import CaseError
-from layers.exact import _phi, _recurrence, exact_march
+from layers.exact import _phi, exact_march
 from layers.march import march
 from layers.simulation import simulate, system_for
 from tests.test_march import SLAB, _slab_mode
@@ -59,20 +59,6 @@ def test_phi_functions_match_their_closed_forms_and_series():
                     want = (0.5 - (1 - (-math.expm1(-x) / x)) / x) / x
             assert got == pytest.approx(want, rel=1e-14, abs=1e-300)
         assert decay[i] == pytest.approx(math.exp(-x), rel=1e-15)
-
-
-def test_the_prefix_recurrence_equals_the_plain_loop():
-    """The parallel prefix gives the same x_i = d x_(i-1) + u_i as a loop, to round-off."""
-    rng = np.random.default_rng(3)
-    decay = np.array([0.0, 0.3, 0.999, 1.0])
-    forced = rng.normal(size=(1000, 4))
-    start = rng.normal(size=4)
-    x = start.copy()
-    expected = np.empty_like(forced)
-    for i in range(forced.shape[0]):
-        x = decay * x + forced[i]
-        expected[i] = x
-    np.testing.assert_allclose(_recurrence(decay, start, forced), expected, rtol=1e-10, atol=1e-10)
 
 
 WALL = """
