@@ -120,11 +120,19 @@ def simulate(case: Case, progress: Callable[[int, int], None] | None = None) -> 
         (planar; [W m-1] per metre of pipe, [W] for a sphere),
         ``stored_energy`` [J per reference unit], ``interface_temperature``
         [degC]; ``x`` [m] from the inside surface; each variable carries its
-        ``units``.  Nothing is written to disk.
+        ``units``.  With ``[uncertainty]``, also ``<variable>_quantile`` on
+        (quantile, time): the 0.05 / 0.5 / 0.95 quantiles of the surface
+        temperatures and heat flows over the samples.  Nothing is written
+        to disk.
     """
     from layers.simulation import simulate as _simulate
 
-    return _simulate(case, progress=progress)
+    ds = _simulate(case, progress=progress)
+    if case.uncertainty is not None:
+        from layers.uncertainty import run_quantiles
+
+        ds = run_quantiles(case, ds)
+    return ds
 
 
 def size(case: Case, progress: Callable[[int, int], None] | None = None) -> xr.Dataset:

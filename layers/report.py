@@ -331,6 +331,18 @@ def run_summary(ds: xr.Dataset, case: Case | None = None) -> str:
             f"          heat flow mean {mean:9.3g} {flow_units}   peak {q[peak_i]:9.3g} {flow_units}"
             + (" (of the kept samples after the start)" if first else "")
         )
+    if "surface_temperature_outside_quantile" in ds:
+        n = ds.attrs.get("uncertainty_samples", "?")
+        lines.append(f"  with the input tolerances of [uncertainty] ({n} samples), 5 % / 50 % / 95 % quantiles:")
+        for side in ("inside", "outside"):
+            band = ds[f"surface_temperature_{side}_quantile"].values
+            lines.append(
+                f"  {side:<7} surface  max {band[0].max():7.2f} / {band[1].max():7.2f} / {band[2].max():7.2f} degC"
+                f"   min {band[0].min():7.2f} / {band[1].min():7.2f} / {band[2].min():7.2f} degC"
+            )
+        if "heat_flow_inside_mean_quantile" in ds:
+            m = ds["heat_flow_inside_mean_quantile"].values
+            lines.append(f"          heat flow mean {m[0]:.4g} / {m[1]:.4g} / {m[2]:.4g} {flow_units}")
     per = ds.attrs.get("heat_total_units", "J m-2")
     scale, unit = (3.6e6, "kWh/m2") if per == "J m-2" else ((3.6e6, "kWh/m") if per == "J m-1" else (3.6e6, "kWh"))
     lines.append(

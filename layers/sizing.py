@@ -90,7 +90,58 @@ def size(case: Case, progress: Callable[[int, int], None] | None = None) -> xr.D
     s = case.sizing
     if s is None:
         raise CaseError(case.path, "sizing", "the case has no [sizing] table")
+    if case.uncertainty is not None and s.min_freeze_time is not None:
+        raise CaseError(
+            case.path, "uncertainty",
+            "sampling a freeze-time criterion is not supported yet (each sample would need a transient run per candidate); "
+            "sample the steady criteria, or run the freeze sizing at the worst plausible values",
+        )
     thick = np.asarray(s.thicknesses, dtype=float)
+    data, attrs, passes = _evaluate(case, thick, progress)
+    for name, ok in passes.items():
+        data[f"passes_{name}"] = ("thickness", ok.astype(bool), {"long_name": f"candidate meets {name.replace('_', ' ')}"})
+    all_ok = np.logical_and.reduce(list(passes.values())) if passes else np.zeros(thick.size, bool)
+    data["passes_all"] = ("thickness", all_ok, {"long_name": "candidate meets every criterion"})
+    recommended = float(thick[np.argmax(all_ok)]) if all_ok.any() else math.nan
+    attrs["recommended_thickness_units"] = "m"
+    if case.uncertainty is not None:
+        from layers.uncertainty import size_probabilities
+
+        probabilities, extra = size_probabilities(case, lambda sample: _evaluate(sample, thick, None)[2], thick, progress=progress)
+        n = case.uncertainty.samples
+        for name, p in probabilities.items():
+            key = "probability_passes" if name == "all" else f"probability_passes_{name}"
+            what = "every criterion" if name == "all" else name.replace("_", " ")
+            data[key] = ("thickness", p, {"units": "1", "long_name": f"share of the {n} uncertainty samples in which the candidate meets {what}"})
+        attrs.update(extra)
+    ds = xr.Dataset(
+        data,
+        coords={"thickness": ("thickness", thick, {"units": "m", "long_name": f"thickness of layer {s.layer} ({case.layers[s.layer - 1].name})"})},
+    )
+    ds.attrs = {
+        "Conventions": "CF-1.10",
+        "title": case.title,
+        "product": "sizing",
+        "case": case.text,
+        "case_sha256": case.sha256,
+        "software_version": __version__,
+        "created": utc_now(),
+        "geometry": case.geometry,
+        "sized_layer": s.layer,
+        "recommended_thickness": recommended,
+        "design_conditions": f"boundary values at {np.datetime_as_string(design_time(case), unit='m')}Z"
+        + (" ([sizing] design_time)" if s.design_time is not None else " (the run's start)"),
+        "caution": " ".join(cautions(case)),
+        **attrs,
+    }
+    return cf_encoding(ds, f"layers size {case.path}")
+
+
+def _evaluate(case: Case, thick: np.ndarray, progress) -> tuple[dict, dict, dict[str, np.ndarray]]:
+    """Every criterion of ``[sizing]`` at each thickness: the variables, the
+    attributes and each criterion's pass/fail (shared by the nominal sizing
+    and each uncertainty sample)."""
+    s = case.sizing
     flow_units = HEAT_FLOW_UNITS[case.geometry]
     data: dict[str, tuple] = {}
     attrs: dict[str, object] = {}
@@ -171,33 +222,7 @@ def size(case: Case, progress: Callable[[int, int], None] | None = None) -> xr.D
         attrs["scheme"] = case.time.scheme
         attrs["time_step"] = float(case.time.step)
         attrs["time_step_units"] = "s"
-    for name, ok in passes.items():
-        data[f"passes_{name}"] = ("thickness", ok.astype(bool), {"long_name": f"candidate meets {name.replace('_', ' ')}"})
-    all_ok = np.logical_and.reduce(list(passes.values())) if passes else np.zeros(thick.size, bool)
-    data["passes_all"] = ("thickness", all_ok, {"long_name": "candidate meets every criterion"})
-    recommended = float(thick[np.argmax(all_ok)]) if all_ok.any() else math.nan
-    attrs["recommended_thickness_units"] = "m"
-    ds = xr.Dataset(
-        data,
-        coords={"thickness": ("thickness", thick, {"units": "m", "long_name": f"thickness of layer {s.layer} ({case.layers[s.layer - 1].name})"})},
-    )
-    ds.attrs = {
-        "Conventions": "CF-1.10",
-        "title": case.title,
-        "product": "sizing",
-        "case": case.text,
-        "case_sha256": case.sha256,
-        "software_version": __version__,
-        "created": utc_now(),
-        "geometry": case.geometry,
-        "sized_layer": s.layer,
-        "recommended_thickness": recommended,
-        "design_conditions": f"boundary values at {np.datetime_as_string(design_time(case), unit='m')}Z"
-        + (" ([sizing] design_time)" if s.design_time is not None else " (the run's start)"),
-        "caution": " ".join(cautions(case)),
-        **attrs,
-    }
-    return cf_encoding(ds, f"layers size {case.path}")
+    return data, attrs, passes
 
 
 def criteria_table(ds: xr.Dataset) -> str:
@@ -216,6 +241,9 @@ def criteria_table(ds: xr.Dataset) -> str:
     if "freeze_time" in ds:
         head += f"{'to 0 degC':>10} {'to ice':>9} "
     head += " ".join(f"{labels.get(n, n):>18}" for n in names)
+    chance = ds["probability_passes"].values if "probability_passes" in ds else None
+    if chance is not None:
+        head += f" {'P(all pass)':>12}"
     flow_units = ds["heat_flow"].attrs["units"].replace("W m-1", "W/m").replace("W m-2", "W/m2") if "heat_flow" in ds else ""
     unit = f"{'[mm]':>10} "
     if "surface_temperature_outside" in ds:
@@ -223,6 +251,8 @@ def criteria_table(ds: xr.Dataset) -> str:
     if "freeze_time" in ds:
         unit += f"{'[h]':>10} {'[h]':>9} "
     unit += " ".join(f"{'(margin)':>18}" for _ in names)
+    if chance is not None:
+        unit += f" {'[%]':>12}"
     lines = [head, unit]
     limits = []
     if "max_surface_temperature" in ds.attrs:
@@ -262,5 +292,7 @@ def criteria_table(ds: xr.Dataset) -> str:
             mtxt = f"{m:+.2f} {margin_units[n]}" if math.isfinite(m) else "not reached"
             cells.append(f"{('pass' if passes[n][i] else 'FAIL') + ' (' + mtxt + ')':>18}")
         row += " ".join(cells)
+        if chance is not None:
+            row += f" {100.0 * float(chance[i]):>12.1f}"
         lines.append(row)
     return "\n".join(lines)

@@ -53,9 +53,10 @@ class Point:
 
     index: tuple[int, ...]
     settings: dict[str, Any]
+    label: str = ""   # how messages name the point
 
-    def describe(self, dims: tuple[SweepDim, ...]) -> str:
-        return ", ".join(f"{d.name} = {d.values[i]}" for d, i in zip(dims, self.index))
+    def describe(self, dims: tuple[SweepDim, ...] = ()) -> str:
+        return self.label or ", ".join(f"{d.name} = {d.values[i]}" for d, i in zip(dims, self.index))
 
 
 @dataclass(frozen=True)
@@ -71,7 +72,11 @@ def points(case: Case) -> list[Point]:
     """Every point of the case's sweep grid, the last dimension varying fastest."""
     dims = case.sweep
     grid = itertools.product(*(range(len(d.values)) for d in dims))
-    return [Point(index, {d.key: d.values[i] for d, i in zip(dims, index)}) for index in grid]
+    out = []
+    for index in grid:
+        label = ", ".join(f"{d.name} = {d.values[i]}" for d, i in zip(dims, index))
+        out.append(Point(index, {d.key: d.values[i] for d, i in zip(dims, index)}, label))
+    return out
 
 
 def _source(case: Case) -> dict:
@@ -86,7 +91,7 @@ def variant(case: Case, source: dict, point: Point, where: str = "sweep") -> Cas
     try:
         v = parse_case(source, file=case.path, text=case.text, base_dir=case.base_dir)
     except CaseError as exc:
-        raise CaseError(case.path, exc.key, f"at the {where} point {point.describe(case.sweep)}: {exc.reason}") from None
+        raise CaseError(case.path, exc.key, f"at the {where} point {point.describe()}: {exc.reason}") from None
     v.record_paths = case.record_paths
     return v
 
@@ -240,11 +245,21 @@ def sweep(
     """
     if not case.sweep:
         raise CaseError(case.path, "sweep", "the case has no [[sweep]] table")
-    data = _source(case)
     grid = points(case)
+    cases, records = run_points(case, grid, client=client, progress=progress)
+    return assemble(case, grid, cases, records)
+
+
+def run_points(
+    case: Case, grid: list[Point], *, client: Any = None, progress: Callable[[int, int], None] | None = None, where: str = "sweep"
+) -> tuple[list[Case], list[dict]]:
+    """Run the case at each point (its settings written into the case file):
+    each point's case and run record, in the order of ``grid``.  Shared by
+    sweeps and uncertainty sampling."""
+    data = _source(case)
     sources = [with_values(data, p.settings) for p in grid]
     with reusing_series():
-        cases = [variant(case, src, p) for src, p in zip(sources, grid)]
+        cases = [variant(case, src, p, where) for src, p in zip(sources, grid)]
     _check_size(case, len(grid), cases)
     for v in cases:
         _check_plan(case, v)
@@ -265,7 +280,7 @@ def sweep(
         done += len(job.points)
         if progress is not None:
             progress(done, len(grid))
-    return assemble(case, grid, cases, records)
+    return cases, records
 
 
 def _check_plan(case: Case, v: Case) -> None:
@@ -339,7 +354,7 @@ def assemble(case: Case, grid: list[Point], cases: list[Case], records: list[dic
     schemes = sorted({r["attrs"]["scheme"] for r in records})
     if len(schemes) > 1:
         ds["scheme"] = (names, np.array([r["attrs"]["scheme"] for r in records], dtype=object).reshape(shape), {"long_name": "scheme each point ran with"})
-    over = [f"{p.describe(dims)}: {r['attrs']['service_temperature_exceeded']}" for p, r in zip(grid, records) if "service_temperature_exceeded" in r["attrs"]]
+    over = [f"{p.describe()}: {r['attrs']['service_temperature_exceeded']}" for p, r in zip(grid, records) if "service_temperature_exceeded" in r["attrs"]]
     # coordinates: time, interface, the swept values
     ds = ds.assign_coords(time=template["time"], interface=template["interface"])
     faces = stacked(lambda r: r["layer_interface"])
