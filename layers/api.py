@@ -125,9 +125,15 @@ def simulate(case: Case, progress: Callable[[int, int], None] | None = None) -> 
         temperatures and heat flows over the samples.  Nothing is written
         to disk.
     """
+    return run_case(case, progress)
+
+
+def run_case(case: Case, progress: Callable[[int, int], None] | None = None, field_sink: Any = None) -> xr.Dataset:
+    """:func:`simulate`, with the cell fields optionally streamed to a
+    :class:`layers.results.FieldSink` (what ``layers run`` does; internal)."""
     from layers.simulation import simulate as _simulate
 
-    ds = _simulate(case, progress=progress)
+    ds = _simulate(case, progress=progress, field_sink=field_sink)
     if case.uncertainty is not None:
         from layers.uncertainty import run_quantiles
 

@@ -48,10 +48,10 @@ class _Progress:
 
 
 def cmd_run(args: argparse.Namespace) -> int:
+    from layers.api import run_case
     from layers.case import load_case
     from layers.report import run_cautions, run_summary
-    from layers.results import archive, archive_dir, refuse_existing, usable_folder, write_output
-    from layers.simulation import simulate
+    from layers.results import FieldSink, archive, archive_dir, refuse_existing, usable_folder, write_output
 
     refuse_existing(args.out)
     usable_folder(archive_dir(args.archive), make=False)
@@ -71,15 +71,22 @@ def cmd_run(args: argparse.Namespace) -> int:
         case.label = args.label
     case.record_paths = bool(args.record_paths)
     progress = _Progress(args.quiet, case.stem)
+    # the cell fields go to a scratch file as the march makes them and from there,
+    # block by block, into the archive: memory stays flat however long the run
+    sink = FieldSink(case.mesh()) if case.time.keep_temperature is not False else None
     try:
-        ds = simulate(case, progress=progress)
-    finally:
-        progress.close()
-    import shlex
+        try:
+            ds = run_case(case, progress=progress, field_sink=sink)
+        finally:
+            progress.close()
+        import shlex
 
-    ds.attrs["command"] = "layers " + shlex.join(args.argv)
-    written = archive(ds, case.stem, args.archive)
-    extra = write_output(ds, args.out)
+        ds.attrs["command"] = "layers " + shlex.join(args.argv)
+        written = archive(ds, case.stem, args.archive)
+        extra = write_output(ds, args.out)
+    finally:
+        if sink is not None:
+            sink.close()
     if not args.quiet:
         if case.provenance:
             print(f"re-run of {case.provenance['rerun_of']} from its archived case text"
@@ -122,6 +129,13 @@ def cmd_size(args: argparse.Namespace) -> int:
         print(f"recommended: {rec * 1000:g} mm, the thinnest candidate that meets every criterion")
     else:
         print("no candidate thickness meets every criterion")
+    if "recommended_thickness_at_confidence" in ds.attrs:
+        at = float(ds.attrs["recommended_thickness_at_confidence"])
+        share = f"{100 * float(ds.attrs['confidence']):g} %"
+        n = ds.attrs["uncertainty_samples"]
+        print(f"with the input tolerances of [uncertainty] ({n} samples): "
+              + (f"{at * 1000:g} mm is the thinnest candidate that meets every criterion in at least {share} of them"
+                 if math.isfinite(at) else f"no candidate meets every criterion in {share} of them"))
     print(f"archived: {written}")
     if extra:
         print(f"written:  {extra}")
@@ -231,10 +245,10 @@ def cmd_periodic(args: argparse.Namespace) -> int:
 
 
 def cmd_plot(args: argparse.Namespace) -> int:
-    """``layers plot RUN.nc [-o OUT] [--kind ...] [--times ...]``."""
+    """``layers plot RUN.nc [-o OUT] [--kind ...] [--times ...] [--variable NAME]``."""
     from layers.plots import plot_file
 
-    print(f"written: {plot_file(args.run, args.kind, args.out, getattr(args, 'times', None))}")
+    print(f"written: {plot_file(args.run, args.kind, args.out, getattr(args, 'times', None), getattr(args, 'variable', None))}")
     return EXIT_OK
 
 
@@ -317,11 +331,13 @@ def build_parser() -> argparse.ArgumentParser:
     d.add_argument("-o", "--out")
     d.set_defaults(func=cmd_periodic)
 
-    pl = sub.add_parser("plot", help="plot a run")
-    pl.add_argument("run", help="a run's netCDF file")
+    pl = sub.add_parser("plot", help="plot a run, sizing or sweep file")
+    pl.add_argument("run", help="a run's netCDF file (or one from layers size or layers sweep)")
     pl.add_argument("-o", "--out")
-    pl.add_argument("--kind", default=None, help="default: sizing for a sizing file, else surfaces", choices=["carpet", "surfaces", "profiles", "sizing"])
+    pl.add_argument("--kind", default=None, help="default: sweep for a sweep file, sizing for a sizing file, else surfaces",
+                    choices=["carpet", "surfaces", "profiles", "sizing", "sweep"])
     pl.add_argument("--times", nargs="*", help="profiles: times to draw (ISO 8601)")
+    pl.add_argument("--variable", metavar="NAME", help="sweep: the result per point to map (default heat_flow_inside_mean)")
     pl.set_defaults(func=cmd_plot)
 
     cp = sub.add_parser("compare", help="compare runs side by side")

@@ -344,10 +344,13 @@ class ModalBatch:
         keep_fields: bool = True,
         progress: Callable[[int], None] | None = None,
         record: bool = True,
+        field_sink=None,
     ) -> BatchResult:
         """March every member from ``initial`` (B, n) [degC] for ``n_steps`` steps,
         keeping every ``output_every``-th state and the last (``record=False``:
-        only the initial state and the end).
+        only the initial state and the end).  ``field_sink`` (a batch of one)
+        takes the kept cell fields as they are made instead of the result
+        (:class:`layers.results.FieldSink`).
 
         Raises
         ------
@@ -368,7 +371,10 @@ class ModalBatch:
         q = np.empty((b, m, 2))
         stored = np.empty((b, m))
         face_t = np.empty((b, m, faces))
-        fields = np.empty((b, m, n)) if keep_fields else None
+        if field_sink is not None and b != 1:
+            raise ValueError("a field sink takes the fields of a batch of one")
+        fields = np.empty((b, m, n)) if keep_fields and field_sink is None else None
+        make_fields = fields is not None or field_sink is not None
         ranges = np.stack([np.nanmin(initial, axis=1), np.nanmax(initial, axis=1)], axis=1)
         heat = np.zeros((b, 2))
         heat_abs = np.zeros(b)
@@ -390,6 +396,8 @@ class ModalBatch:
                                  for i, (c, modal) in enumerate(zip(self.cells, self.modals))])
         if fields is not None:
             fields[:, 0] = initial
+        if field_sink is not None:
+            field_sink.write(initial[:, : self.cells[0]])
         beta_prev = beta0
         last = np.stack([beta0, beta0], axis=1)
         k0 = 0
@@ -445,9 +453,13 @@ class ModalBatch:
                     rest = by_member[:, rows] @ self.kept_rows + both[:, rows] @ self.end_fast_both[:, :, 2:]
                     stored[:, keep_here] = rest[:, :, 0]
                     face_t[:, keep_here] = rest[:, :, 1:] + kq @ self.faces_q.transpose(0, 2, 1)
-                    if fields is not None:
-                        fields[:, keep_here] = (by_member[:, rows] @ self.field.transpose(0, 2, 1) + beta[:, local - 1] @ self.field_fast_t[0]
-                                                + beta[:, local] @ self.field_fast_t[1]) + self.nan_beyond[:, None, :]
+                    if make_fields:
+                        made = (by_member[:, rows] @ self.field.transpose(0, 2, 1) + beta[:, local - 1] @ self.field_fast_t[0]
+                                + beta[:, local] @ self.field_fast_t[1]) + self.nan_beyond[:, None, :]
+                        if fields is not None:
+                            fields[:, keep_here] = made
+                        else:
+                            field_sink.write(made[0, :, : self.cells[0]])
                 z = zs[-1].copy()
                 beta_prev = beta[:, -2]
                 last = beta[:, -2:]
@@ -519,13 +531,16 @@ def exact_march(
     t0: float = 0.0,
     progress: Callable[[int], None] | None = None,
     modal: ModalSystem | None = None,
+    field_sink=None,
 ) -> MarchResult:
     """Advance a linear case exactly (see the module docstring): a batch of
-    one; the result has the same fields as :func:`layers.march.march`'s."""
+    one; the result has the same fields as :func:`layers.march.march`'s
+    (``field_sink`` as there)."""
     modal = modal or ModalSystem(system)
-    res = ModalBatch([modal], step).run(initial[None, :], n_steps, output_every=output_every, t0=t0, progress=progress)
+    res = ModalBatch([modal], step).run(initial[None, :], n_steps, output_every=output_every, t0=t0, progress=progress,
+                                        field_sink=field_sink)
     kept = res.kept_steps.size
-    temps = res.temperature[0]
+    temps = res.temperature[0] if res.temperature is not None else None
     return MarchResult(
         time=t0 + step * res.kept_steps.astype(float),
         temperature=temps,

@@ -557,17 +557,25 @@ class _Records:
 
     NAMES = ("q_in", "q_out", "film_in", "film_out", "teq_in", "teq_out", "ts_in", "ts_out", "tw", "ice", "stored")
 
-    def __init__(self, system: System, n_out: int) -> None:
+    #: Rows of cell fields held before they go to a field sink.
+    SINK_BLOCK = 256
+
+    def __init__(self, system: System, n_out: int, sink=None) -> None:
         self.system = system
-        self.temperature = np.empty((n_out, system.capacity.size))
+        self.sink = sink  # where kept cell fields go (``sink.write(rows)``) instead of memory
+        rows = n_out if sink is None else min(n_out, self.SINK_BLOCK)
+        self.temperature = np.empty((rows, system.capacity.size))
         self.faces = np.empty((n_out, system.mesh.interfaces.size))
         self.values = {name: np.empty(n_out) for name in self.NAMES}
         self.count = 0
+        self.flushed = 0  # rows already given to the sink
 
     def add(self, state: _State, q_in: float, q_out: float) -> None:
         """Keep a state, with the boundary flows [W per ref. unit] the scheme took."""
         j, v, c, water = self.count, self.values, state.coefficients, self.system.water
-        self.temperature[j] = state.temperature
+        if self.sink is not None and j - self.flushed == self.temperature.shape[0]:
+            self._flush()
+        self.temperature[j - self.flushed] = state.temperature
         if not self.system.constant_k:  # else all at once in finish()
             self.faces[j] = self.system.mesh.interface_temperatures(state.temperature, c.k, c.g, q_in, q_out)
         v["q_in"][j], v["q_out"][j] = q_in, q_out
@@ -580,12 +588,29 @@ class _Records:
         v["stored"][j] = self.system.stored_energy(state.temperature, state.enthalpy)
         self.count += 1
 
-    def finish(self) -> None:
-        """Layer-face temperatures of every kept state, in one pass where k is constant."""
+    def _flush(self) -> None:
+        """Layer faces of the rows held (where k is constant), then the rows to the sink."""
+        rows = self._faces(self.flushed, self.count)
+        if self.sink is not None:
+            self.sink.write(rows)
+            self.flushed = self.count
+
+    def _faces(self, start: int, stop: int) -> np.ndarray:
+        rows = self.temperature[: stop - start]
         system = self.system
-        if system.constant_k:
-            k, g, _ = system.conduction(self.temperature[0])
-            self.faces[:] = system.mesh.interface_temperatures(self.temperature, k, g, self.values["q_in"], self.values["q_out"])
+        if system.constant_k and stop > start:
+            k, g, _ = system.conduction(rows[0])
+            span = slice(start, stop)
+            self.faces[span] = system.mesh.interface_temperatures(rows, k, g, self.values["q_in"][span], self.values["q_out"][span])
+        return rows
+
+    def finish(self) -> None:
+        """Layer-face temperatures of every kept state, in one pass where k is
+        constant; the last rows to the sink."""
+        if self.sink is None:
+            self._faces(0, self.count)
+        else:
+            self._flush()
 
 
 class _FreezeWatch:
@@ -698,6 +723,7 @@ def march(
     smooth_start: bool = False,
     ice_target: float = 0.25,
     progress: Callable[[int], None] | None = None,
+    field_sink=None,
 ) -> MarchResult:
     """March ``system`` ``n_steps`` steps of ``step`` seconds.
 
@@ -722,6 +748,10 @@ def march(
         Ice fraction whose first crossing time is reported [-].
     progress : callable, optional
         Called with the number of steps done, now and then.
+    field_sink : object, optional
+        Takes the kept cell fields in blocks (``field_sink.write(rows)``) as
+        the march makes them, so that memory does not grow with the run
+        (:class:`layers.results.FieldSink`); the result's ``temperature`` is then None.
     """
     st = _Stepper(system, scheme if isinstance(scheme, Scheme) else resolve_scheme(scheme))
     water, h = system.water, step
@@ -734,7 +764,7 @@ def march(
     _check_physical(temp, system.contents_temperature(enthalpy), t0, state.q_in, state.q_out)
     # every output_every-th state, and the last one (where output_every does not divide the run)
     kept = n_steps // output_every + 1 + (1 if n_steps % output_every else 0)
-    records = _Records(system, kept)
+    records = _Records(system, kept, field_sink)
     records.add(state, state.q_in, state.q_out)
     freeze = _FreezeWatch(water, enthalpy, t0, ice_target)
     heat_in = heat_out = heat_abs = 0.0
@@ -782,7 +812,7 @@ def march(
     initial_range = (float(np.min(initial)), float(np.max(initial)))
     return MarchResult(
         time=np.minimum(t0 + h * output_every * np.arange(records.count), t0 + h * n_steps),
-        temperature=records.temperature,
+        temperature=records.temperature if field_sink is None else None,
         interface_temperature=records.faces,
         q_in=v["q_in"],
         q_out=v["q_out"],

@@ -1,7 +1,7 @@
-"""Every figure: run carpets, surface histories, depth profiles and sizing charts.
+"""Every figure: run carpets, surface histories, depth profiles, sizing charts and sweep maps.
 
 The plotting functions take a Dataset written by :mod:`layers.results` (or by
-``layers size``) and return a :class:`matplotlib.figure.Figure`; they never
+``layers size`` or ``layers sweep``) and return a :class:`matplotlib.figure.Figure`; they never
 re-run a case and never print.  :func:`cmd_plot` is the ``layers plot``
 command: it opens the run, draws one figure and saves it without ever
 overwriting a file.
@@ -13,7 +13,7 @@ Conventions of every figure
 * The title is the run's ``title`` attribute; the caution
   (``caution`` attribute, else :data:`layers.CAUTION`) is printed in small
   type at the bottom.
-* Colours: the carpet uses ``cividis``, a perceptually uniform colour map
+* Colours: the carpet and the sweep map use ``cividis``, a perceptually uniform colour map
   designed to read the same for colour-blind readers and in greyscale.  Lines
   use :data:`PALETTE`, five colours of our own chosen so that every pair stays
   distinguishable under simulated protanopia, deuteranopia and tritanopia,
@@ -63,7 +63,10 @@ CARPET_CMAP = "cividis"
 BAND_FILLS = ("#f2f2f2", "#dedede")
 GAP_HATCH = "////"
 
-KINDS = ("carpet", "surfaces", "profiles", "sizing")
+#: Longest subtitle [characters] that fits on one line across the figure.
+SUBTITLE_CHARS = 175
+
+KINDS = ("carpet", "surfaces", "profiles", "sizing", "sweep")
 FORMATS = {".png": "png", ".svg": "svg", ".pdf": "pdf"}
 
 _TEMPERATURE_UNITS = {"degC": "°C", "degree_Celsius": "°C", "degrees_Celsius": "°C", "celsius": "°C",
@@ -148,6 +151,10 @@ def _subtitle(ds: xr.Dataset, what: str) -> str:
         bits.append(f"scheme {ds.attrs['scheme']}")
     if ds.attrs.get("created"):
         bits.append(f"run {ds.attrs['created']}")
+    # one line across the figure (about 175 characters at 8.5 pt): drop the
+    # trailing details (run time, scheme, geometry) rather than overlap the axes
+    while len(bits) > 1 and len("  ·  ".join(bits)) > SUBTITLE_CHARS:
+        bits.pop()
     return "  ·  ".join(bits)
 
 
@@ -434,7 +441,8 @@ def _is_sizing(ds: xr.Dataset) -> bool:
     return "thickness" in ds.dims and "time" not in ds.dims
 
 
-def _require_run(ds: xr.Dataset, source: str) -> None:
+def _require_run(ds: xr.Dataset, source: str, kind: str) -> None:
+    _refuse_sweep(ds, source, kind)
     if _is_sizing(ds):
         raise CaseError(source, "--kind", "this is a sizing Dataset (dimension thickness); plot it with --kind sizing")
     _need(ds, ("temperature",), source)
@@ -461,7 +469,7 @@ def plot_carpet(ds: xr.Dataset) -> Any:
     import matplotlib.patheffects as pe
 
     source = str(ds.encoding.get("source", "run"))
-    _require_run(ds, source)
+    _require_run(ds, source, "carpet")
     temperature = ds["temperature"].transpose("time", "x")
     scale, depth_unit = _length_scale(_units(ds["x"], "m"))
     fig, (ax,) = new_figure(ds, "temperature through the construction")
@@ -572,6 +580,7 @@ def plot_surfaces(ds: xr.Dataset) -> Any:
     matplotlib.figure.Figure
     """
     source = str(ds.encoding.get("source", "run"))
+    _refuse_sweep(ds, source, "surfaces")
     if _is_sizing(ds):
         raise CaseError(source, "--kind", "this is a sizing Dataset (dimension thickness); plot it with --kind sizing")
     _need(ds, ("surface_temperature_inside", "surface_temperature_outside"), source)
@@ -724,7 +733,7 @@ def plot_profiles(ds: xr.Dataset, times: list[str] | None = None) -> Any:
     matplotlib.figure.Figure
     """
     source = str(ds.encoding.get("source", "run"))
-    _require_run(ds, source)
+    _require_run(ds, source, "profiles")
     index = select_times(ds, times, source=source)
     scale, depth_unit = _length_scale(_units(ds["x"], "m"))
     fig, (ax,) = new_figure(ds, "temperature profiles")
@@ -821,6 +830,7 @@ def plot_sizing(ds: xr.Dataset) -> Any:
     matplotlib.figure.Figure
     """
     source = str(ds.encoding.get("source", "sizing"))
+    _refuse_sweep(ds, source, "sizing")
     if "thickness" not in ds.dims:
         raise CaseError(source, "--kind", "sizing needs a Dataset from 'layers size' (dimension thickness)")
     panels = [name for name in ("surface_temperature_outside", "heat_flow") if name in ds.variables]
@@ -939,18 +949,331 @@ def plot_sizing(ds: xr.Dataset) -> Any:
 
 
 # --------------------------------------------------------------------------- #
+# sweeps
+
+
+#: The per-point variable a sweep map shows unless asked for another.
+SWEEP_DEFAULT = "heat_flow_inside_mean"
+#: Most cells of a sweep map whose values are written in them.
+SWEEP_ANNOTATE_CELLS = 150
+#: Most points of a one-dimensional sweep whose values are written beside them.
+SWEEP_ANNOTATE_POINTS = 12
+#: Most tick labels along one axis of a sweep map (every swept value up to this).
+SWEEP_MAX_TICKS = 16
+#: Plot area of a one-panel figure with a colour bar, about [pt] (for fitting the cell labels).
+_MAP_AREA = (560.0, 270.0)
+_PINT_POWER = re.compile(r"([A-Za-zµ])(\d+)")
+
+
+def is_sweep(ds: xr.Dataset) -> bool:
+    """Whether ``ds`` was written by ``layers sweep`` (attribute ``product``, or a swept coordinate)."""
+    return str(ds.attrs.get("product", "")) == "sweep" or bool(sweep_dimensions(ds))
+
+
+def sweep_dimensions(ds: xr.Dataset) -> list[str]:
+    """The sweep dimensions of ``ds``, in the order of the case's ``[[sweep]]`` tables.
+
+    A sweep dimension has a coordinate whose ``long_name`` is ``"swept <key>"``;
+    the order is that of the ``sweep_dimensions`` attribute (``name = key (n
+    values); ...``), else that of the file.
+    """
+    found = [d for d in ds.dims
+             if d in ds.coords and str(ds[d].attrs.get("long_name", "")).startswith("swept ")]
+    listed = [part.split("=")[0].strip() for part in str(ds.attrs.get("sweep_dimensions", "")).split(";")]
+    ordered = [d for d in listed if d in found]
+    return ordered + [d for d in found if d not in ordered]
+
+
+def sweep_variables(ds: xr.Dataset) -> list[str]:
+    """The variables a sweep map can show: numbers on sweep dimensions only (the per-point figures)."""
+    dims = set(sweep_dimensions(ds))
+    return [name for name, da in ds.data_vars.items()
+            if da.dims and set(da.dims) <= dims and da.dtype.kind in "fiu"]
+
+
+def _refuse_sweep(ds: xr.Dataset, source: str, kind: str) -> None:
+    """A run or sizing figure asked of a sweep file: one line saying what to use instead."""
+    if is_sweep(ds):
+        dims = " x ".join(sweep_dimensions(ds)) or "its sweep dimensions"
+        drawn = "a file from 'layers size'" if kind == "sizing" else "a single run"
+        raise CaseError(source, "--kind", f"this is a sweep Dataset (a run per point of {dims}) and --kind {kind} draws "
+                                          f"{drawn}; use --kind sweep (the default for a sweep file)")
+
+
+def _written_units(units: str) -> str:
+    """A unit as the case file writes it (``mm``, ``W/(m*K)``, ``m2*K/W``) shown for a reader:
+    ``*`` as ``·``, powers as superscripts; CF spellings go through :func:`pretty_units`."""
+    units = str(units).strip()
+    if not any(c in units for c in "*/()^"):
+        return pretty_units(units)
+    text = units.replace("**", "^").replace("*", "·").replace(" ", "")
+    text = re.sub(r"\^(\d)", lambda m: _SUPERSCRIPT.get(m.group(1), m.group(1)), text)
+    text = _PINT_POWER.sub(lambda m: m.group(1) + "".join(_SUPERSCRIPT.get(c, c) for c in m.group(2)), text)
+    for word, shown in _TEMPERATURE_UNITS.items():
+        text = re.sub(rf"\b{word}\b", shown, text)
+    return text
+
+
+def _swept_label(ds: xr.Dataset, name: str) -> str:
+    """Axis label of a sweep dimension: its name, the case key it sets, its unit."""
+    coord = ds[name]
+    key = str(coord.attrs.get("long_name", ""))[len("swept "):].strip()
+    quantity = name if not key or key == name else f"{name} ({key})"
+    if "units" in coord.attrs:
+        return f"{quantity} [{_written_units(coord.attrs['units'])}]"
+    if coord.dtype.kind in "fiu":
+        # bare numbers in the case file are read in SI (temperatures in degC)
+        return f"{quantity} [SI]"
+    return quantity  # words (a material, a scheme): no unit
+
+
+def _value_texts(values: np.ndarray) -> list[str]:
+    """Swept values as tick labels: text as it is, numbers with the fewest
+    significant digits (3 at least) that keep every value distinct."""
+    if values.dtype.kind not in "fiu":
+        return [str(v) for v in values]
+    numbers = np.asarray(values, dtype=float)
+    for digits in range(3, 16):
+        texts = [f"{v:.{digits}g}" for v in numbers]
+        if len(set(texts)) == len(texts):
+            return texts
+    return [repr(float(v)) for v in numbers]
+
+
+def _scaled(values: np.ndarray, units: str) -> tuple[np.ndarray, str]:
+    """Large energies and powers with an SI prefix (J m-2 -> kJ m-2, MJ m-2, GJ m-2),
+    so cell labels and colour-bar ticks stay short [values, CF unit]."""
+    tokens = str(units).split()
+    finite = np.abs(values[np.isfinite(values)])
+    if not tokens or tokens[0] not in ("J", "W", "Wh") or finite.size == 0:
+        return values, units
+    largest = float(finite.max())
+    for prefix, factor in (("G", 1e9), ("M", 1e6), ("k", 1e3)):
+        if largest >= 10.0 * factor:
+            return values / factor, " ".join([prefix + tokens[0], *tokens[1:]])
+    return values, units
+
+
+def _cell_format(values: np.ndarray) -> str:
+    """One format for every cell label: three significant digits of the largest
+    value, in powers of ten when the values are very large or very small."""
+    finite = np.abs(values[np.isfinite(values)])
+    largest = float(finite.max()) if finite.size else 0.0
+    if largest == 0.0:
+        return "{:.0f}"
+    if largest >= 1e5 or largest < 1e-3:
+        return "{:.1e}"
+    return "{:.%df}" % max(0, 2 - math.floor(math.log10(largest)))
+
+
+def _cell_text(fmt: str, value: float) -> str:
+    if not math.isfinite(value):
+        return "no value"
+    text = fmt.format(value)
+    return "0" if re.fullmatch(r"-?0(\.0*)?", text) else text
+
+
+def _thin_ticks(n: int) -> np.ndarray:
+    """Tick positions (indices) along an axis of ``n`` swept values: all of them, or evenly thinned."""
+    if n <= SWEEP_MAX_TICKS:
+        return np.arange(n)
+    step = math.ceil((n - 1) / (SWEEP_MAX_TICKS - 1))
+    return np.arange(0, n, step)  # the first value always; the last too when the step divides n - 1
+
+
+def _text_colour(rgba) -> str:
+    """Black or white, whichever reads better on a cell of colour ``rgba`` (WCAG relative luminance)."""
+    def channel(c: float) -> float:
+        return c / 12.92 if c <= 0.04045 else ((c + 0.055) / 1.055) ** 2.4
+
+    r, g, b = (channel(float(c)) for c in rgba[:3])
+    luminance = 0.2126 * r + 0.7152 * g + 0.0722 * b
+    return "black" if luminance > 0.18 else "white"
+
+
+def _sweep_figure(ds: xr.Dataset, variable: str | None, source: str) -> str:
+    """The per-point variable to draw: ``variable``, else :data:`SWEEP_DEFAULT`,
+    else the first one the file has; a name the file cannot map is a one-line error."""
+    allowed = sweep_variables(ds)
+    if not allowed:
+        raise CaseError(source, "--variable", "the sweep Dataset has no variable on its sweep dimensions only")
+    if variable is None:
+        return SWEEP_DEFAULT if SWEEP_DEFAULT in allowed else allowed[0]
+    if variable not in allowed:
+        if variable in ds.coords:
+            why = f"{variable!r} is a coordinate, not a result per point"
+        elif variable in ds.variables:
+            extra = [d for d in ds[variable].dims if d not in sweep_dimensions(ds)]
+            if extra:
+                why = f"{variable!r} is not one number per point (it also runs along {', '.join(extra)})"
+            elif not ds[variable].dims:
+                why = f"{variable!r} is a single number, not one per point"
+            else:
+                why = f"{variable!r} is not numeric"
+        else:
+            why = f"unknown variable {variable!r}"
+        raise CaseError(source, "--variable", f"{why}; choose one of {', '.join(allowed)}")
+    return variable
+
+
+def plot_sweep(ds: xr.Dataset, variable: str | None = None) -> Any:
+    """A per-point figure of a sweep over its first two sweep dimensions, as a map.
+
+    Each cell is one point of the grid, coloured (``cividis``) by the
+    variable and, for grids of up to :data:`SWEEP_ANNOTATE_CELLS` cells, with
+    its value written in it; the first sweep dimension runs along the x axis,
+    the second up the y axis, each tick a swept value.  A one-dimensional
+    sweep is drawn as a line with markers against the swept value.  With
+    three or more dimensions the others are held at their first value, and
+    the subtitle says so.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        A sweep Dataset from ``layers sweep`` (attribute ``product = "sweep"``).
+    variable : str, optional
+        A variable on the sweep dimensions only (e.g. ``heat_flow_inside_mean``
+        [W m-2 for a wall], ``heat_in_inside_total`` [J m-2],
+        ``energy_balance_error`` [-]); default ``heat_flow_inside_mean``.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+
+    Raises
+    ------
+    CaseError
+        A Dataset that is not a sweep (key ``--kind``) or a variable it
+        cannot map (key ``--variable``, with the names it can).
+    """
+    source = str(ds.encoding.get("source", "sweep"))
+    dims = sweep_dimensions(ds)
+    if not dims:
+        raise CaseError(source, "--kind", "sweep needs a Dataset from 'layers sweep' (a swept coordinate)")
+    name = _sweep_figure(ds, variable, source)
+    da = ds[name]
+    for d in dims:  # a variable that does not change along a dimension: the same value on it
+        if d not in da.dims:
+            da = da.expand_dims({d: ds[d].values})
+    shown, held = dims[:2], dims[2:]
+    da = da.isel({d: 0 for d in held}).transpose(*shown)
+    values, units = _scaled(np.asarray(da.values, dtype=float), _units(da, "1"))
+    quantity = str(da.attrs.get("long_name") or name.replace("_", " "))
+    points = int(np.prod([ds.sizes[d] for d in dims]))
+    what = f"sweep of {points} points: {name}"
+    if held:
+        fixed = ", ".join(f"{d} = {_value_texts(np.asarray(ds[d].values))[0]}"
+                          + (f" {_written_units(ds[d].attrs['units'])}" if "units" in ds[d].attrs else "") for d in held)
+        what += f"; other dimensions at their first value: {fixed}"
+    fig, (ax,) = new_figure(ds, what)
+    if len(shown) == 1:
+        _sweep_line(ax, ds, shown[0], values, units, quantity)
+    else:
+        _sweep_map(fig, ax, ds, shown, values, units, quantity)
+    return fig
+
+
+def _wrapped(quantity: str, units: str, width: int) -> str:
+    """``axis_label`` wrapped to lines of about ``width`` characters (the unit stays at the end)."""
+    return "\n".join(textwrap.wrap(axis_label(quantity, units), width)) or axis_label(quantity, units)
+
+
+def _sweep_line(ax, ds: xr.Dataset, dim: str, values: np.ndarray, units: str, quantity: str) -> None:
+    """A one-dimensional sweep: the variable against the swept value, one marker per point."""
+    coord = np.asarray(ds[dim].values)
+    numeric = coord.dtype.kind in "fiu"
+    x = coord.astype(float) if numeric else np.arange(coord.size, dtype=float)
+    kw = _line_style(0)
+    kw.update(markersize=6)
+    if not numeric:  # words (materials, schemes) have no order between them: markers only
+        kw.update(linestyle="none", markersize=8)
+    ax.plot(x, values, **kw)
+    if not numeric or coord.size <= SWEEP_MAX_TICKS:
+        ax.set_xticks(x, _value_texts(coord))
+    if not numeric:
+        ax.set_xlim(-0.5, coord.size - 0.5)
+    if coord.size <= SWEEP_ANNOTATE_POINTS:
+        fmt = _cell_format(values)
+        for xi, yi in zip(x, values):
+            if math.isfinite(yi):
+                # on a white patch above its marker, so a steep line cannot run through the digits
+                ax.annotate(_cell_text(fmt, float(yi)), (xi, yi), xytext=(0, 8), textcoords="offset points",
+                            ha="center", va="bottom", fontsize=8, color="#333333", zorder=3,
+                            bbox={"facecolor": "white", "edgecolor": "none", "alpha": 0.9, "pad": 1.0})
+        low, high = ax.get_ylim()
+        ax.set_ylim(low, high + 0.08 * (high - low))  # room for the top labels
+    _rotate_if_crowded(ax, _value_texts(coord) if (not numeric or coord.size <= SWEEP_MAX_TICKS) else [])
+    ax.set_xlabel(_swept_label(ds, dim))
+    ax.set_ylabel(_wrapped(quantity, units, 60))
+
+
+def _rotate_if_crowded(ax, texts: list[str], room: float = 95.0) -> None:
+    """Tilt the x tick labels when side by side they would need more than ``room`` characters."""
+    if texts and sum(len(t) + 2 for t in texts) > room:
+        for label in ax.get_xticklabels():
+            label.set_rotation(30)
+            label.set_ha("right")
+            label.set_rotation_mode("anchor")
+
+
+def _sweep_map(fig, ax, ds: xr.Dataset, shown: list[str], values: np.ndarray, units: str, quantity: str) -> None:
+    """Two sweep dimensions: one cell per point, the first dimension across, the second up."""
+    nx, ny = values.shape
+    grid = np.ma.masked_invalid(values.T)  # rows: the second dimension
+    finite = values[np.isfinite(values)]
+    vmin, vmax = (float(finite.min()), float(finite.max())) if finite.size else (0.0, 1.0)
+    if vmin == vmax:
+        vmin, vmax = vmin - 0.5, vmax + 0.5
+    ax.set_facecolor("#eeeeee")  # points without a value show as light grey
+    mesh = ax.pcolormesh(np.arange(nx + 1) - 0.5, np.arange(ny + 1) - 0.5, grid, cmap=CARPET_CMAP, vmin=vmin,
+                         vmax=vmax, shading="flat", edgecolors="white", linewidth=0.6)
+    ax.grid(False)
+    ax.set_xlim(-0.5, nx - 0.5)
+    ax.set_ylim(-0.5, ny - 0.5)
+    x_texts = _value_texts(np.asarray(ds[shown[0]].values))
+    y_texts = _value_texts(np.asarray(ds[shown[1]].values))
+    xt, yt = _thin_ticks(nx), _thin_ticks(ny)
+    ax.set_xticks(xt, [x_texts[i] for i in xt])
+    ax.set_yticks(yt, [y_texts[i] for i in yt])
+    ax.tick_params(length=0)
+    _rotate_if_crowded(ax, [x_texts[i] for i in xt])
+    ax.set_xlabel(_swept_label(ds, shown[0]))
+    ax.set_ylabel(_swept_label(ds, shown[1]))
+    if nx * ny <= SWEEP_ANNOTATE_CELLS:
+        fmt = _cell_format(values)
+        texts = [[_cell_text(fmt, float(values[i, j])) for j in range(ny)] for i in range(nx)]
+        longest = max(len(t) for row in texts for t in row)
+        # the largest type (up to 9 pt) that fits the cell: a character is about 0.6 of the type size wide
+        size = min(9.0, _MAP_AREA[0] / nx / (0.62 * longest + 0.8), _MAP_AREA[1] / ny / 1.8)
+        if size >= 5.0:
+            colours = mesh.cmap(mesh.norm(values))
+            for i in range(nx):
+                for j in range(ny):
+                    ok = math.isfinite(values[i, j])
+                    ax.text(i, j, texts[i][j], ha="center", va="center", fontsize=size,
+                            color=_text_colour(colours[i, j]) if ok else "#555555")
+    bar = fig.colorbar(mesh, ax=ax, pad=0.02, fraction=0.05, aspect=30)
+    bar.set_label(_wrapped(quantity, units, 50), fontsize=9)
+    bar.ax.tick_params(labelsize=8.5)
+
+
+# --------------------------------------------------------------------------- #
 # command line
 
 
-PLOTTERS = {"carpet": plot_carpet, "surfaces": plot_surfaces, "profiles": plot_profiles, "sizing": plot_sizing}
+PLOTTERS = {"carpet": plot_carpet, "surfaces": plot_surfaces, "profiles": plot_profiles, "sizing": plot_sizing,
+            "sweep": plot_sweep}
 
 
-def plot(ds: xr.Dataset, kind: str, times: list[str] | None = None) -> Any:
-    """The figure of one ``kind`` (``carpet``, ``surfaces``, ``profiles`` or ``sizing``)."""
+def plot(ds: xr.Dataset, kind: str, times: list[str] | None = None, variable: str | None = None) -> Any:
+    """The figure of one ``kind`` (``carpet``, ``surfaces``, ``profiles``, ``sizing`` or ``sweep``;
+    ``times`` for profiles, ``variable`` for sweep)."""
     if kind not in PLOTTERS:
         raise ValueError(f"kind must be one of {KINDS}, got {kind!r}")
     if kind == "profiles":
         return plot_profiles(ds, times)
+    if kind == "sweep":
+        return plot_sweep(ds, variable)
     return PLOTTERS[kind](ds)
 
 
@@ -1017,22 +1340,26 @@ def open_run(path: str | os.PathLike) -> xr.Dataset:
 
 
 def plot_file(
-    run: str | os.PathLike, kind: str | None = None, out: str | os.PathLike | None = None, times: list[str] | None = None
+    run: str | os.PathLike, kind: str | None = None, out: str | os.PathLike | None = None, times: list[str] | None = None,
+    variable: str | None = None,
 ) -> Path:
-    """Draw one figure of a run or sizing file and save it, never over a file.
+    """Draw one figure of a run, sizing or sweep file and save it, never over a file.
 
     Parameters
     ----------
     run : str or Path
-        A netCDF file written by ``layers run`` or ``layers size``.
+        A netCDF file written by ``layers run``, ``layers size`` or ``layers sweep``.
     kind : str, optional
-        ``carpet``, ``surfaces``, ``profiles`` or ``sizing``; default
-        ``sizing`` for a sizing file, else ``surfaces``.
+        ``carpet``, ``surfaces``, ``profiles``, ``sizing`` or ``sweep``; default
+        ``sweep`` for a sweep file, ``sizing`` for a sizing file, else ``surfaces``.
     out : str or Path, optional
         The figure file (.png, .svg, .pdf); default next to the run (see
         :func:`output_path`).
     times : list of str, optional
         ISO 8601 times for ``profiles``.
+    variable : str, optional
+        For ``sweep``: the variable on the sweep dimensions to map (default
+        ``heat_flow_inside_mean``).
 
     Returns
     -------
@@ -1042,8 +1369,9 @@ def plot_file(
     Raises
     ------
     CaseError
-        For an unreadable run, a kind that does not fit the file, or an
-        ``out`` that exists or has an unknown extension.
+        For an unreadable run, a kind that does not fit the file, a variable
+        a sweep map cannot show, or an ``out`` that exists or has an unknown
+        extension.
     """
     _use_agg()
     ds = open_run(run)
@@ -1052,15 +1380,25 @@ def plot_file(
         raise CaseError(str(run), "(file)", "is a comparison Dataset; draw it with `layers compare RUN_A.nc RUN_B.nc -o OUT.png`")
     if product == "periodic":
         raise CaseError(str(run), "(file)", "holds ISO 13786 characteristics (numbers, no time series); `layers periodic CASE.toml` prints them")
-    kind = kind or ("sizing" if _is_sizing(ds) else "surfaces")
+    sweep = is_sweep(ds)
+    kind = kind or ("sweep" if sweep else "sizing" if _is_sizing(ds) else "surfaces")
     if kind not in KINDS:
         raise CaseError(str(run), "--kind", f"unknown kind {kind!r}; choose one of {', '.join(KINDS)}")
+    if sweep and kind != "sweep":
+        _refuse_sweep(ds, str(run), kind)
+    if kind == "sweep" and not sweep:
+        what = "a sizing Dataset (use --kind sizing)" if _is_sizing(ds) else "a single run (use --kind surfaces, carpet or profiles)"
+        raise CaseError(str(run), "--kind", f"sweep needs a Dataset from 'layers sweep'; this is {what}")
+    if variable is not None and kind != "sweep":
+        raise CaseError(str(run), "--variable", "only --kind sweep uses --variable")
+    if kind == "sweep":
+        _sweep_figure(ds, variable, str(run))  # a name the map cannot show is refused before any file is named
     target = output_path(run, kind, out)
     if _is_sizing(ds) and kind != "sizing":
         raise CaseError(str(run), "--kind", "this is a sizing Dataset (dimension thickness); use --kind sizing")
     if times and kind != "profiles":
         raise CaseError(str(run), "--times", "only --kind profiles uses --times")
-    fig = plot(ds, kind, times)
+    fig = plot(ds, kind, times, variable)
     try:
         return save_figure(fig, target, {"title": str(ds.attrs.get("title", "")), "caution": _caution(ds)})
     except FileExistsError:
@@ -1069,7 +1407,7 @@ def plot_file(
 
 __all__ = [
     "CARPET_CMAP", "DPI", "FIGSIZE", "KINDS", "LINESTYLES", "MARKERS", "PALETTE",
-    "LayerBand", "axis_label", "cell_bounds", "layer_bands", "new_figure", "open_run", "output_path",
-    "plot", "plot_carpet", "plot_comparison", "plot_file", "plot_profiles", "plot_sizing", "plot_surfaces", "pretty_units",
-    "save_figure", "select_times",
+    "LayerBand", "axis_label", "cell_bounds", "is_sweep", "layer_bands", "new_figure", "open_run", "output_path",
+    "plot", "plot_carpet", "plot_comparison", "plot_file", "plot_profiles", "plot_sizing", "plot_surfaces", "plot_sweep",
+    "pretty_units", "save_figure", "select_times", "sweep_dimensions", "sweep_variables",
 ]

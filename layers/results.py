@@ -8,6 +8,7 @@ instantaneous at their time stamps (``cell_methods = "time: point"``).
 from __future__ import annotations
 
 import datetime as dt
+import math
 import os
 import tempfile
 from collections.abc import Callable
@@ -179,6 +180,69 @@ def to_dataset(
     cf_encoding(ds)
     ds["time"].encoding.update({"units": f"seconds since {np.datetime_as_string(times[0], unit='s')}", "calendar": "proleptic_gregorian", "dtype": "float64"})
     return ds
+
+
+class FieldSink:
+    """Kept cell fields written to a scratch netCDF file as the march makes them,
+    so that a run's memory does not grow with its length; read back lazily
+    (:meth:`lazy`, a dask array) when the result is written, then removed.
+
+    It also keeps what the checks after a run need from the fields: the
+    coldest and hottest cell (``low``, ``high`` [degC]) and, for each kept
+    state, the hottest cell of each layer (``layer_hottest``, (m, layers)).
+    """
+
+    #: Rows per chunk of the scratch file and of the lazy array.
+    BLOCK = 256
+
+    def __init__(self, mesh: Mesh, folder: str | os.PathLike | None = None) -> None:
+        import netCDF4
+
+        fd, name = tempfile.mkstemp(prefix=".layers-field-", suffix=".nc", dir=folder)
+        os.close(fd)
+        self.path = Path(name)
+        self.layer = mesh.layer
+        self.layers = int(mesh.layer.max()) if mesh.n else 0
+        self.rows = 0
+        self.low, self.high = math.inf, -math.inf
+        self._hottest: list[np.ndarray] = []
+        self._opened: xr.Dataset | None = None
+        self._nc = netCDF4.Dataset(self.path, "w", format="NETCDF4")
+        self._nc.createDimension("time", None)
+        self._nc.createDimension("x", mesh.n)
+        self._var = self._nc.createVariable("temperature", "f8", ("time", "x"), chunksizes=(self.BLOCK, mesh.n))
+
+    def write(self, rows: np.ndarray) -> None:
+        rows = np.atleast_2d(np.asarray(rows, dtype=float))
+        if rows.shape[0] == 0:
+            return
+        self._var[self.rows:self.rows + rows.shape[0], :] = rows
+        self.rows += rows.shape[0]
+        self.low, self.high = min(self.low, float(rows.min())), max(self.high, float(rows.max()))
+        hottest = np.full((rows.shape[0], self.layers), -math.inf)
+        for number in range(1, self.layers + 1):
+            cells = self.layer == number
+            if cells.any():
+                hottest[:, number - 1] = rows[:, cells].max(axis=1)
+        self._hottest.append(hottest)
+
+    @property
+    def layer_hottest(self) -> np.ndarray:
+        return np.concatenate(self._hottest) if self._hottest else np.empty((0, self.layers))
+
+    def lazy(self):
+        """The fields written, as a dask array read from the scratch file in blocks."""
+        self._nc.close()
+        self._opened = xr.open_dataset(self.path, chunks={"time": self.BLOCK}, cache=False)
+        return self._opened["temperature"].data
+
+    def close(self) -> None:
+        """Close and remove the scratch file (after the result is written)."""
+        if self._opened is not None:
+            self._opened.close()
+        elif self._nc.isopen():
+            self._nc.close()
+        self.path.unlink(missing_ok=True)
 
 
 def cf_encoding(ds: xr.Dataset, history: str | None = None) -> xr.Dataset:

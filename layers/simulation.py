@@ -131,7 +131,7 @@ def _starts_with_a_step(case: Case, system: System) -> float:
     )
 
 
-def run_march(case: Case, mesh: Mesh, progress: Callable[[int, int], None] | None = None) -> tuple[MarchResult, int, System]:
+def run_march(case: Case, mesh: Mesh, progress: Callable[[int, int], None] | None = None, field_sink=None) -> tuple[MarchResult, int, System]:
     """Initial state and march of a case: the march result, the periodic cycles used and the system marched.
 
     Raises
@@ -141,7 +141,7 @@ def run_march(case: Case, mesh: Mesh, progress: Callable[[int, int], None] | Non
     """
     system = system_for(case, mesh)
     try:
-        return _run_march(case, mesh, system, progress)
+        return _run_march(case, mesh, system, progress, field_sink)
     except UnphysicalState as exc:
         raise unphysical_error(case, system, exc) from None
     except BadConductivity as exc:
@@ -152,14 +152,15 @@ def run_march(case: Case, mesh: Mesh, progress: Callable[[int, int], None] | Non
         ) from None
 
 
-def _run_march(case: Case, mesh: Mesh, system: System, progress) -> tuple[MarchResult, int, System]:
+def _run_march(case: Case, mesh: Mesh, system: System, progress, field_sink=None) -> tuple[MarchResult, int, System]:
     scheme = scheme_for(case, system)
     initial, cycles = initial_state(case, mesh, system, scheme)
     plan = case.time
     total = plan.n_steps
     callback = (lambda done: progress(done, total)) if progress else None
     if scheme == "exact":
-        return exact_march(system, initial, plan.step, total, output_every=plan.output_stride, progress=callback), cycles, system
+        return exact_march(system, initial, plan.step, total, output_every=plan.output_stride, progress=callback,
+                           field_sink=field_sink), cycles, system
     step_size = _starts_with_a_step(case, system)
     if scheme == "crank-nicolson" and step_size > STEP_WARNING:
         warnings.warn(
@@ -173,7 +174,7 @@ def _run_march(case: Case, mesh: Mesh, system: System, progress) -> tuple[MarchR
     result = march(
         system, initial, plan.step, total,
         output_every=plan.output_stride, scheme=scheme, initial_water=water0,
-        smooth_start=step_size > 0.0, ice_target=_ice_target(case), progress=callback,
+        smooth_start=step_size > 0.0, ice_target=_ice_target(case), progress=callback, field_sink=field_sink,
     )
     jumps = result.smoothed_steps - (min(resolve_scheme(scheme).smoothing_steps, total) if step_size > 0.0 else 0)
     if scheme == "crank-nicolson" and jumps > 0:
@@ -192,14 +193,17 @@ def _run_march(case: Case, mesh: Mesh, system: System, progress) -> tuple[MarchR
 RANGE_WARNING = 0.1
 
 
-def _warn_outside_range(case: Case, system: System, res: MarchResult) -> None:
+def _warn_outside_range(case: Case, system: System, res: MarchResult, field_sink=None) -> None:
     """Warn when the cells leave the range spanned by the initial state and
     every temperature that drives a boundary (maximum principle)."""
     if any(ex.kind == "flux" or (ex.kind == "film" and ex.has_sun_or_sky) for ex in (system.inside, system.outside)):
         return
     low, high = res.drive_range
     t = res.temperature if res.temperature is not None else res.interface_temperature
-    above, below = float(np.max(t)) - high, low - float(np.min(t))
+    hottest, coldest = float(np.max(t)), float(np.min(t))
+    if field_sink is not None:
+        hottest, coldest = max(hottest, field_sink.high), min(coldest, field_sink.low)
+    above, below = hottest - high, low - coldest
     if max(above, below) > RANGE_WARNING:
         where = f"{above:.3g} K above the highest" if above >= below else f"{below:.3g} K below the lowest"
         warnings.warn(
@@ -210,7 +214,7 @@ def _warn_outside_range(case: Case, system: System, res: MarchResult) -> None:
         )
 
 
-def _warn_service_temperature(case: Case, mesh: Mesh, res: MarchResult, warn: bool = True) -> list[str]:
+def _warn_service_temperature(case: Case, mesh: Mesh, res: MarchResult, warn: bool = True, field_sink=None) -> list[str]:
     """Warn for every layer whose material passes its maximum service temperature
     (at the kept times, cell centres where kept and layer faces); returns the
     warnings' texts (``warn=False``: only returns them)."""
@@ -222,6 +226,8 @@ def _warn_service_temperature(case: Case, mesh: Mesh, res: MarchResult, warn: bo
         hottest = faces.max(axis=1)
         if res.temperature is not None:
             hottest = np.maximum(res.temperature[:, mesh.layer == number].max(axis=1), hottest)
+        elif field_sink is not None:
+            hottest = np.maximum(field_sink.layer_hottest[:, number - 1], hottest)
         j = int(np.argmax(hottest))
         if hottest[j] > spec.material.max_temperature:
             when = np.datetime_as_string(case.datetimes(res.time[j : j + 1])[0], unit="m") + "Z"
@@ -270,13 +276,14 @@ class RunRecord(NamedTuple):
     attrs: dict
 
 
-def run_record(case: Case, mesh: Mesh, system: System, res: MarchResult, cycles: int, *, warn: bool = True) -> RunRecord:
+def run_record(case: Case, mesh: Mesh, system: System, res: MarchResult, cycles: int, *, warn: bool = True, field_sink=None) -> RunRecord:
     """What a run reports, from its march: warnings (overshoot, service
     temperature), boundary series, contents, the energy balance and attributes.
-    Shared by :func:`simulate` and the members of a sweep."""
+    Shared by :func:`simulate` and the members of a sweep.  With a
+    ``field_sink`` the fields' extremes come from it."""
     if warn:
-        _warn_outside_range(case, system, res)
-    overheated = _warn_service_temperature(case, mesh, res, warn=warn)
+        _warn_outside_range(case, system, res, field_sink)
+    overheated = _warn_service_temperature(case, mesh, res, warn=warn, field_sink=field_sink)
     seconds = res.time
     extra: dict = {}
     attrs: dict = {}
@@ -353,7 +360,7 @@ def record_dataset(case: Case, mesh: Mesh, record: RunRecord) -> xr.Dataset:
     return ds
 
 
-def simulate(case: Case, progress: Callable[[int, int], None] | None = None) -> xr.Dataset:
+def simulate(case: Case, progress: Callable[[int, int], None] | None = None, field_sink=None) -> xr.Dataset:
     """Run a case and return its results as a labelled Dataset.
 
     Parameters
@@ -362,6 +369,11 @@ def simulate(case: Case, progress: Callable[[int, int], None] | None = None) -> 
         From :func:`layers.case.load_case`.
     progress : callable, optional
         ``progress(steps_done, steps_total)``, called now and then.
+    field_sink : FieldSink, optional
+        Takes the cell fields as the march makes them
+        (:class:`layers.results.FieldSink`); the Dataset's ``temperature``
+        is then read back from it lazily, so memory stays flat however long
+        the run.  Close the sink after the Dataset is written.
 
     Returns
     -------
@@ -369,8 +381,10 @@ def simulate(case: Case, progress: Callable[[int, int], None] | None = None) -> 
         Variables and attributes as the product contract lists them.
     """
     mesh = case.mesh()
-    res, cycles, system = run_march(case, mesh, progress)
-    record = run_record(case, mesh, system, res, cycles)
+    res, cycles, system = run_march(case, mesh, progress, field_sink=field_sink)
+    record = run_record(case, mesh, system, res, cycles, field_sink=field_sink)
+    if field_sink is not None:
+        record.fields["temperature"] = field_sink.lazy()
     if case.time.keep_temperature is False:
         record.fields["temperature"] = None
     return record_dataset(case, mesh, record)
