@@ -47,7 +47,7 @@ RUN_VARIABLES = ("time", "surface_temperature_outside", "heat_flow_inside")
 #: Environment variable naming the folder of the ``layers list`` header cache.
 CACHE_ENV = "LAYERS_CACHE_DIR"
 #: Version of the cache file layout; a cache of another version is ignored.
-CACHE_FORMAT = 2
+CACHE_FORMAT = 3
 
 # --------------------------------------------------------------------------- #
 # headline attributes (written with each run)
@@ -169,8 +169,11 @@ class ArchiveEntry:
     problem : str or None
         Why the file is not listed as a run.
     product : str or None
-        What the file is: ``run``, ``sizing``, ``periodic`` or
+        What the file is: ``run``, ``sweep``, ``sizing``, ``periodic`` or
         ``comparison``; None for a foreign or unreadable file.
+    points : int or None
+        The number of points of a sweep (its headline figures are the
+        extremes over all of them, and the mean over them of the mean heat flow).
     """
 
     path: Path
@@ -191,6 +194,7 @@ class ArchiveEntry:
     headline_source: str | None = None
     problem: str | None = None
     product: str | None = None
+    points: int | None = None
 
     @property
     def is_run(self) -> bool:
@@ -320,7 +324,8 @@ def _entry_from(nc: Any, path: Path) -> ArchiveEntry:
         heat_flow_inside_mean=_number(summary.get("heat_flow_inside_mean")),
         heat_flow_units=_str_or_none(summary.get("heat_flow_inside_mean_units")),
         headline_source=source,
-        product="run",
+        product=product if product == "sweep" else "run",
+        points=int(nc.getncattr("sweep_points")) if product == "sweep" and "sweep_points" in names else None,
     )
 
 
@@ -545,7 +550,7 @@ def format_list(entries: Sequence[ArchiveEntry]) -> str:
         rows.append((
             (e.created or "").replace("T", " ").rstrip("Z")[:16],
             e.path.name,
-            _clip(e.title or "", 36),
+            _clip((e.title or "") + (f" [sweep, {e.points} points]" if e.product == "sweep" else ""), 36),
             _clip(e.label or "", 16),
             (e.case_sha256 or "")[:8],
             e.geometry or "",

@@ -57,6 +57,12 @@ def load_run(path: str | os.PathLike) -> xr.Dataset:
     problem = not_a_run(list(ds.attrs), list(ds.variables), ds.attrs.get("product"))
     if problem:
         raise CaseError(str(path), "(file)", problem)
+    if ds.attrs.get("product") == "sweep":
+        raise CaseError(
+            str(path), "(file)",
+            f"is a sweep of {ds.attrs.get('sweep_points', 'several')} points; `layers plot` maps a result over its points, "
+            "and xarray selects one (ds.sel(NAME=VALUE)); `layers compare` takes single runs",
+        )
     if "temperature" not in ds or "x" not in ds.dims:
         raise CaseError(str(path), "(file)", "not a layers run: no 'temperature' profile")
     for name in ("temperature", "surface_temperature_outside", "heat_flow_inside"):

@@ -138,7 +138,11 @@ def test_layers_sweep_archives_one_file_that_list_shows(tmp_path, capsys, monkey
     files = list((tmp_path / "runs").glob("wall-sweep-*.nc"))
     assert len(files) == 1
     assert main(["list", str(tmp_path / "runs")]) == 0
-    assert "wall-sweep-" in capsys.readouterr().out
+    listed = capsys.readouterr().out
+    assert "wall-sweep-" in listed and "[sweep, 6 points]" in listed
+    # compare takes single runs: a sweep is refused in one line that says what to use
+    assert main(["compare", str(files[0]), str(files[0])]) == 2
+    assert "is a sweep of 6 points" in capsys.readouterr().err
     # bad command lines: one line, exit 2
     assert main(["sweep", str(path), "--workers", "0", "--archive", str(tmp_path / "runs")]) == 2
     assert main(["sweep", str(path), "--workers", "2", "--scheduler", "tcp://127.0.0.1:1", "--archive", str(tmp_path / "runs")]) == 2
