@@ -38,6 +38,7 @@ z_0 = r / (1 - e^(-lambda P)) mode by mode.
 
 from __future__ import annotations
 
+import functools
 import math
 from collections.abc import Callable
 from typing import NamedTuple
@@ -54,6 +55,14 @@ def is_exact_ready(system: System) -> bool:
     singular and the uniform mode would decay by round-off)."""
     fixes_a_temperature = any(ex.kind in ("film", "temperature") for ex in (system.inside, system.outside))
     return not system.depends_on_temperature and system.water is None and fixes_a_temperature
+
+
+@functools.cache
+def _eigh_tridiagonal():
+    """scipy's symmetric tridiagonal eigensolver (LAPACK stemr), imported on first use."""
+    from scipy.linalg import eigh_tridiagonal
+
+    return eigh_tridiagonal
 
 
 def _phi(s: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
@@ -80,8 +89,6 @@ class ModalSystem:
     """The eigenmodes of a linear system (see the module docstring)."""
 
     def __init__(self, system: System) -> None:
-        from scipy.linalg import eigh_tridiagonal
-
         if not is_exact_ready(system):
             raise ValueError("the exact path needs a linear case (constant k, fixed films, no contents)")
         self.system = system
@@ -98,7 +105,7 @@ class ModalSystem:
         diag[0] += self.g_in
         diag[-1] += self.g_out
         s = 1.0 / np.sqrt(c)
-        lam, vec = eigh_tridiagonal(diag * s * s, -g * s[:-1] * s[1:])
+        lam, vec = _eigh_tridiagonal()(diag * s * s, -g * s[:-1] * s[1:])
         self.lam = np.maximum(lam, 0.0)  # round-off below zero for a singular K
         self.to_cells = s[:, None] * vec  # T = to_cells @ z
         self.to_modes = vec.T * np.sqrt(c)[None, :]  # z = to_modes @ T
@@ -227,23 +234,23 @@ class ModalBatch:
             faces_t = mesh.interface_temperatures(np.eye(n), modal.k, modal.g, 0.0, 0.0).T
             faces_q = np.stack([mesh.interface_temperatures(np.zeros(n), modal.k, modal.g, q_in, q_out) for q_in, q_out in ((1.0, 0.0), (0.0, 1.0))], axis=1)
             rows = np.vstack([np.eye(n)[[0, -1]], modal.system.capacity[None, :], faces_t]) @ modal.to_cells  # (R, modes)
-            # state at a step's end: slow modes carried, fast ones their forced term
-            end_fast = np.einsum("rm,sm,em->res", rows[:, fast], p[:, fast], w[:, fast])  # (R, ends, sides)
-            field_fast = np.einsum("cm,sm,em->ces", modal.to_cells[:, fast], p[:, fast], w[:, fast])
+            # state at a step's end: slow modes carried, fast ones their forced term;
+            # coefficients of the drives (columns: [end, side] = p_side w_end per mode)
+            by_end = (w[:, None, :] * p[None, :, :]).reshape(4, -1).T           # (modes, ends x sides)
+            end_fast = (rows[:, fast] @ by_end[fast]).reshape(-1, 2, 2)        # (R, ends, sides)
+            field_fast = np.zeros((self.n, 2, 2))
+            field_fast[:n] = (modal.to_cells[:, fast] @ by_end[fast]).reshape(n, 2, 2)
             # the surface cells' integral over a step: h phi_1 z(start) + forced terms; a fast
             # mode's start is its forced term of the step before (lags -1, 0, +1 below)
             surf = rows[:2]
             lags = np.zeros((2, 3, 2))                                         # (surface, lag, side)
-            lags[:, 1:, :] = np.einsum("rm,sm,em->res", surf, p, integral)
-            start_fast = np.einsum("rm,sm,em->res", surf[:, fast] * (h * phi1[fast]), p[:, fast], w[:, fast])
-            lags[:, :2, :] += start_fast
-            pad = self.n - n
-            field_fast = np.pad(field_fast, ((0, pad), (0, 0), (0, 0)))
+            lags[:, 1:, :] = (surf @ (integral[:, None, :] * p[None, :, :]).reshape(4, -1).T).reshape(2, 2, 2)
+            lags[:, :2, :] += ((surf[:, fast] * (h * phi1[fast])) @ by_end[fast]).reshape(2, 2, 2)
             parts.append(dict(
                 slow=slow, decay=decay[slow], drive=(p[:, None, slow] * w[None, :, slow]),  # (sides, ends, slow)
                 rows=rows[:, slow].T, end_fast=end_fast, lags=lags, start_rows=(surf[:, slow] * (h * phi1[slow])).T,
-                start_fast_rows=surf[:, fast] * (h * phi1[fast]), fast_drive=np.einsum("sm,em->sm", p[:, fast], w[:, fast]),
-                field=np.pad(modal.to_cells[:, slow], ((0, pad), (0, 0))), field_fast=field_fast, faces_q=faces_q,
+                start_fast_rows=surf[:, fast] * (h * phi1[fast]), fast_drive=p[:, fast] * (w[0, fast] + w[1, fast]),
+                field=modal.to_cells[:, slow], field_fast=field_fast, faces_q=faces_q,
             ))
         self.slow_count = max(int(part["slow"].sum()) for part in parts)
         ms, b = max(self.slow_count, 1), len(modals)
@@ -252,14 +259,14 @@ class ModalBatch:
         self.drive = np.zeros((b, 2, 2, ms))
         self.rows = np.zeros((b, ms, n_rows))
         self.start_rows = np.zeros((b, ms, 2))
-        self.field = np.zeros((b, n, ms))
+        self.field = np.zeros((b, self.n, ms))
         for i, part in enumerate(parts):
             k = int(part["slow"].sum())
             self.decay[i, :k] = part["decay"]
             self.drive[i, :, :, :k] = part["drive"]
             self.rows[i, :k] = part["rows"]
             self.start_rows[i, :k] = part["start_rows"]
-            self.field[i, :, :k] = part["field"]
+            self.field[i, : self.cells[i], :k] = part["field"]
         # per-step products in one matrix each: the drives at both ends of a step
         # (B, [beta_i, beta_i+1] x sides, slow) and the rows read at every step
         # (surface cells at the end, surface cells' integral from the start)
