@@ -47,6 +47,15 @@ class _Progress:
             self.bar.close()
 
 
+def _print_written(written, extra, cautions: list[str]) -> None:
+    """Where a result went (the archive, and -o), then its cautions."""
+    print(f"archived: {written}")
+    if extra:
+        print(f"written:  {extra}")
+    for line in cautions:
+        print(f"caution: {line}")
+
+
 def cmd_run(args: argparse.Namespace) -> int:
     from layers.api import run_case
     from layers.case import load_case
@@ -93,11 +102,7 @@ def cmd_run(args: argparse.Namespace) -> int:
                   + (f"; series from {case.provenance['series_source']}" if "series_source" in case.provenance else ""))
         print(run_summary(ds, case))
     # Even a quiet run says where its result went, and keeps the caution.
-    print(f"archived: {written}")
-    if extra:
-        print(f"written:  {extra}")
-    for line in run_cautions(ds, case):
-        print(f"caution: {line}")
+    _print_written(written, extra, run_cautions(ds, case))
     return EXIT_OK
 
 
@@ -197,11 +202,7 @@ def cmd_sweep(args: argparse.Namespace) -> int:
     extra = write_output(ds, args.out)
     if not args.quiet:
         print(sweep_summary(ds, case))
-    print(f"archived: {written}")
-    if extra:
-        print(f"written:  {extra}")
-    for line in run_cautions(ds, case):
-        print(f"caution: {line}")
+    _print_written(written, extra, run_cautions(ds, case))
     return EXIT_OK
 
 
