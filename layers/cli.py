@@ -78,6 +78,9 @@ def cmd_run(args: argparse.Namespace) -> int:
         raise CaseError("(command line)", "--series-dir", "is for --again RUN.nc (a case file names its own series)")
     if args.label:
         case.label = args.label
+    if case.sweep:
+        warnings.warn(f"{case.path}: has [[sweep]] tables; `layers run` runs the case as written, `layers sweep` runs every point",
+                      UserWarning, stacklevel=1)
     case.record_paths = bool(args.record_paths)
     progress = _Progress(args.quiet, case.stem)
     # the cell fields go to a scratch file as the march makes them and from there,

@@ -118,6 +118,14 @@ def check_report(case: Case) -> str:
         filled = {k: v for k, v in case.series.filled.items() if v}
         note = "; filled by fill_gaps: " + ", ".join(f"{k} {v}" for k, v in filled.items()) if filled else ""
         lines.append(f"series:    {case.series.file} ({len(case.series.time)} rows{note})")
+    if case.sweep:
+        points = int(np.prod([len(d.values) for d in case.sweep]))
+        lines.append(f"sweep:     {points} points (`layers sweep`): " + "; ".join(
+            f"{d.name} = {d.key}: {d.values[0]} .. {d.values[-1]} ({len(d.values)} values)" for d in case.sweep))
+    if case.uncertainty is not None:
+        u = case.uncertainty
+        lines.append(f"uncertainty: {u.samples} samples (seed {u.seed}, confidence {u.confidence:g}) of "
+                     + ", ".join(f"{v.key} ({v.distribution})" for v in u.vary))
     lines.append("")
     lines.append(f"caution: {CAUTION}")
     return "\n".join(lines)
