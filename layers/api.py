@@ -30,7 +30,7 @@ if TYPE_CHECKING:
 
     from layers.case import Case
 
-__all__ = ["load_case", "open_run", "parse_case", "periodic", "simulate", "size"]
+__all__ = ["load_case", "open_run", "parse_case", "periodic", "simulate", "size", "sweep"]
 
 
 def load_case(path: str | os.PathLike) -> Case:
@@ -200,7 +200,7 @@ def sweep(case: Case, client: Any = None, progress: Callable[[int, int], None] |
         If the case has no ``[[sweep]]``, or a point's case is not valid
         (the message names the point).
     """
-    from layers.sweep import sweep as _sweep
+    from layers.sweeps import sweep as _sweep
 
     return _sweep(case, client=client, progress=progress)
 

@@ -550,7 +550,7 @@ def format_list(entries: Sequence[ArchiveEntry]) -> str:
         rows.append((
             (e.created or "").replace("T", " ").rstrip("Z")[:16],
             e.path.name,
-            _clip((e.title or "") + (f" [sweep, {e.points} points]" if e.product == "sweep" else ""), 36),
+            (f"[sweep, {e.points} points] " if e.product == "sweep" else "") + _clip(e.title or "", 36),
             _clip(e.label or "", 16),
             (e.case_sha256 or "")[:8],
             e.geometry or "",
@@ -578,7 +578,9 @@ def _clip(text: str, width: int) -> str:
 
 def list_footer(entries: Sequence[ArchiveEntry], folder: str | os.PathLike) -> str:
     """The last line of ``layers list``: how many runs and other files."""
-    runs = sum(e.is_run for e in entries)
-    others = len(entries) - runs
-    return f"{runs} run{'s' * (runs != 1)} in {folder}" + (f"; {others} other file{'s' * (others != 1)}" if others else "")
+    sweeps = sum(e.is_run and e.product == "sweep" for e in entries)
+    runs = sum(e.is_run for e in entries) - sweeps
+    others = len(entries) - runs - sweeps
+    return (f"{runs} run{'s' * (runs != 1)}" + (f" and {sweeps} sweep{'s' * (sweeps != 1)}" if sweeps else "") + f" in {folder}"
+            + (f"; {others} other file{'s' * (others != 1)}" if others else ""))
 

@@ -182,7 +182,7 @@ def cmd_sweep(args: argparse.Namespace) -> int:
     from layers.case import load_case
     from layers.report import run_cautions, sweep_summary
     from layers.results import archive, archive_dir, refuse_existing, usable_folder, write_output
-    from layers.sweep import sweep
+    from layers.sweeps import sweep
 
     refuse_existing(args.out)
     usable_folder(archive_dir(args.archive), make=False)

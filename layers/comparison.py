@@ -64,6 +64,9 @@ def load_run(path: str | os.PathLike) -> xr.Dataset:
             "and xarray selects one (ds.sel(NAME=VALUE)); `layers compare` takes single runs",
         )
     if "temperature" not in ds or "x" not in ds.dims:
+        if "surface_temperature_outside" in ds and "x" in ds.dims:
+            raise CaseError(str(path), "(file)", "this run kept no cell temperatures (keep_temperature = false under [time]), "
+                                                 "which a comparison needs; run it again with keep_temperature = true")
         raise CaseError(str(path), "(file)", "not a layers run: no 'temperature' profile")
     for name in ("temperature", "surface_temperature_outside", "heat_flow_inside"):
         if name in ds and not np.isfinite(ds[name].values).any():

@@ -279,6 +279,9 @@ class LayerBand:
 def _need(ds: xr.Dataset, names: tuple[str, ...], source: str) -> None:
     for name in names:
         if name not in ds.variables:
+            if name == "temperature" and "surface_temperature_outside" in ds.variables:
+                raise CaseError(source, name, "this run kept no cell temperatures (keep_temperature = false under [time]); "
+                                              "--kind surfaces draws what it kept")
             raise CaseError(source, name, "missing from the Dataset; is this a run written by 'layers run'?")
 
 

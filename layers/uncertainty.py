@@ -8,7 +8,7 @@ seeded, so a run is reproducible) mapped through each distribution's
 inverse CDF, which covers the input space far more evenly than pseudo-random
 draws of the same number.  Each sample is the case file with the sampled
 values written in, read again by the one case reader, and run through the
-same machinery as a sweep (:func:`layers.sweep.run_points`: linear samples
+same machinery as a sweep (:func:`layers.sweeps.run_points`: linear samples
 marched together exactly).
 
 - ``layers run`` adds the 0.05 / 0.5 / 0.95 quantiles of the surface
@@ -19,8 +19,8 @@ marched together exactly).
 
 A quantile or a probability from n samples carries a sampling error; for a
 probability p it is at most about sqrt(p (1 - p) / n) (the binomial standard
-error of independent draws; quasi-random points do better).  It is stored
-with the result.
+error of independent draws; quasi-random points do better); ``size``
+stores that bound with its result (``probability_sampling_error``).
 """
 
 from __future__ import annotations
@@ -34,7 +34,7 @@ import xarray as xr
 
 from layers.case import Case
 from layers.errors import CaseError
-from layers.sweep import Point, run_points
+from layers.sweeps import Point, run_points
 
 #: The quantiles ``layers run`` reports.
 QUANTILES = (0.05, 0.5, 0.95)
@@ -83,7 +83,8 @@ def _attrs(case: Case) -> dict[str, Any]:
     for v in spec.vary:
         unit = f" {v.units}" if v.units else ""
         if v.distribution == "normal":
-            described.append(f"{v.key}: normal, mean {v.mean:.6g}{unit}, sd {v.sd:.6g}{unit}")
+            spread = " K" if v.units in ("degC", "°C") else (" delta_degF" if v.units in ("degF", "°F") else unit)
+            described.append(f"{v.key}: normal, mean {v.mean:.6g}{unit}, sd {v.sd:.6g}{spread}")
         else:
             described.append(f"{v.key}: uniform {v.low:.6g} to {v.high:.6g}{unit}")
     return {
@@ -125,7 +126,7 @@ def size_probabilities(case: Case, passes_of: Callable[[Case], dict[str, np.ndar
     candidate) and all of them; and the attributes to store (the thinnest
     candidate that passes with the asked confidence, the sampling error)."""
     from layers.case import read_toml, reusing_series
-    from layers.sweep import variant
+    from layers.sweeps import variant
     from layers.variation import with_values
 
     spec = case.uncertainty

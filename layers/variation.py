@@ -5,7 +5,7 @@ Both name case keys by a dotted path into the case file (``layers.2.thickness``,
 1-based).  A variant is the case file with those keys replaced, read again by
 the one case reader, so a swept or sampled value is checked exactly as if the
 user had written it (:func:`with_values`).  This module only reads and checks
-the tables; :mod:`layers.sweep` and :mod:`layers.uncertainty` run the variants.
+the tables; :mod:`layers.sweeps` and :mod:`layers.uncertainty` run the variants.
 """
 
 from __future__ import annotations

@@ -29,7 +29,7 @@ from layers.errors import CaseError
 
 ROOT = Path(__file__).resolve().parents[1]
 CASES = ROOT / "cases"
-API = ("load_case", "parse_case", "simulate", "size", "periodic", "open_run")
+API = ("load_case", "parse_case", "simulate", "size", "periodic", "sweep", "open_run")
 
 
 def _run(code: str, cwd: Path, env: dict[str, str] | None = None) -> subprocess.CompletedProcess:

@@ -20,7 +20,7 @@ from layers import CAUTION, plots
 from layers.case import parse_case
 from layers.cli import main
 from layers.results import write_new
-from layers.sweep import sweep
+from layers.sweeps import sweep
 from tests.test_exact import WALL, _weather
 
 PNG_MAGIC = b"\x89PNG\r\n\x1a\n"

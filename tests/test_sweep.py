@@ -1,4 +1,4 @@
-"""Sweeps (layers/sweep.py, layers/variation.py): one run per grid point, as one Dataset.
+"""Sweeps (layers/sweeps.py, layers/variation.py): one run per grid point, as one Dataset.
 
 The reference for every point is the same case run on its own
 (:func:`layers.simulation.simulate` on the case file with the value written
@@ -21,7 +21,7 @@ from layers.case import parse_case
 from layers.cli import main
 from layers.errors import CaseError
 from layers.simulation import simulate
-from layers.sweep import plan_jobs, points, sweep, variant
+from layers.sweeps import plan_jobs, points, sweep, variant
 from layers.variation import with_values
 from tests.test_exact import WALL, _weather
 

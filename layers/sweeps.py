@@ -266,7 +266,8 @@ def run_points(
     jobs = plan_jobs(case, cases, sources)
     settings = [[grid[i].settings for i in job.points] for job in jobs]
     records: list[dict | None] = [None] * len(grid)
-    base = str(case.base_dir) if case.base_dir is not None else None
+    # absolute: a worker on another machine resolves the series file from it, not from its own folder
+    base = str(Path(case.base_dir).resolve()) if case.base_dir is not None else str(Path(".").resolve())
     done = 0
     if client is None:
         results = (run_job(case.text, case.path, base, job, s, case.record_paths, [cases[i] for i in job.points]) for job, s in zip(jobs, settings))
@@ -374,7 +375,8 @@ def assemble(case: Case, grid: list[Point], cases: list[Case], records: list[dic
         ds = ds.assign_coords({d.name: (d.name, d.coordinate, attrs)})
     attrs = {k: v for k, v in template.attrs.items() if not k.startswith(SUMMARY_PREFIX)}
     for k in ("energy_balance_error", "heat_in_inside_total", "heat_out_outside_total", "steady_resistance_total", "scheme",
-              "smoothed_steps", "cells", "service_temperature_exceeded", "time_to_freezing_h", "freeze_time_h", "heat_from_contents_total"):
+              "smoothed_steps", "cells", "service_temperature_exceeded", "time_to_freezing_h", "freeze_time_h", "heat_from_contents_total",
+              "nonlinear_unconverged_steps", "nonlinear_max_iterations", "scheme_requested"):
         attrs.pop(k, None)
     attrs.update({
         "product": "sweep",
