@@ -163,7 +163,11 @@ def _client(args: argparse.Namespace):
         raise CaseError("(command line)", "--workers", "give --workers N or --scheduler ADDRESS, not both")
     if args.workers is None and not args.scheduler:
         return None, None
-    from dask.distributed import Client, LocalCluster
+    try:
+        from dask.distributed import Client, LocalCluster
+    except ImportError:
+        option = "--workers" if args.workers is not None else "--scheduler"
+        raise CaseError("(command line)", option, "needs dask.distributed, which is not installed: pip install \"layers[cluster]\"") from None
 
     if args.workers is not None:
         if not 1 <= args.workers <= MAX_WORKERS:

@@ -32,6 +32,10 @@ HEAT_FLOW_UNITS = {"planar": "W m-2", "cylinder": "W m-1", "sphere": "W"}
 ENERGY_UNITS = {"planar": "J m-2", "cylinder": "J m-1", "sphere": "J"}
 
 
+#: The attributes of the cell field ``temperature`` (time, x).
+TEMPERATURE_ATTRS = {"units": "degC", "long_name": "temperature at cell centres", "cell_methods": "time: point"}
+
+
 def _point(values: np.ndarray, units: str, long_name: str, **attrs: Any) -> tuple:
     return ("time", np.asarray(values, dtype=float), {"units": units, "long_name": long_name, "cell_methods": "time: point", **attrs})
 
@@ -93,11 +97,7 @@ def to_dataset(
         ),
     }
     if temperature is not None:
-        data_vars["temperature"] = (
-            ("time", "x"),
-            temperature,
-            {"units": "degC", "long_name": "temperature at cell centres", "cell_methods": "time: point"},
-        )
+        data_vars["temperature"] = (("time", "x"), temperature, dict(TEMPERATURE_ATTRS))
     names = {
         # In the bore of a pipe or vessel the "air" is the process fluid (steam,
         # oil, water): no CF standard name applies there.
@@ -182,17 +182,25 @@ def to_dataset(
     return ds
 
 
+#: Chunk cache of a streamed field [bytes]: it is read and written in order.
+CHUNK_CACHE = 4 * 2**20
+#: Where a Dataset's encoding names the FieldSink that holds its cell fields.
+STREAMED_FIELDS = "layers_streamed_fields"
+
+
 class FieldSink:
     """Kept cell fields written to a scratch netCDF file as the march makes them,
-    so that a run's memory does not grow with its length; read back lazily
-    (:meth:`lazy`, a dask array) when the result is written, then removed.
+    so that a run's memory does not grow with its length.  The Dataset of such
+    a run has no ``temperature`` in memory; its encoding names the sink
+    (:meth:`attach`), and :func:`write_new` copies the fields from the sink
+    into the file it writes, block by block (:meth:`append_to`).
 
     It also keeps what the checks after a run need from the fields: the
     coldest and hottest cell (``low``, ``high`` [degC]) and, for each kept
     state, the hottest cell of each layer (``layer_hottest``, (m, layers)).
     """
 
-    #: Rows per chunk of the scratch file and of the lazy array.
+    #: Rows per chunk of the scratch file (and of the written file's field).
     BLOCK = 256
 
     def __init__(self, mesh: Mesh, folder: str | os.PathLike | None = None) -> None:
@@ -206,11 +214,11 @@ class FieldSink:
         self.rows = 0
         self.low, self.high = math.inf, -math.inf
         self._hottest: list[np.ndarray] = []
-        self._opened: xr.Dataset | None = None
         self._nc = netCDF4.Dataset(self.path, "w", format="NETCDF4")
         self._nc.createDimension("time", None)
         self._nc.createDimension("x", mesh.n)
         self._var = self._nc.createVariable("temperature", "f8", ("time", "x"), chunksizes=(self.BLOCK, mesh.n))
+        self._var.set_var_chunk_cache(size=CHUNK_CACHE)  # written in order: a small cache (the library's default grows to 64 MiB)
 
     def write(self, rows: np.ndarray) -> None:
         rows = np.atleast_2d(np.asarray(rows, dtype=float))
@@ -230,17 +238,34 @@ class FieldSink:
     def layer_hottest(self) -> np.ndarray:
         return np.concatenate(self._hottest) if self._hottest else np.empty((0, self.layers))
 
-    def lazy(self):
-        """The fields written, as a dask array read from the scratch file in blocks."""
-        self._nc.close()
-        self._opened = xr.open_dataset(self.path, chunks={"time": self.BLOCK}, cache=False)
-        return self._opened["temperature"].data
+    def attach(self, ds: xr.Dataset) -> xr.Dataset:
+        """Name this sink as the holder of ``ds``'s cell fields (the march is done)."""
+        if self._nc.isopen():
+            self._nc.close()
+        if self.rows != ds.sizes.get("time", -1):
+            raise ValueError(f"the sink holds {self.rows} states, the Dataset {ds.sizes.get('time')}")
+        ds.encoding[STREAMED_FIELDS] = self
+        return ds
+
+    def append_to(self, path: str | os.PathLike) -> None:
+        """Add the fields as the variable ``temperature`` (time, x) of the netCDF
+        file at ``path`` (written from the Dataset), copying block by block."""
+        import netCDF4
+
+        with netCDF4.Dataset(self.path, "r") as source, netCDF4.Dataset(path, "a") as target:
+            field = source.variables["temperature"]
+            field.set_var_chunk_cache(size=CHUNK_CACHE)
+            rows, n = field.shape
+            var = target.createVariable("temperature", "f8", ("time", "x"), chunksizes=(min(self.BLOCK, max(rows, 1)), n))
+            var.set_var_chunk_cache(size=CHUNK_CACHE)
+            var.setncatts(TEMPERATURE_ATTRS)
+            for start in range(0, rows, 8 * self.BLOCK):
+                stop = min(rows, start + 8 * self.BLOCK)
+                var[start:stop, :] = field[start:stop, :]
 
     def close(self) -> None:
         """Close and remove the scratch file (after the result is written)."""
-        if self._opened is not None:
-            self._opened.close()
-        elif self._nc.isopen():
+        if self._nc.isopen():
             self._nc.close()
         self.path.unlink(missing_ok=True)
 
@@ -274,7 +299,14 @@ def write_new(ds: xr.Dataset, path: str | os.PathLike) -> Path:
     FileExistsError
         If ``path`` exists.
     """
-    return write_once(path, lambda tmp: ds.to_netcdf(tmp, engine="netcdf4"))
+    sink = ds.encoding.get(STREAMED_FIELDS)
+
+    def write(tmp: str) -> None:
+        ds.to_netcdf(tmp, engine="netcdf4")
+        if sink is not None:  # the cell fields, from where the march streamed them
+            sink.append_to(tmp)
+
+    return write_once(path, write)
 
 
 def exists_error(path: str | os.PathLike) -> CaseError:

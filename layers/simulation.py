@@ -371,9 +371,10 @@ def simulate(case: Case, progress: Callable[[int, int], None] | None = None, fie
         ``progress(steps_done, steps_total)``, called now and then.
     field_sink : FieldSink, optional
         Takes the cell fields as the march makes them
-        (:class:`layers.results.FieldSink`); the Dataset's ``temperature``
-        is then read back from it lazily, so memory stays flat however long
-        the run.  Close the sink after the Dataset is written.
+        (:class:`layers.results.FieldSink`), so memory stays flat however
+        long the run: the Dataset then has no ``temperature`` in memory, and
+        :func:`layers.results.write_new` copies it from the sink into the
+        file.  Close the sink after the Dataset is written.
 
     Returns
     -------
@@ -383,8 +384,7 @@ def simulate(case: Case, progress: Callable[[int, int], None] | None = None, fie
     mesh = case.mesh()
     res, cycles, system = run_march(case, mesh, progress, field_sink=field_sink)
     record = run_record(case, mesh, system, res, cycles, field_sink=field_sink)
-    if field_sink is not None:
-        record.fields["temperature"] = field_sink.lazy()
-    if case.time.keep_temperature is False:
+    if case.time.keep_temperature is False or field_sink is not None:
         record.fields["temperature"] = None
-    return record_dataset(case, mesh, record)
+    ds = record_dataset(case, mesh, record)
+    return field_sink.attach(ds) if field_sink is not None and case.time.keep_temperature is not False else ds
