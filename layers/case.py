@@ -9,6 +9,7 @@ forcing functions of time.
 from __future__ import annotations
 
 import contextlib
+import contextvars
 import datetime as dt
 import hashlib
 import math
@@ -541,28 +542,28 @@ def _column_kind(unit: str) -> str:
 
 #: While :func:`reusing_series` is active: series tables already read, by what
 #: they say and where they were read from (the variants of a sweep share one).
-_SERIES_READ: dict | None = None
+#: A context variable, so that threads (a dask worker's) each have their own.
+_SERIES_READ: contextvars.ContextVar[dict | None] = contextvars.ContextVar("layers_series_read", default=None)
 
 
 @contextlib.contextmanager
 def reusing_series():
     """Read each distinct ``[series]`` table once while the block runs (a sweep
     parses its case once per point; the series file does not change meanwhile)."""
-    global _SERIES_READ
-    outer = _SERIES_READ
-    _SERIES_READ = {} if outer is None else outer
+    token = _SERIES_READ.set(_SERIES_READ.get() if _SERIES_READ.get() is not None else {})
     try:
         yield
     finally:
-        _SERIES_READ = outer
+        _SERIES_READ.reset(token)
 
 
 def _parse_series(value: Any, file: str, base_dir: Path, series_dir: Path | None = None):
-    if _SERIES_READ is not None and value is not None:
+    read = _SERIES_READ.get()
+    if read is not None and value is not None:
         key = (repr(value), file, str(base_dir), str(series_dir))
-        if key not in _SERIES_READ:
-            _SERIES_READ[key] = _read_series_table(value, file, base_dir, series_dir)
-        return _SERIES_READ[key]
+        if key not in read:
+            read[key] = _read_series_table(value, file, base_dir, series_dir)
+        return read[key]
     return _read_series_table(value, file, base_dir, series_dir)
 
 

@@ -231,9 +231,9 @@ class ModalBatch:
             # The rows read at each step's end: surface cells, stored heat, layer
             # faces (linear in the cells and the surface fluxes: read from the
             # mesh's own rule applied to unit states, so it is not written twice).
-            faces_t = mesh.interface_temperatures(np.eye(n), modal.k, modal.g, 0.0, 0.0).T
+            faces_modes = mesh.interface_temperatures(modal.to_cells.T, modal.k, modal.g, 0.0, 0.0).T     # (faces, modes)
             faces_q = np.stack([mesh.interface_temperatures(np.zeros(n), modal.k, modal.g, q_in, q_out) for q_in, q_out in ((1.0, 0.0), (0.0, 1.0))], axis=1)
-            rows = np.vstack([np.eye(n)[[0, -1]], modal.system.capacity[None, :], faces_t]) @ modal.to_cells  # (R, modes)
+            rows = np.vstack([modal.to_cells[[0, -1]], modal.system.capacity[None, :] @ modal.to_cells, faces_modes])  # (R, modes)
             # state at a step's end: slow modes carried, fast ones their forced term;
             # coefficients of the drives (columns: [end, side] = p_side w_end per mode)
             by_end = (w[:, None, :] * p[None, :, :]).reshape(4, -1).T           # (modes, ends x sides)
@@ -352,12 +352,15 @@ class ModalBatch:
         progress: Callable[[int], None] | None = None,
         record: bool = True,
         field_sink=None,
+        check: bool = True,
     ) -> BatchResult:
         """March every member from ``initial`` (B, n) [degC] for ``n_steps`` steps,
         keeping every ``output_every``-th state and the last (``record=False``:
         only the initial state and the end).  ``field_sink`` (a batch of one)
         takes the kept cell fields as they are made instead of the result
-        (:class:`layers.results.FieldSink`).
+        (:class:`layers.results.FieldSink`).  ``check=False`` skips the
+        physical-range check (for a computation that is not a state of the
+        construction, such as the forced response from rest).
 
         Raises
         ------
@@ -435,7 +438,8 @@ class ModalBatch:
                 by_member = zs.transpose(1, 0, 2)                                  # (B, mm, slow)
                 every = by_member @ self.every_rows                                # (B, mm, 4)
                 ends = every[:, :, :2] + both @ self.end_fast_both[:, :, :2]      # surface cells at each step's end
-                self._check_surfaces(ends, by_member, beta, t0 + h * k)
+                if check:
+                    self._check_surfaces(ends, by_member, beta, t0 + h * k)
                 # heat through each surface over each step: int beta - G int T_cell
                 before = np.concatenate([beta_prev[:, None, :], beta[:, :-2]], axis=1)
                 integral = before @ self.lags_t[0] + beta[:, :-1] @ self.lags_t[1] + beta[:, 1:] @ self.lags_t[2]
@@ -518,7 +522,9 @@ class ModalBatch:
         steps [degC] (B, largest n; NaN beyond a member's cells): the forced
         response of one period from rest, r, gives z_0 = r / (1 - e^(-lambda P))
         mode by mode."""
-        res = self.run([np.zeros(c) for c in self.cells], steps, keep_fields=False, record=False)
+        # the forced response from rest is a step of the computation, not a state
+        # of the construction: it may pass through any temperature (a flux side)
+        res = self.run([np.zeros(c) for c in self.cells], steps, keep_fields=False, record=False, check=False)
         starts = []
         for i, modal in enumerate(self.modals):
             denominator = -np.expm1(-modal.lam * self.step * steps)

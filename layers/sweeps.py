@@ -100,10 +100,11 @@ def _boundary_signature(data: dict) -> str:
     return json.dumps({k: data.get(k) for k in BOUNDARY_KEYS}, sort_keys=True, default=str)
 
 
-def plan_jobs(case: Case, cases: list[Case], sources: list[dict]) -> list[Job]:
+def plan_jobs(case: Case, cases: list[Case], sources: list[dict], labels: list[str] | None = None) -> list[Job]:
     """Cut the points into jobs: linear points with the same time plan in modal
     batches of up to :data:`MAX_BATCH`, the others one by one
-    (``sources``: each point's case data, to tell which share their boundaries)."""
+    (``sources``: each point's case data, to tell which share their boundaries;
+    ``labels``: how an error names each point)."""
     from layers.simulation import scheme_for, system_for
 
     groups: dict[tuple, list[int]] = {}
@@ -112,7 +113,11 @@ def plan_jobs(case: Case, cases: list[Case], sources: list[dict]) -> list[Job]:
         mesh = v.mesh()
         system = system_for(v, mesh)
         v.__dict__["_system"] = system  # the serial run reuses it
-        if scheme_for(v, system) == "exact":
+        try:
+            scheme = scheme_for(v, system)
+        except CaseError as exc:
+            raise _at_point(exc, labels[i] if labels else f"point {i + 1}") from None
+        if scheme == "exact":
             plan = v.time
             key = (plan.step, plan.n_steps, plan.output_stride, str(plan.start), str(plan.initial), plan.period)
             groups.setdefault(key, []).append(i)
@@ -130,34 +135,67 @@ def plan_jobs(case: Case, cases: list[Case], sources: list[dict]) -> list[Job]:
     return sorted(jobs, key=lambda job: job.points[0])
 
 
-def run_job(text: str, file: str, base_dir: str | None, job: Job, settings: list[dict], record_paths: bool = False,
-            cases: list[Case] | None = None) -> list[dict]:
-    """Run one job and return each point's run record.  A cluster worker calls
-    this with the case text and the points' settings (all picklable) and reads
-    the points' cases itself; the serial run passes the ``cases`` it has read."""
-    from layers.simulation import run_march, run_record
+def _at_point(exc: CaseError, label: str) -> CaseError:
+    """A point's error, saying which point."""
+    return CaseError(exc.file, exc.key, f"at the point {label}: {exc.reason}")
 
+
+def run_job(text: str, file: str, base_dir: str | None, job: Job, settings: list[dict], record_paths: bool = False,
+            cases: list[Case] | None = None, labels: list[str] | None = None) -> list[dict]:
+    """Run one job and return each point's run record (with the texts of the
+    warnings its run gave, ``record["warnings"]``).  A cluster worker calls
+    this with the case text and the points' settings (all picklable) and reads
+    the points' cases itself; the serial run passes the ``cases`` it has read.
+    An error names its point (``labels``)."""
+    from layers.simulation import run_march, run_record, unphysical_error
+
+    labels = labels or [f"point {i + 1}" for i in range(len(settings))]
     if cases is None:
         data = read_toml(text, file)
         with reusing_series():
             cases = [parse_case(with_values(data, s), file=file, text=text, base_dir=Path(base_dir) if base_dir else None) for s in settings]
         for v in cases:
             v.record_paths = record_paths
-    if job.kind == "step":
-        v = cases[0]
-        mesh = v.mesh()
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            res, cycles, system = run_march(v, mesh)
-            return [_slim(run_record(v, mesh, system, res, cycles, warn=False), v)]
-    return _run_exact(cases, [list(g) for g in job.shared])
+    try:
+        if job.kind == "step":
+            v = cases[0]
+            mesh = v.mesh()
+            with warnings.catch_warnings(record=True) as caught:
+                warnings.simplefilter("always")
+                res, cycles, system = run_march(v, mesh)
+                record = _slim(run_record(v, mesh, system, res, cycles), v)
+            record["warnings"] = _texts(caught)
+            return [record]
+        return _run_exact(cases, [list(g) for g in job.shared])
+    except _MemberError as exc:
+        raise _at_point(unphysical_error(cases[exc.member], exc.system, exc.cause), labels[exc.member]) from None
+    except CaseError as exc:
+        raise _at_point(exc, labels[0] if len(labels) == 1 else "one of " + ", ".join(labels[:3]) + ("..." if len(labels) > 3 else "")) from None
+
+
+class _MemberError(Exception):
+    """A member of a modal batch left the physical range."""
+
+    def __init__(self, member: int, system, cause: UnphysicalState) -> None:
+        super().__init__(str(cause))
+        self.member, self.system, self.cause = member, system, cause
+
+
+def _texts(caught) -> list[str]:
+    """The distinct texts of caught warnings, in order."""
+    out: list[str] = []
+    for w in caught:
+        text = str(w.message)
+        if text not in out and not issubclass(w.category, DeprecationWarning):
+            out.append(text)
+    return out
 
 
 def _run_exact(cases: list[Case], groups: list[list[int]]) -> list[dict]:
     """March linear points together (:class:`layers.exact.ModalBatch`); ``groups``
     lists the points that share their boundaries."""
     from layers.exact import ModalBatch, ModalSystem
-    from layers.simulation import initial_state, run_march, run_record, system_for, unphysical_error
+    from layers.simulation import initial_state, run_record, system_for
 
     meshes = [v.mesh() for v in cases]
     systems = [v.__dict__.pop("_system", None) or system_for(v, m) for v, m in zip(cases, meshes)]
@@ -173,7 +211,7 @@ def _run_exact(cases: list[Case], groups: list[list[int]]) -> list[dict]:
         res = batch.run(initial, plan.n_steps, output_every=plan.output_stride, keep_fields=plan.keep_temperature is True)
     except UnphysicalState as exc:
         member = getattr(exc, "member", 0)
-        raise unphysical_error(cases[member], systems[member], exc) from None
+        raise _MemberError(member, systems[member], exc) from None
     records = []
     for i, (v, mesh, system) in enumerate(zip(cases, meshes, systems)):
         kept = res.kept_steps.size
@@ -193,7 +231,11 @@ def _run_exact(cases: list[Case], groups: list[list[int]]) -> list[dict]:
             smoothed_steps=0, factorisations=0, drive_range=(float(res.drive_range[i, 0]), float(res.drive_range[i, 1])),
             scheme="exact",
         )
-        records.append(_slim(run_record(v, mesh, system, one, cycles, warn=False), v, mesh))
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            record = _slim(run_record(v, mesh, system, one, cycles), v, mesh)
+        record["warnings"] = _texts(caught)
+        records.append(record)
     return records
 
 
@@ -210,7 +252,7 @@ def _check_size(case: Case, n_points: int, cases: list[Case]) -> None:
     """Refuse a sweep whose kept results would not fit in memory, before any work."""
     plan = case.time
     records = plan.n_steps // max(plan.output_stride, 1) + 1
-    per_point = 12 + len(case.layers) + 1 + (max(v.mesh().n for v in cases[:1]) if plan.keep_temperature else 0)
+    per_point = 12 + len(case.layers) + 1 + (max(v.mesh().n for v in cases) if plan.keep_temperature else 0)
     size = n_points * records * per_point * 8
     if size > MAX_RECORD_BYTES:
         raise CaseError(
@@ -263,17 +305,20 @@ def run_points(
     _check_size(case, len(grid), cases)
     for v in cases:
         _check_plan(case, v)
-    jobs = plan_jobs(case, cases, sources)
+    labels = [p.describe() for p in grid]
+    jobs = plan_jobs(case, cases, sources, labels)
     settings = [[grid[i].settings for i in job.points] for job in jobs]
     records: list[dict | None] = [None] * len(grid)
     # absolute: a worker on another machine resolves the series file from it, not from its own folder
     base = str(Path(case.base_dir).resolve()) if case.base_dir is not None else str(Path(".").resolve())
     done = 0
     if client is None:
-        results = (run_job(case.text, case.path, base, job, s, case.record_paths, [cases[i] for i in job.points]) for job, s in zip(jobs, settings))
+        results = (run_job(case.text, case.path, base, job, s, case.record_paths, [cases[i] for i in job.points],
+                           [labels[i] for i in job.points]) for job, s in zip(jobs, settings))
     else:
         futures = client.map(run_job, [case.text] * len(jobs), [case.path] * len(jobs), [base] * len(jobs), jobs, settings,
-                             [case.record_paths] * len(jobs), pure=False)
+                             [case.record_paths] * len(jobs), [None] * len(jobs), [[labels[i] for i in job.points] for job in jobs],
+                             pure=False)
         results = (future.result() for future in futures)
     for job, result in zip(jobs, results):
         for i, record in zip(job.points, result):
@@ -281,6 +326,13 @@ def run_points(
         done += len(job.points)
         if progress is not None:
             progress(done, len(grid))
+    # each warning once, with how many points gave it and the first of them
+    seen: dict[str, list[int]] = {}
+    for i, record in enumerate(records):
+        for text in record.get("warnings", ()):
+            seen.setdefault(text, []).append(i)
+    for text, where_ in seen.items():
+        warnings.warn(f"{text} [at {len(where_)} of {len(grid)} {where} points, the first {labels[where_[0]]}]", UserWarning, stacklevel=3)
     return cases, records
 
 
@@ -299,7 +351,18 @@ def assemble(case: Case, grid: list[Point], cases: list[Case], records: list[dic
     shape = tuple(len(d.values) for d in dims)
     names = tuple(d.name for d in dims)
     first = records[0]
-    template = record_dataset(cases[0], cases[0].mesh(), RunRecord(first["fields"], first["extra"], first["attrs"]))
+    # the variables of a run come from to_dataset (one place for their names and
+    # metadata); points may differ in which series they have (e.g. a sol-air
+    # temperature only where there is sun), so one template per kind of point
+    templates: list[xr.Dataset] = []
+    kinds: set[tuple] = set()
+    for v, r in zip(cases, records):
+        kind = tuple(sorted(r["extra"]))
+        if kind not in kinds:
+            kinds.add(kind)
+            templates.append(record_dataset(v, v.mesh(), RunRecord(r["fields"], r["extra"], r["attrs"])))
+    template = templates[0]
+    same_mesh = all(np.array_equal(r["x"], first["x"]) for r in records)
 
     def stacked(get: Callable[[dict], np.ndarray]) -> np.ndarray:
         values = [np.asarray(get(r), dtype=float) for r in records]
@@ -308,28 +371,31 @@ def assemble(case: Case, grid: list[Point], cases: list[Case], records: list[dic
             values = [np.concatenate([v, np.full(v.shape[:-1] + (width - v.shape[-1],), math.nan)], axis=-1) for v in values]
         return np.stack(values).reshape(shape + values[0].shape)
 
-    field_of = {
-        "interface_temperature": "interface_temperature",
-        "surface_temperature_inside": "surface_temperature_inside",
-        "surface_temperature_outside": "surface_temperature_outside",
-        "heat_flow_inside": "heat_flow_inside",
-        "heat_flow_outside": "heat_flow_outside",
-        "stored_energy": "stored_energy",
-        "temperature": "temperature",
-    }
+    field_of = ("interface_temperature", "surface_temperature_inside", "surface_temperature_outside", "heat_flow_inside",
+                "heat_flow_outside", "stored_energy", "temperature")
+    times = template.sizes["time"]
+
+    def extra(r: dict, key: str) -> np.ndarray:
+        if key not in r["extra"]:
+            return np.full(times, math.nan)  # a point without this series
+        value = r["extra"][key]
+        return value[2] if isinstance(value, tuple) else value
+
     ds = xr.Dataset()
-    for name, var in template.data_vars.items():
+    order = list(dict.fromkeys(name for t in templates for name in t.data_vars))
+    for name in order:
+        var = next(t[name] for t in templates if name in t.data_vars)
         if name == "x_bounds":
             continue
         if name in field_of:
-            get = (lambda r, key=field_of[name]: r["fields"][key])
-        elif name in first["extra"]:
-            get = (lambda r, key=name: r["extra"][key][2] if isinstance(r["extra"][key], tuple) else r["extra"][key])
+            get = (lambda r, key=name: r["fields"][key])
+        elif any(name in r["extra"] for r in records):
+            get = (lambda r, key=name: extra(r, key))
         else:
             continue
         values = stacked(get)
         flat = values.reshape((-1,) + values.shape[len(shape):])
-        vdims = var.dims if name != "temperature" else ("time", "cell")
+        vdims = ("time", "cell") if name == "temperature" and not same_mesh else var.dims
         if name != "temperature" and np.array_equal(flat, np.broadcast_to(flat[:1], flat.shape), equal_nan=True):
             ds[name] = (var.dims, flat[0], dict(var.attrs))          # the same at every point: kept once
         else:
@@ -364,7 +430,10 @@ def assemble(case: Case, grid: list[Point], cases: list[Case], records: list[dic
         ds = ds.assign_coords(layer_interface=template["layer_interface"])
     else:
         ds["layer_interface"] = (names + ("interface",), faces, dict(template["layer_interface"].attrs))
-    if "temperature" in ds:
+    if "temperature" in ds and same_mesh:  # one mesh: the run's own cell coordinates
+        ds = ds.assign_coords({name: template[name] for name in ("x", "layer", "material") + (("radius",) if "radius" in template.coords else ())})
+        ds["x_bounds"] = template["x_bounds"]
+    elif "temperature" in ds:
         ds["x"] = (names + ("cell",), stacked(lambda r: r["x"]), dict(template["x"].attrs, long_name="distance of each cell centre from the inside surface (NaN: no such cell at this point)"))
     for d in dims:
         attrs = {"long_name": f"swept {d.key}"}
@@ -386,6 +455,9 @@ def assemble(case: Case, grid: list[Point], cases: list[Case], records: list[dic
         "scheme": schemes[0] if len(schemes) == 1 else "per point (variable scheme)",
         "caution": CAUTION,
     })
+    said = list(dict.fromkeys(text for r in records for text in r.get("warnings", ())))
+    if said:
+        attrs["point_warnings"] = " | ".join(said[:10]) + (f" | and {len(said) - 10} more" if len(said) > 10 else "")
     if over:
         attrs["service_temperature_exceeded"] = "; ".join(over[:20]) + (f"; and {len(over) - 20} more points" if len(over) > 20 else "")
     ds.attrs = attrs

@@ -226,8 +226,8 @@ def parse_quantity(value: Any, kind: str, *, file: str = "<case>", key: str = "?
         _fail(file, key, f"expected a quantity in {shown}, got {value!r}")
     if isinstance(value, (int, float)):
         number = float(value)
-    elif isinstance(value, str) and (value, kind) in _READ:
-        number = _READ[(value, kind)]
+    elif isinstance(value, str) and (known := _READ.get((value, kind))) is not None:
+        number = known
     elif isinstance(value, str):
         magnitude, unit_text = checked_text(value, file=file, key=key)
         if not unit_text:
@@ -254,7 +254,8 @@ def parse_quantity(value: Any, kind: str, *, file: str = "<case>", key: str = "?
 
 
 #: Quantities already read, by their text and kind (a sweep reads the same texts
-#: once per point; pint's parse is the costly part of reading a case).
+#: once per point; pint's parse is the costly part of reading a case).  Read with
+#: ``get`` only: another thread may clear it between a test and a lookup.
 _READ: dict[tuple[str, str], float] = {}
 
 
@@ -280,8 +281,8 @@ def parse_temperature(value: Any, *, file: str = "<case>", key: str = "?") -> fl
         _fail(file, key, f"expected a temperature, got {value!r}")
     if isinstance(value, (int, float)):
         number = float(value)
-    elif isinstance(value, str) and (value, "temperature") in _READ:
-        number = _READ[(value, "temperature")]
+    elif isinstance(value, str) and (known := _READ.get((value, "temperature"))) is not None:
+        number = known
     elif isinstance(value, str):
         magnitude, unit_text = checked_text(value, file=file, key=key)
         try:

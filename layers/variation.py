@@ -26,7 +26,12 @@ MAX_POINTS = 100_000
 #: The most samples an uncertainty table may draw.
 MAX_SAMPLES = 100_000
 #: Dimension names a sweep may not take (the result's own dimensions).
-RESERVED = ("time", "x", "cell", "nv", "interface", "layer", "material", "thickness", "quantile", "sample", "point")
+RESERVED = ("time", "x", "cell", "nv", "interface", "layer", "material", "thickness", "quantile", "sample", "point", "radius",
+            "scheme", "x_bounds", "layer_interface")
+#: Beginnings of the names of result variables: a sweep dimension may not take them.
+RESERVED_STEMS = ("surface_temperature", "heat_", "interface_", "stored_", "temperature", "air_temperature", "sol_air",
+                  "film_coefficient", "dew_point", "contents_", "ice_", "energy_", "steady_", "time_", "freeze_",
+                  "nonlinear_", "probability_", "passes_", "margin_", "summary_")
 
 _NAME = re.compile(r"[A-Za-z][A-Za-z0-9_]{0,63}\Z")
 
@@ -98,7 +103,7 @@ def _lookup(data: dict, key: str, file: str, where: str) -> tuple[Any, str | int
     for depth, part in enumerate(parts):
         last = depth == len(parts) - 1
         if isinstance(node, list):
-            if not part.isdigit() or not 1 <= int(part) <= len(node):
+            if not (part.isascii() and part.isdigit()) or not 1 <= int(part) <= len(node):
                 raise CaseError(file, where, f"{key!r}: {'.'.join(parts[:depth]) or 'the case'} is a list of {len(node)}; "
                                              f"give an item number 1..{len(node)}, not {part!r}")
             index: str | int = int(part) - 1
@@ -123,6 +128,8 @@ def check_key(data: dict, key: str, file: str, where: str) -> Any:
         raise CaseError(file, where, f"{key!r} cannot vary (it is not part of the physics)")
     if head == "series" and _path(key)[-1] in ("file", "path"):
         raise CaseError(file, where, f"{key!r} cannot vary: a sweep or sample reads the one series file the case names")
+    if key in ("time.keep_temperature", "time.output_every", "time.start", "time.end", "time.duration"):
+        raise CaseError(file, where, f"{key!r} cannot vary: every point keeps the same records at the same times")
     _, _, value = _lookup(data, key, file, where)
     if isinstance(value, (dict, list)):
         raise CaseError(file, where, f"{key!r} is a table or list; name one value inside it")
@@ -194,8 +201,8 @@ def parse_sweep(value: Any, data: dict, file: str) -> tuple[SweepDim, ...]:
         name = table.get("name")
         if not isinstance(name, str) or not _NAME.match(name):
             raise CaseError(file, f"{where}.name", f"must be a name of letters, digits and _ (starting with a letter), got {name!r}")
-        if name in RESERVED:
-            raise CaseError(file, f"{where}.name", f"{name!r} is a dimension of the result already; choose another name")
+        if name in RESERVED or name.startswith(RESERVED_STEMS):
+            raise CaseError(file, f"{where}.name", f"{name!r} is (or looks like) a name of the result already; choose another name")
         if any(d.name == name for d in dims):
             raise CaseError(file, f"{where}.name", f"{name!r} names two sweep tables")
         key = table.get("key")
@@ -248,7 +255,10 @@ def _coordinate(values: list, file: str, where: str) -> tuple[np.ndarray, str]:
     or the values as text where any is a word."""
     parts = [quantity_parts(v, file, where) for v in values]
     if any(p is None for p in parts):
-        return np.array([str(v) for v in values], dtype=object), ""
+        texts = [str(v) for v in values]
+        if len(set(texts)) != len(texts):
+            raise CaseError(file, where, "has the same value twice")
+        return np.array(texts, dtype=object), ""
     unit = parts[0][1]
     if any(bool(p[1]) != bool(unit) for p in parts):
         raise CaseError(file, where, "give every value with a unit, or every value as a bare number")
@@ -310,15 +320,18 @@ def parse_uncertainty(value: Any, data: dict, file: str) -> UncertaintySpec | No
             fraction = convert(rel[0], rel[1], "dimensionless", file, f"{where}.relative_sd") if rel[1] else rel[0]
             if not 0.0 < fraction <= 0.5:
                 raise CaseError(file, f"{where}.relative_sd", "must be above 0 and at most 50 %")
-            if mean[1] in ("degC", "°C", "degF", "°F"):
+            if mean[1] in ("degC", "°C", "degF", "°F", "K", "kelvin"):
                 raise CaseError(file, f"{where}.relative_sd", "a temperature has no relative spread; give sd in K")
             sd = abs(mean[0]) * fraction
         else:
             spread = quantity_parts(spec["sd"], file, f"{where}.sd")
             if spread is None or bool(spread[1]) != bool(mean[1]):
                 raise CaseError(file, f"{where}.sd", "must be a quantity in a unit like the case's value (a bare number if it is bare)")
-            to = mean[1].replace("degC", "delta_degC").replace("degF", "delta_degF") if mean[1] else ""
-            sd = convert(spread[0], spread[1].replace("degC", "delta_degC"), to, file, f"{where}.sd") if to else spread[0]
+            def as_difference(unit: str) -> str:
+                return unit.replace("degC", "delta_degC").replace("degF", "delta_degF")
+
+            to = as_difference(mean[1]) if mean[1] else ""
+            sd = convert(spread[0], as_difference(spread[1]), to, file, f"{where}.sd") if to else spread[0]
         if not (math.isfinite(sd) and sd > 0):
             raise CaseError(file, where, "the spread must be positive")
         entries.append(Varied(key=key, distribution="normal", units=mean[1], mean=mean[0], sd=sd))

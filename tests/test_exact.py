@@ -292,3 +292,36 @@ def test_exact_path_meets_the_composite_slab_series_to_its_spatial_error():
     for coarse, fine in zip(errors[40], errors[80]):
         assert 1.8 <= math.log2(coarse / fine) <= 2.8
         assert fine < 5e-4
+
+
+def test_a_periodic_start_with_a_flux_side_is_not_stopped_by_its_helper_run():
+    """The exact periodic start runs one period from rest as a step of the
+    computation; with a flux drawn out of a hot plate that helper run passes
+    below absolute zero although the construction never does.  Steady state
+    of this case (constant forcing, so the periodic state is the steady one):
+    the outside face is 1500 - 140 x 0.2 / 0.02 = 100 degC (Fourier's law
+    through one layer)."""
+    text = """
+    [materials.light]
+    conductivity = "0.02 W/(m*K)"
+    density = "10 kg/m3"
+    specific_heat = "1000 J/(kg*K)"
+    [[layers]]
+    material = "light"
+    thickness = "200 mm"
+    [inside]
+    type = "temperature"
+    surface_temperature = "1500 degC"
+    [outside]
+    type = "flux"
+    heat_flux = "-140 W/m2"
+    [time]
+    duration = "1 d"
+    step = "1 h"
+    initial = "periodic"
+    [mesh]
+    max_cell = "2 mm"
+    """
+    ds = simulate(_case(text))
+    assert ds.attrs["scheme"] == "exact"
+    np.testing.assert_allclose(ds["surface_temperature_outside"].values, 100.0, atol=1e-6)

@@ -99,7 +99,11 @@ def test_stepping_points_and_the_cell_field(tmp_path):
     [
         ('name = "w"\nkey = "layers.9.thickness"\nvalues = ["1 mm"]', "sweep[1].key", "list of 4"),
         ('name = "w"\nkey = "nothing.here"\nvalues = ["1 mm"]', "sweep[1].key", "no 'nothing'"),
-        ('name = "time"\nkey = "layers.1.thickness"\nvalues = ["1 mm"]', "sweep[1].name", "dimension of the result"),
+        ('name = "time"\nkey = "layers.1.thickness"\nvalues = ["1 mm"]', "sweep[1].name", "name of the result"),
+        ('name = "energy_balance_error"\nkey = "layers.1.thickness"\nvalues = ["1 mm"]', "sweep[1].name", "name of the result"),
+        ('name = "k"\nkey = "time.keep_temperature"\nvalues = [true, false]', "sweep[1].key", "cannot vary"),
+        ('name = "w"\nkey = "layers.².thickness"\nvalues = ["1 mm"]', "sweep[1].key", "item number"),
+        ('name = "w"\nkey = "time.scheme"\nvalues = ["exact", "exact"]', "sweep[1].values", "same value twice"),
         ('name = "w"\nkey = "layers.1.thickness"\nvalues = ["10 mm", "1 cm"]', "sweep[1].values", "same value twice"),
         ('name = "w"\nkey = "layers.1.thickness"\nvalues = ["10 mm", 0.02]', "sweep[1].values", "every value with a unit"),
         ('name = "w"\nkey = "layers.1.thickness"', "sweep[1]", "values = [...] or range"),
@@ -164,3 +168,38 @@ def test_a_distributed_sweep_equals_the_serial_one(tmp_path):
             spread = sweep(case, client=client)
     for name in serial.data_vars:
         np.testing.assert_array_equal(serial[name].values, spread[name].values, err_msg=name)
+
+
+def test_points_that_differ_in_their_series_and_warnings(tmp_path):
+    """Sun on one point and none on the other: the sol-air temperature is kept
+    for both, NaN where a point has none; each point equals its own run; a
+    warning that a point's run gives is said once for the sweep, with how many
+    points gave it."""
+    _weather(tmp_path)
+    text = WALL.format(step="1 h", initial="steady", scheme="auto").replace('duration = "5 d"', 'duration = "1 d"')
+    text += '[[sweep]]\nname = "absorptance"\nkey = "outside.solar_absorptance"\nvalues = [0.0, 0.6]\n'
+    case = _case(text, tmp_path)
+    ds = sweep(case)
+    sol_air = ds["sol_air_temperature_outside"]
+    assert np.isnan(sol_air.isel(absorptance=0).values).all() and np.isfinite(sol_air.isel(absorptance=1).values).all()
+    one = _alone(case, {"outside.solar_absorptance": 0.6}, tmp_path)
+    np.testing.assert_allclose(sol_air.isel(absorptance=1).values, one["sol_air_temperature_outside"].values, atol=1e-9)
+    # a stepping scheme that warns at every point (Crank-Nicolson after a start step)
+    ringing = WALL.format(step="1 h", initial="-5 degC", scheme="crank-nicolson").replace('duration = "5 d"', 'duration = "1 d"')
+    ringing += '[[sweep]]\nname = "wool"\nkey = "layers.3.thickness"\nvalues = ["60 mm", "120 mm"]\n'
+    with pytest.warns(UserWarning, match=r"crank-nicolson .* \[at 2 of 2 sweep points"):
+        warned = sweep(_case(ringing, tmp_path))
+    assert "crank-nicolson" in warned.attrs["point_warnings"]
+
+
+def test_one_mesh_keeps_the_run_cell_coordinates(tmp_path):
+    """Points with the same mesh keep temperature on (time, x) with the run's x, bounds and layers."""
+    _weather(tmp_path)
+    text = WALL.format(step="1 h", initial="steady", scheme="auto").replace('duration = "5 d"', 'duration = "1 d"')
+    text = text.replace('output_every = "1 h"', 'output_every = "1 h"\nkeep_temperature = true')
+    text += '[[sweep]]\nname = "absorptance"\nkey = "outside.solar_absorptance"\nvalues = [0.3, 0.6]\n'
+    case = _case(text, tmp_path)
+    ds = sweep(case)
+    assert ds["temperature"].dims == ("absorptance", "time", "x") and "x_bounds" in ds and "layer" in ds.coords
+    one = _alone(case, {"outside.solar_absorptance": 0.3}, tmp_path)
+    np.testing.assert_allclose(ds["temperature"].isel(absorptance=0).values, one["temperature"].values, atol=1e-9)
