@@ -133,6 +133,10 @@ def run_case(case: Case, progress: Callable[[int, int], None] | None = None, fie
     :class:`layers.results.FieldSink` (what ``layers run`` does; internal)."""
     from layers.simulation import simulate as _simulate
 
+    if case.uncertainty is not None:  # a tolerance that makes a sample impossible: refused before any run
+        from layers.uncertainty import check_samples
+
+        check_samples(case)
     ds = _simulate(case, progress=progress, field_sink=field_sink)
     if case.uncertainty is not None:
         from layers.uncertainty import run_quantiles

@@ -121,6 +121,8 @@ def cmd_size(args: argparse.Namespace) -> int:
     case = load_case(args.case)
     if case.sizing is None:
         raise CaseError(case.path, "sizing", "is required by 'layers size' (add a [sizing] table)")
+    if case.sweep:
+        warnings.warn(f"{case.path}: has [[sweep]] tables; `layers size` sizes the case as written", UserWarning, stacklevel=1)
     progress = _Progress(args.quiet, f"{case.stem} sizing")
     try:
         ds = size(case, progress=progress)
@@ -218,7 +220,16 @@ def cmd_check(args: argparse.Namespace) -> int:
     from layers.report import check_report
 
     case = load_case(args.case)
-    print(check_report(case))
+    report = check_report(case)
+    if case.sweep:  # every point read, as layers sweep would
+        from layers.sweeps import check_points, points
+
+        report += f"\nsweep points checked: {check_points(case, points(case))}"
+    if case.uncertainty is not None:
+        from layers.uncertainty import check_samples
+
+        report += f"\nuncertainty samples checked: {check_samples(case)}"
+    print(report)
     return EXIT_OK
 
 
@@ -242,6 +253,9 @@ def cmd_periodic(args: argparse.Namespace) -> int:
 
     refuse_existing(args.out)
     case = load_case(args.case)
+    if case.sweep or case.uncertainty is not None:
+        warnings.warn(f"{case.path}: `layers periodic` characterises the case as written; its [[sweep]] or [uncertainty] "
+                      "tables apply to run, sweep and size", UserWarning, stacklevel=1)
     period = parse_period(args.period, file="(command line)", key="--period")
     report = periodic_report(case, period)
     print(report.text)
@@ -364,6 +378,24 @@ def build_parser() -> argparse.ArgumentParser:
     return p
 
 
+def _stop_cleanly_on_sigterm() -> None:
+    """A terminated run (``kill``, a batch system's time limit) unwinds like an
+    interrupted one: scratch files are removed and nothing half-written is kept."""
+    import signal
+    import threading
+
+    if threading.current_thread() is not threading.main_thread():
+        return
+
+    def stop(signum, frame):
+        raise KeyboardInterrupt
+
+    try:
+        signal.signal(signal.SIGTERM, stop)
+    except (ValueError, OSError):  # not possible here (an embedded interpreter)
+        pass
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     parser = build_parser()
     try:
@@ -372,6 +404,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         return int(exc.code or 0)
     args.argv = list(argv) if argv is not None else sys.argv[1:]
     debug = bool(os.environ.get("LAYERS_DEBUG"))
+    _stop_cleanly_on_sigterm()
     try:
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("default")

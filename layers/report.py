@@ -341,7 +341,8 @@ def run_summary(ds: xr.Dataset, case: Case | None = None) -> str:
         )
     if "surface_temperature_outside_quantile" in ds:
         n = ds.attrs.get("uncertainty_samples", "?")
-        lines.append(f"  with the input tolerances of [uncertainty] ({n} samples), 5 % / 50 % / 95 % quantiles:")
+        lines.append(f"  with the input tolerances of [uncertainty] ({n} samples): the extremes over the run of the")
+        lines.append("  5 % / 50 % / 95 % quantiles taken at each kept time:")
         for side in ("inside", "outside"):
             band = ds[f"surface_temperature_{side}_quantile"].values
             lines.append(

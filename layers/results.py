@@ -188,43 +188,25 @@ CHUNK_CACHE = 4 * 2**20
 STREAMED_FIELDS = "layers_streamed_fields"
 
 
-class FieldSink:
-    """Kept cell fields written to a scratch netCDF file as the march makes them,
-    so that a run's memory does not grow with its length.  The Dataset of such
-    a run has no ``temperature`` in memory; its encoding names the sink
-    (:meth:`attach`), and :func:`write_new` copies the fields from the sink
-    into the file it writes, block by block (:meth:`append_to`).
+class FieldExtremes:
+    """Takes the kept cell fields as the march makes them and keeps only what
+    the checks after a run need: the coldest and hottest cell (``low``,
+    ``high`` [degC]) and, for each kept state, the hottest cell of each layer
+    (``layer_hottest``, (m, layers)).  A run that keeps no fields
+    (``keep_temperature = false``) uses it so that they never fill memory."""
 
-    It also keeps what the checks after a run need from the fields: the
-    coldest and hottest cell (``low``, ``high`` [degC]) and, for each kept
-    state, the hottest cell of each layer (``layer_hottest``, (m, layers)).
-    """
-
-    #: Rows per chunk of the scratch file (and of the written file's field).
-    BLOCK = 256
-
-    def __init__(self, mesh: Mesh, folder: str | os.PathLike | None = None) -> None:
-        import netCDF4
-
-        fd, name = tempfile.mkstemp(prefix=".layers-field-", suffix=".nc", dir=folder)
-        os.close(fd)
-        self.path = Path(name)
+    def __init__(self, mesh: Mesh) -> None:
         self.layer = mesh.layer
         self.layers = int(mesh.layer.max()) if mesh.n else 0
         self.rows = 0
         self.low, self.high = math.inf, -math.inf
         self._hottest: list[np.ndarray] = []
-        self._nc = netCDF4.Dataset(self.path, "w", format="NETCDF4")
-        self._nc.createDimension("time", None)
-        self._nc.createDimension("x", mesh.n)
-        self._var = self._nc.createVariable("temperature", "f8", ("time", "x"), chunksizes=(self.BLOCK, mesh.n))
-        self._var.set_var_chunk_cache(size=CHUNK_CACHE)  # written in order: a small cache (the library's default grows to 64 MiB)
 
     def write(self, rows: np.ndarray) -> None:
         rows = np.atleast_2d(np.asarray(rows, dtype=float))
         if rows.shape[0] == 0:
             return
-        self._var[self.rows:self.rows + rows.shape[0], :] = rows
+        self._store(rows)
         self.rows += rows.shape[0]
         self.low, self.high = min(self.low, float(rows.min())), max(self.high, float(rows.max()))
         hottest = np.full((rows.shape[0], self.layers), -math.inf)
@@ -234,9 +216,40 @@ class FieldSink:
                 hottest[:, number - 1] = rows[:, cells].max(axis=1)
         self._hottest.append(hottest)
 
+    def _store(self, rows: np.ndarray) -> None:
+        """Nothing to keep here (a FieldSink writes the rows)."""
+
     @property
     def layer_hottest(self) -> np.ndarray:
         return np.concatenate(self._hottest) if self._hottest else np.empty((0, self.layers))
+
+
+class FieldSink(FieldExtremes):
+    """Kept cell fields written to a scratch netCDF file as the march makes them,
+    so that a run's memory does not grow with its length.  The Dataset of such
+    a run has no ``temperature`` in memory; its encoding names the sink
+    (:meth:`attach`), and :func:`write_new` copies the fields from the sink
+    into the file it writes, block by block (:meth:`append_to`).
+    """
+
+    #: Rows per chunk of the scratch file (and of the written file's field).
+    BLOCK = 256
+
+    def __init__(self, mesh: Mesh, folder: str | os.PathLike | None = None) -> None:
+        import netCDF4
+
+        super().__init__(mesh)
+        fd, name = tempfile.mkstemp(prefix=".layers-field-", suffix=".nc", dir=folder)
+        os.close(fd)
+        self.path = Path(name)
+        self._nc = netCDF4.Dataset(self.path, "w", format="NETCDF4")
+        self._nc.createDimension("time", None)
+        self._nc.createDimension("x", mesh.n)
+        self._var = self._nc.createVariable("temperature", "f8", ("time", "x"), chunksizes=(self.BLOCK, mesh.n))
+        self._var.set_var_chunk_cache(size=CHUNK_CACHE)  # written in order: a small cache (the library's default grows to 64 MiB)
+
+    def _store(self, rows: np.ndarray) -> None:
+        self._var[self.rows:self.rows + rows.shape[0], :] = rows
 
     def attach(self, ds: xr.Dataset) -> xr.Dataset:
         """Name this sink as the holder of ``ds``'s cell fields (the march is done)."""
@@ -342,6 +355,12 @@ def refuse_existing(path: str | os.PathLike | None, suffixes: tuple[str, ...] = 
         raise CaseError(str(path), "-o", f"this command writes {' or '.join(suffixes)} files; give the name such a suffix")
     if path and Path(path).exists():
         raise exists_error(path)
+    if path:
+        folder = Path(path).parent
+        if not folder.is_dir():
+            raise CaseError(str(path), "-o", f"the folder {folder} does not exist")
+        if not os.access(folder, os.W_OK | os.X_OK):
+            raise CaseError(str(path), "-o", f"cannot write in the folder {folder}")
 
 
 def write_output(ds: xr.Dataset, out: str | os.PathLike | None) -> Path | None:
@@ -358,6 +377,8 @@ def write_output(ds: xr.Dataset, out: str | os.PathLike | None) -> Path | None:
         return write_new(ds, out)
     except FileExistsError:
         raise exists_error(out) from None
+    except OSError as exc:  # a folder that refuses the write after all (a special file system)
+        raise CaseError(str(out), "-o", f"cannot write the copy ({exc.strerror or exc}); the archived result is complete") from None
 
 
 def write_once(path: str | os.PathLike, write: Callable[[str], None]) -> Path:

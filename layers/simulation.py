@@ -25,7 +25,7 @@ from layers.exchange import exchanges, in_seconds
 from layers.march import TOLERANCE, BadConductivity, MarchResult, System, UnphysicalState, march, periodic_start, settle
 from layers.schemes import resolve_scheme
 from layers.mesh import Mesh
-from layers.results import to_dataset
+from layers.results import FieldExtremes, to_dataset
 from layers.steady import cell_temperatures, steady_state
 
 #: Default ice fraction for the freeze time: a common design allowance (ISO 12241 and
@@ -382,9 +382,11 @@ def simulate(case: Case, progress: Callable[[int, int], None] | None = None, fie
         Variables and attributes as the product contract lists them.
     """
     mesh = case.mesh()
-    res, cycles, system = run_march(case, mesh, progress, field_sink=field_sink)
-    record = run_record(case, mesh, system, res, cycles, field_sink=field_sink)
-    if case.time.keep_temperature is False or field_sink is not None:
+    keep = case.time.keep_temperature is not False
+    sink = field_sink if keep else FieldExtremes(mesh)  # fields not kept never fill memory
+    res, cycles, system = run_march(case, mesh, progress, field_sink=sink)
+    record = run_record(case, mesh, system, res, cycles, field_sink=sink)
+    if sink is not None:
         record.fields["temperature"] = None
     ds = record_dataset(case, mesh, record)
-    return field_sink.attach(ds) if field_sink is not None and case.time.keep_temperature is not False else ds
+    return field_sink.attach(ds) if field_sink is not None and keep else ds

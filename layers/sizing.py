@@ -96,6 +96,13 @@ def size(case: Case, progress: Callable[[int, int], None] | None = None) -> xr.D
             "sampling a freeze-time criterion is not supported yet (each sample would need a transient run per candidate); "
             "sample the steady criteria, or run the freeze sizing at the worst plausible values",
         )
+    if case.uncertainty is not None:
+        sized = f"layers.{s.layer}.thickness"
+        if any(v.key == sized for v in case.uncertainty.vary):
+            raise CaseError(
+                case.path, f"uncertainty.vary.{sized}",
+                "is the thickness being sized (each candidate replaces it); give the tolerance of the other inputs",
+            )
     thick = np.asarray(s.thicknesses, dtype=float)
     data, attrs, passes = _evaluate(case, thick, progress)
     for name, ok in passes.items():

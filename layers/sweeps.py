@@ -91,7 +91,8 @@ def variant(case: Case, source: dict, point: Point, where: str = "sweep") -> Cas
     try:
         v = parse_case(source, file=case.path, text=case.text, base_dir=case.base_dir)
     except CaseError as exc:
-        raise CaseError(case.path, exc.key, f"at the {where} point {point.describe()}: {exc.reason}") from None
+        at = point.describe() if where == "uncertainty" else f"the {where} point {point.describe()}"
+        raise CaseError(case.path, exc.key, f"at {at}: {exc.reason}") from None
     v.record_paths = case.record_paths
     return v
 
@@ -292,12 +293,41 @@ def sweep(
     return assemble(case, grid, cases, records)
 
 
+#: ``layers check`` reads every point of a sweep up to this many, else its corners.
+CHECK_ALL_POINTS = 2000
+
+
+def check_points(case: Case, grid: list[Point], where: str = "sweep") -> str:
+    """Read the case of every point (or, for a large grid, of each corner of it)
+    and plan the jobs, so that ``layers check`` refuses what ``layers sweep``
+    would; returns what was checked, in words."""
+    _check_size(case, len(grid), [case])
+    if len(grid) > CHECK_ALL_POINTS:
+        corners = {tuple(0 if c == "0" else len(d.values) - 1 for c, d in zip(bits, case.sweep))
+                   for bits in itertools.product("01", repeat=len(case.sweep))}
+        chosen = [p for p in grid if p.index in corners]
+        said = f"the {len(chosen)} corner points of {len(grid)} read"
+    else:
+        chosen = grid
+        said = f"all {len(grid)} points read"
+    data = _source(case)
+    sources = [with_values(data, p.settings) for p in chosen]
+    with reusing_series():
+        cases = [variant(case, src, p, where) for src, p in zip(sources, chosen)]
+    _check_size(case, len(grid), cases)
+    for v in cases:
+        _check_plan(case, v)
+    plan_jobs(case, cases, sources, [p.describe() for p in chosen])
+    return said
+
+
 def run_points(
     case: Case, grid: list[Point], *, client: Any = None, progress: Callable[[int, int], None] | None = None, where: str = "sweep"
 ) -> tuple[list[Case], list[dict]]:
     """Run the case at each point (its settings written into the case file):
     each point's case and run record, in the order of ``grid``.  Shared by
     sweeps and uncertainty sampling."""
+    _check_size(case, len(grid), [case])  # before reading every point: a grid far too large is refused at once
     data = _source(case)
     sources = [with_values(data, p.settings) for p in grid]
     with reusing_series():

@@ -77,6 +77,24 @@ def sample_points(case: Case) -> list[Point]:
     return grid
 
 
+def check_samples(case: Case) -> str:
+    """Read the cases of the samples that hold the lowest and the highest value
+    of each varied key (where a sample falls outside what a case allows), so
+    that a bad tolerance is refused before any run; returns what was checked."""
+    from layers.case import read_toml, reusing_series
+    from layers.sweeps import variant
+    from layers.variation import with_values
+
+    grid = sample_points(case)
+    numbers = sample_numbers(case)
+    chosen = sorted({int(np.argmin(v)) for v in numbers.values()} | {int(np.argmax(v)) for v in numbers.values()})
+    data = read_toml(case.text, case.path)
+    with reusing_series():
+        for i in chosen:
+            variant(case, with_values(data, grid[i].settings), grid[i], "uncertainty")
+    return f"the {len(chosen)} samples with the extreme values of {len(numbers)} varied input(s) read"
+
+
 def _attrs(case: Case) -> dict[str, Any]:
     spec = case.uncertainty
     described = []

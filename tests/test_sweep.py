@@ -203,3 +203,23 @@ def test_one_mesh_keeps_the_run_cell_coordinates(tmp_path):
     assert ds["temperature"].dims == ("absorptance", "time", "x") and "x_bounds" in ds and "layer" in ds.coords
     one = _alone(case, {"outside.solar_absorptance": 0.3}, tmp_path)
     np.testing.assert_allclose(ds["temperature"].isel(absorptance=0).values, one["temperature"].values, atol=1e-9)
+
+
+def test_check_reads_every_point_before_any_run(tmp_path, capsys):
+    """`layers check` refuses a swept value the case reader would refuse, naming
+    the point, and a grid too large to keep, at once."""
+    _weather(tmp_path)
+    path = tmp_path / "wall.toml"
+    path.write_text(WALL.format(step="1 h", initial="steady", scheme="auto")
+                    + '[[sweep]]\nname = "wool"\nkey = "layers.3.thicknes"\nvalues = ["60 mm", "80 mm"]\n')
+    assert main(["check", str(path)]) == 2
+    assert "layers[3].thicknes" in capsys.readouterr().err
+    path.write_text(WALL.format(step="1 h", initial="steady", scheme="auto")
+                    + '[[sweep]]\nname = "wool"\nkey = "layers.3.thickness"\nvalues = ["60 mm", "80 mm"]\n')
+    assert main(["check", str(path)]) == 0
+    assert "all 2 points read" in capsys.readouterr().out
+    big = WALL.format(step="1 min", initial="steady", scheme="auto").replace('output_every = "1 h"', 'output_every = "1 min"')
+    big += '[[sweep]]\nname = "wool"\nkey = "layers.3.thickness"\nrange = {from = "50 mm", to = "300 mm", count = 5000}\n'
+    path.write_text(big)
+    assert main(["check", str(path)]) == 2
+    assert "GiB" in capsys.readouterr().err

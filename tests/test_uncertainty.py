@@ -152,3 +152,11 @@ def test_a_sample_outside_what_the_case_allows_names_the_sample():
     with pytest.raises(CaseError) as info:
         size(_case(samples=4000, vary='"materials.board.conductivity" = {relative_sd = "40 %"}'))
     assert "sample" in info.value.reason and "materials.board.conductivity" in info.value.reason
+
+
+def test_a_tolerance_on_the_sized_thickness_is_refused():
+    """Each sizing candidate replaces the sized layer's thickness, so a
+    tolerance on it would be silently ignored: refused instead."""
+    with pytest.raises(CaseError) as info:
+        size(_case(vary='"layers.1.thickness" = {relative_sd = "5 %"}'))
+    assert info.value.key == "uncertainty.vary.layers.1.thickness"
