@@ -232,6 +232,27 @@ def _evaluate(case: Case, thick: np.ndarray, progress) -> tuple[dict, dict, dict
     return data, attrs, passes
 
 
+#: Candidates a criteria table prints in full; beyond, the rows around each change of verdict.
+TABLE_ROWS = 40
+
+
+def _rows_shown(passes: dict[str, np.ndarray], n: int) -> list[int | None]:
+    """Every row of a short table; of a long one the first and last two and the
+    two rows on each side of every change of a pass/fail verdict (None: rows left out)."""
+    if n <= TABLE_ROWS:
+        return list(range(n))
+    keep = {0, 1, n - 2, n - 1}
+    for ok in passes.values():
+        for i in np.flatnonzero(np.diff(np.asarray(ok, dtype=int)) != 0):
+            keep.update(range(max(0, i - 1), min(n, i + 3)))
+    out: list[int | None] = []
+    for i in sorted(keep):
+        if out and out[-1] is not None and i > out[-1] + 1:
+            out.append(None)
+        out.append(i)
+    return out
+
+
 def criteria_table(ds: xr.Dataset) -> str:
     """Text table: one row per candidate, one column per criterion (pass/fail and margin)."""
     names = [v[len("passes_"):] for v in ds.data_vars if v.startswith("passes_") and v != "passes_all"]
@@ -286,8 +307,14 @@ def criteria_table(ds: xr.Dataset) -> str:
     freeze = (ds["time_to_freezing"].values, ds["freeze_time"].values) if "freeze_time" in ds else None
     passes = {n: ds[f"passes_{n}"].values for n in names}
     margins = {n: ds[f"margin_{n}"].values for n in names}
-    for i, d in enumerate(thick):
-        row = f"{d * 1000:>10.1f} "
+    fine = thick.size > 1 and float(np.min(np.diff(thick))) < 1e-4 - 1e-12   # steps below 0.1 mm: two decimals
+    for i in _rows_shown(passes, thick.size):
+        if i is None:
+            said = any(line.lstrip().startswith("...  (") for line in lines)
+            lines.append(f"{'...':>10}" + ("" if said else f"  ({thick.size} candidates: the rows around each change of verdict; all are in the file)"))
+            continue
+        d = thick[i]
+        row = f"{d * 1000:>10.{2 if fine else 1}f} "
         if surface is not None:
             row += f"{surface[i]:>9.2f} {flow[i]:>11.2f} "
         if freeze is not None:
