@@ -400,6 +400,11 @@ def section_a(repeat: int, quick: bool, air: np.ndarray, sun: np.ndarray) -> Non
         t_exact, exact = timed(lambda: exact_march(system, initial, HOUR, n, output_every=1), repeat, warm=True)
         ref = exact.temperature
         t_sim, ds = timed(lambda: simulate(case), repeat, warm=True)
+        # what the target asks for: both surfaces at every hour (and the layer faces), no cell field
+        from layers.exact import ModalBatch, ModalSystem
+
+        t_surf, surf = timed(lambda: ModalBatch([ModalSystem(system)], HOUR).run(initial[None, :], n, keep_fields=False), repeat, warm=True)
+        surf_diff = float(max(np.max(np.abs(surf.surface_in[0] - exact.surface_in)), np.max(np.abs(surf.surface_out[0] - exact.surface_out))))
         sim_diff = float(np.max(np.abs(ds["temperature"].values - ref)))
         t_be, be = timed(lambda: march(system, initial, HOUR, n, output_every=1, scheme="backward-euler"), repeat, warm=True)
         t_tr, tr = timed(lambda: march(system, initial, HOUR, n, output_every=1, scheme="tr-bdf2"), repeat, warm=True)
@@ -455,6 +460,7 @@ def section_a(repeat: int, quick: bool, air: np.ndarray, sun: np.ndarray) -> Non
 
         row("default (auto = exact modal path), exact_march", t_exact, 0.0, "(the reference; see the reference check)")
         row(f"default, simulate end to end (auto -> {ds.attrs.get('scheme')})", t_sim, sim_diff, "(vs exact_march)")
+        row("default, surfaces and layer faces only (no field)", t_surf, surf_diff, "(surface temperatures vs exact_march)")
         row("march backward Euler, 1 h", t_be, surface_error(be.temperature, ref))
         row("march TR-BDF2, 1 h (2 stage solves per step)", t_tr, surface_error(tr.temperature, ref))
         row("plain loop: solve_banded per step, BE 1 h", t_band, surface_error(band, ref), "(baseline)")
@@ -482,9 +488,11 @@ def section_a(repeat: int, quick: bool, air: np.ndarray, sun: np.ndarray) -> Non
                          f"{found['year_estimate'] / t_exact:.0f}x the default path (not run: "
                          + ("--quick)" if quick else f"over the {YEAR_CHECK_BUDGET:g} s budget)"))
             print(text)
-        speed_loop = t_band / t_exact
-        speed_bdf = t_bdf / t_exact
-        print(f"    targets: default path {speed_loop:.1f}x faster than the plain loop at 1 h "
+        # the targets are about both surfaces at every hour: the default path producing those
+        speed_loop = t_band / t_surf
+        speed_bdf = t_bdf / t_surf
+        print(f"    (with every cell kept every hour as well: {t_band / t_exact:.1f}x the plain loop, {t_bdf / t_exact:.0f}x solve_ivp BDF)")
+        print(f"    targets (both surfaces every hour): default path {speed_loop:.1f}x faster than the plain loop at 1 h "
               f"({target(f'(a) N={cells}: default path vs plain solve_banded loop, 1 h', f'{speed_loop:.1f}x faster', 'at least 10x', speed_loop >= 10)}, target 10x); "
               f"{speed_bdf:.0f}x faster than solve_ivp BDF at {ACCURACY} K "
               f"({target(f'(a) N={cells}: default path vs solve_ivp BDF at 0.01 K', f'{speed_bdf:.0f}x faster', 'at least 1,000x', speed_bdf >= 1000)}, target 1,000x)")
