@@ -128,9 +128,10 @@ def simulate(case: Case, progress: Callable[[int, int], None] | None = None) -> 
     return run_case(case, progress)
 
 
-def run_case(case: Case, progress: Callable[[int, int], None] | None = None, field_sink: Any = None) -> xr.Dataset:
+def run_case(case: Case, progress: Callable[[int, int], None] | None = None, field_sink: Any = None, client: Any = None) -> xr.Dataset:
     """:func:`simulate`, with the cell fields optionally streamed to a
-    :class:`layers.results.FieldSink` (what ``layers run`` does; internal)."""
+    :class:`layers.results.FieldSink` and the uncertainty samples optionally
+    run on a dask ``client`` (what ``layers run`` does; internal)."""
     from layers.simulation import simulate as _simulate
 
     if case.uncertainty is not None:  # a tolerance that makes a sample impossible: refused before any run
@@ -141,7 +142,7 @@ def run_case(case: Case, progress: Callable[[int, int], None] | None = None, fie
     if case.uncertainty is not None:
         from layers.uncertainty import run_quantiles
 
-        ds = run_quantiles(case, ds)
+        ds = run_quantiles(case, ds, client=client)
     return ds
 
 

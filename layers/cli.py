@@ -82,15 +82,23 @@ def cmd_run(args: argparse.Namespace) -> int:
         warnings.warn(f"{case.path}: has [[sweep]] tables; `layers run` runs the case as written, `layers sweep` runs every point",
                       UserWarning, stacklevel=1)
     case.record_paths = bool(args.record_paths)
+    if (args.workers is not None or args.scheduler) and case.uncertainty is None:
+        raise CaseError(case.path, "uncertainty", "--workers and --scheduler run the samples of [uncertainty]; this case has none")
+    client, cluster = _client(args)
     progress = _Progress(args.quiet, case.stem)
     # the cell fields go to a scratch file as the march makes them and from there,
     # block by block, into the archive: memory stays flat however long the run
-    sink = FieldSink(case.mesh()) if case.time.keep_temperature is not False else None
+    sink = None
     try:
+        sink = FieldSink(case.mesh()) if case.time.keep_temperature is not False else None
         try:
-            ds = run_case(case, progress=progress, field_sink=sink)
+            ds = run_case(case, progress=progress, field_sink=sink, client=client)
         finally:
             progress.close()
+            if client is not None:
+                client.close()
+            if cluster is not None:
+                cluster.close()
         import shlex
 
         ds.attrs["command"] = "layers " + shlex.join(args.argv)
@@ -324,6 +332,8 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--series-dir", action="append", metavar="DIR", help="with --again: a folder to look in for the series (repeatable)")
     r.add_argument("--record-paths", action="store_true", help="record the absolute paths of the case and series files in the run")
     r.add_argument("-q", "--quiet", action="store_true", help="no progress bar and no summary (the file written and the caution are still printed)")
+    r.add_argument("--workers", type=int, metavar="N", help="[uncertainty]: run the samples on a local dask cluster of N worker processes")
+    r.add_argument("--scheduler", metavar="ADDRESS", help="[uncertainty]: run the samples on an existing dask cluster")
     r.set_defaults(func=cmd_run)
 
     w = sub.add_parser("sweep", help="one run per point of [[sweep]], as one result")

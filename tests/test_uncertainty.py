@@ -160,3 +160,20 @@ def test_a_tolerance_on_the_sized_thickness_is_refused():
     with pytest.raises(CaseError) as info:
         size(_case(vary='"layers.1.thickness" = {relative_sd = "5 %"}'))
     assert info.value.key == "uncertainty.vary.layers.1.thickness"
+
+
+def test_run_samples_on_a_local_cluster_equal_the_serial_ones(tmp_path):
+    """`layers run --workers 2` runs the samples on a local dask cluster: the
+    quantiles equal the serial run's exactly (the same fixed jobs)."""
+    pytest.importorskip("distributed")
+    import xarray as xr
+
+    from layers.cli import main
+
+    path = tmp_path / "plate.toml"
+    path.write_text(textwrap.dedent(PLATE.format(samples=64, seed=2, vary=NORMAL_K)))
+    assert main(["run", str(path), "--archive", str(tmp_path / "serial"), "-q"]) == 0
+    assert main(["run", str(path), "--archive", str(tmp_path / "spread"), "--workers", "2", "-q"]) == 0
+    (a,), (b,) = (tmp_path / "serial").glob("*.nc"), (tmp_path / "spread").glob("*.nc")
+    with xr.open_dataset(a) as serial, xr.open_dataset(b) as spread:
+        np.testing.assert_array_equal(serial["surface_temperature_outside_quantile"].values, spread["surface_temperature_outside_quantile"].values)
