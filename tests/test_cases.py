@@ -22,6 +22,14 @@ def test_case_checks_and_runs(path, tmp_path, capsys):
     case = load_case(path)
     if case.sizing is not None and case.time.duration > 30 * 86400:
         pytest.skip("long sizing cases are run by the sizing tests")
+    if case.sweep:  # a sweep case: its grid, as one file, every point physical
+        assert main(["sweep", str(path), "--archive", str(tmp_path / "sweep"), "--quiet"]) == 0
+        (grid,) = (tmp_path / "sweep").glob(f"{path.stem}-sweep-*.nc")
+        import xarray as xr
+
+        with xr.open_dataset(grid) as ds:
+            assert np.isfinite(ds["surface_temperature_outside"].values).all()
+            assert float(ds["energy_balance_error"].max()) < 1e-6
     assert main(["run", str(path), "--archive", str(tmp_path), "--quiet"]) == 0
     files = list(tmp_path.glob(f"{path.stem}-*.nc"))
     assert len(files) == 1
