@@ -284,8 +284,14 @@ def cmd_plot(args: argparse.Namespace) -> int:
 
 def cmd_compare(args: argparse.Namespace) -> int:
     """``layers compare RUN_A RUN_B [...] [-o OUT.png|.svg|.pdf|.nc]``."""
-    from layers.comparison import check_comparison_output, compare_runs, format_comparison, write_comparison
+    from layers.comparison import check_comparison_output, compare_runs, compare_sweeps, format_comparison, is_sweep_file, write_comparison
 
+    if any(Path(p).is_file() and is_sweep_file(p) for p in args.runs):
+        if args.out:
+            raise CaseError(str(args.out), "-o", "a comparison of sweeps is printed only; map each sweep with `layers plot`")
+        print(compare_sweeps(args.runs))
+        print(f"caution: {CAUTION}")
+        return EXIT_OK
     if args.out:
         check_comparison_output(args.out)
     comparison = compare_runs(args.runs)

@@ -60,8 +60,8 @@ def load_run(path: str | os.PathLike) -> xr.Dataset:
     if ds.attrs.get("product") == "sweep":
         raise CaseError(
             str(path), "(file)",
-            f"is a sweep of {ds.attrs.get('sweep_points', 'several')} points; `layers plot` maps a result over its points, "
-            "and xarray selects one (ds.sel(NAME=VALUE)); `layers compare` takes single runs",
+            f"is a sweep of {ds.attrs.get('sweep_points', 'several')} points: compare it with sweeps of the same grid "
+            "(point by point), map a result with `layers plot`, or select a point with xarray (ds.sel(NAME=VALUE))",
         )
     if "temperature" not in ds or "x" not in ds.dims:
         if "surface_temperature_outside" in ds and "x" in ds.dims:
@@ -683,6 +683,75 @@ def _interface_name(ds: xr.Dataset, k: int) -> str:
 
 def _letters(n: int) -> list[str]:
     return [chr(ord("A") + i) for i in range(n)] if n <= 26 else [str(i + 1) for i in range(n)]
+
+
+#: Per-point figures of two sweeps set side by side: (name, how to get it, units or the variable it takes them from).
+SWEEP_FIGURES = (
+    ("mean heat flow, inside surface", lambda ds: ds["heat_flow_inside_mean"], "heat_flow_inside_mean"),
+    ("outside surface, maximum", lambda ds: ds["surface_temperature_outside"].max("time"), "surface_temperature_outside"),
+    ("outside surface, minimum", lambda ds: ds["surface_temperature_outside"].min("time"), "surface_temperature_outside"),
+    ("inside surface, maximum", lambda ds: ds["surface_temperature_inside"].max("time"), "surface_temperature_inside"),
+    ("inside surface, minimum", lambda ds: ds["surface_temperature_inside"].min("time"), "surface_temperature_inside"),
+)
+
+
+def is_sweep_file(path: str | os.PathLike) -> bool:
+    """A file written by ``layers sweep`` (read from its header)."""
+    from layers.catalogue import read_entry
+
+    return read_entry(path).product == "sweep"
+
+
+def compare_sweeps(paths: Sequence[str | os.PathLike]) -> str:
+    """Sweeps of the same grid, point by point: for each figure, its range over
+    the points in each file and the largest difference from the first file,
+    with the point where it occurs.
+
+    Raises
+    ------
+    CaseError
+        When a file is not a sweep, or the grids differ.
+    """
+    files = [Path(p) for p in paths]
+    datasets = [read_netcdf(f) for f in files]
+    for f, ds in zip(files, datasets):
+        if ds.attrs.get("product") != "sweep":
+            raise CaseError(str(f), "(file)", "is not a sweep: sweeps compare with sweeps of the same grid, runs with runs")
+    first = datasets[0]
+    names = [d for d in first.dims if d in first.coords and d not in ("time", "interface", "cell", "x", "quantile")]
+    for f, ds in zip(files[1:], datasets[1:]):
+        other = [d for d in ds.dims if d in ds.coords and d not in ("time", "interface", "cell", "x", "quantile")]
+        same = other == names and all(np.array_equal(ds[d].values, first[d].values) for d in names)
+        if not same:
+            what = (f"other values of {', '.join(d for d in names if not np.array_equal(ds[d].values, first[d].values))}"
+                    if other == names else f"other dimensions ({', '.join(other)} against {', '.join(names)})")
+            raise CaseError(str(f), "(file)", f"has {what} than {files[0].name}: sweeps compare point by point over the same grid")
+    tags = _letters(len(files))
+    lines = [f"comparing {len(files)} sweeps point by point over {first.attrs.get('sweep_points', '?')} points "
+             f"({first.attrs.get('sweep_dimensions', '')})"]
+    for tag, f, ds in zip(tags, files, datasets):
+        lines.append(f"  {tag}  {f.name}   {ds.attrs.get('title', '')}")
+    lines.append("")
+    head = f"{'figure per point':<32}  {'units':<6}"
+    for i, tag in enumerate(tags):
+        head += f"  {tag + ' over the points':>22}" + (f"  {'largest ' + tag + '-' + tags[0]:>14}  at the point" if i else "")
+    lines.append(head)
+    for label, get, source in SWEEP_FIGURES:
+        if any(source not in ds for ds in datasets):
+            continue
+        values = [get(ds).transpose(*names).values for ds in datasets]
+        units = display_units(first[source].attrs.get("units", ""))
+        row = f"{label:<32}  {units:<6}"
+        for i, v in enumerate(values):
+            row += f"  {_num(float(np.nanmin(v))) + ' .. ' + _num(float(np.nanmax(v))):>22}"
+            if i:
+                diff = v - values[0]
+                where = np.unravel_index(int(np.nanargmax(np.abs(diff))), diff.shape)
+                point = ", ".join(f"{n} = {first[n].values[k]}" for n, k in zip(names, where))
+                row += f"  {_num(float(diff[where]), signed=True):>14}  {point}"
+        lines.append(row)
+    lines.append("(temperature differences in K; each sweep's own figures, from its file)")
+    return "\n".join(lines)
 
 
 def format_comparison(comparison: Comparison) -> str:

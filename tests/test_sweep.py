@@ -144,9 +144,9 @@ def test_layers_sweep_archives_one_file_that_list_shows(tmp_path, capsys, monkey
     assert main(["list", str(tmp_path / "runs")]) == 0
     listed = capsys.readouterr().out
     assert "wall-sweep-" in listed and "[sweep, 6 points]" in listed
-    # compare takes single runs: a sweep is refused in one line that says what to use
-    assert main(["compare", str(files[0]), str(files[0])]) == 2
-    assert "is a sweep of 6 points" in capsys.readouterr().err
+    # a comparison of sweeps is printed, not written
+    assert main(["compare", str(files[0]), str(files[0]), "-o", str(tmp_path / "c.png")]) == 2
+    assert "printed only" in capsys.readouterr().err
     # bad command lines: one line, exit 2
     assert main(["sweep", str(path), "--workers", "0", "--archive", str(tmp_path / "runs")]) == 2
     assert main(["sweep", str(path), "--workers", "2", "--scheduler", "tcp://127.0.0.1:1", "--archive", str(tmp_path / "runs")]) == 2
@@ -223,3 +223,28 @@ def test_check_reads_every_point_before_any_run(tmp_path, capsys):
     path.write_text(big)
     assert main(["check", str(path)]) == 2
     assert "GiB" in capsys.readouterr().err
+
+
+def test_sweeps_of_the_same_grid_compare_point_by_point(tmp_path, capsys):
+    """Two sweeps of the same grid (the second with a thicker brick) compare
+    point by point: the largest difference of the mean heat flow is the one
+    a direct subtraction of the two files gives; a sweep and a run do not compare."""
+    import xarray as xr
+
+    _weather(tmp_path)
+    text = WALL.format(step="1 h", initial="steady", scheme="auto") + SWEEP
+    (tmp_path / "a.toml").write_text(text)
+    (tmp_path / "b.toml").write_text(text.replace('thickness = "240 mm"', 'thickness = "300 mm"'))
+    for name in ("a", "b"):
+        assert main(["sweep", str(tmp_path / f"{name}.toml"), "--archive", str(tmp_path / name), "-q"]) == 0
+    (fa,), (fb,) = (tmp_path / "a").glob("*.nc"), (tmp_path / "b").glob("*.nc")
+    capsys.readouterr()
+    assert main(["compare", str(fa), str(fb)]) == 0
+    out = capsys.readouterr().out
+    with xr.open_dataset(fa) as a, xr.open_dataset(fb) as b:
+        diff = (b["heat_flow_inside_mean"] - a["heat_flow_inside_mean"]).values
+    largest = diff.flat[int(abs(diff).argmax())]
+    assert "mean heat flow, inside surface" in out and f"{largest:+.4g}" in out
+    assert main(["run", str(tmp_path / "a.toml"), "--archive", str(tmp_path / "r"), "-q"]) == 0
+    (run,) = (tmp_path / "r").glob("*.nc")
+    assert main(["compare", str(fa), str(run)]) == 2
