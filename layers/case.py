@@ -28,6 +28,7 @@ from layers.materials import Material, material_from_table, resolve
 from layers.mesh import GEOMETRIES, LayerSpec, Mesh, MeshRule, build_mesh
 from layers.series import RANGES, Clock, ColumnSpec, Forcing, Series, daily_cycle, read_series
 from layers.units import parse_quantity, parse_temperature
+from layers.solar import Site
 from layers.variation import SweepDim, UncertaintySpec, parse_sweep, parse_uncertainty
 
 BOUNDARY_TYPES = ("film", "temperature", "flux", "adiabatic", "contents")
@@ -47,7 +48,7 @@ MIN_LAYER_THICKNESS = 1e-6
 #: low enough to catch a max_cell written in the wrong unit.
 MAX_CELLS = 20000
 #: The tables and keys of the top level of a case file.
-TOP_LEVEL_KEYS = ("title", "label", "geometry", "materials", "layers", "mesh", "series", "inside", "outside", "time", "sizing", "sweep", "uncertainty")
+TOP_LEVEL_KEYS = ("title", "label", "geometry", "materials", "layers", "mesh", "series", "site", "inside", "outside", "time", "sizing", "sweep", "uncertainty")
 
 
 class _Table:
@@ -119,6 +120,9 @@ class BoundarySpec:
     sky_temperature: Forcing | None = None          # [degC]
     heat_flow_direction: str = "horizontal"         # ISO 6946: up | horizontal | down
     tilt: float = 90.0                              # [deg] 90 = vertical wall, 0 = flat roof
+    solar_irradiance_on: str = "surface"            # surface | horizontal (then transposed, layers.solar)
+    surface_azimuth: float | None = None            # [deg] 0 north, 90 east, 180 south, 270 west
+    albedo: float = 0.2                             # [-] of the ground, for the reflected share
     orientation: str = "horizontal"                 # pipes: horizontal | vertical
     jacket: str | None = None
     contents: str | None = None
@@ -344,7 +348,8 @@ def parse_case(
     # series and cycles
     series, cycles, columns_kind, timezone = _parse_series(top.get("series"), file, base_dir, series_dir)
 
-    forcing_ctx = _ForcingContext(file, series, cycles, columns_kind, timezone)
+    site = _parse_site(_Table(top.get("site"), file, "site")) if top.has("site") else None
+    forcing_ctx = _ForcingContext(file, series, cycles, columns_kind, timezone, site)
     inside = _parse_boundary(top.get("inside", required=True), "inside", geometry, forcing_ctx, pipe_orientation)
     outside = _parse_boundary(top.get("outside", required=True), "outside", geometry, forcing_ctx, pipe_orientation)
     if outside.kind == "contents":
@@ -651,6 +656,7 @@ class _ForcingContext:
     cycles: dict
     kinds: dict[str, str]
     timezone: str
+    site: Site | None = None
 
     def forcing(self, value: Any, kind: str, key: str) -> Forcing:
         """A constant or a ``"series:NAME"`` reference -> Forcing in SI."""
@@ -689,6 +695,69 @@ _BOUNDARY_KEYS = {
     "adiabatic": set(),
     "contents": {"contents", "initial_temperature"},
 }
+
+
+def _parse_site(t: _Table) -> Site:
+    """``[site]``: where the construction stands, for the sun's position."""
+    lat = parse_quantity(t.get("latitude", required=True), "angle", file=t.file, key=t.key("latitude"))
+    lon = parse_quantity(t.get("longitude", required=True), "angle", file=t.file, key=t.key("longitude"))
+    alt = parse_quantity(t.get("altitude", 0.0), "length", file=t.file, key=t.key("altitude"))
+    if not -90 <= lat <= 90:
+        raise t.error("latitude", f"must be from -90 to 90 degrees (north positive), got {lat:g}")
+    if not -180 <= lon <= 180:
+        raise t.error("longitude", f"must be from -180 to 180 degrees (east positive), got {lon:g}")
+    if not -500 <= alt <= 9000:
+        raise t.error("altitude", f"{alt:g} m is not a place on Earth (-500 to 9000 m)")
+    t.finish()
+    return Site(latitude=lat, longitude=lon, altitude=alt)
+
+
+def _transposed(t: _Table, ctx: _ForcingContext, args: dict, forcing) -> Forcing:
+    """The irradiance on the surface from a series of global horizontal irradiance
+    (and, when given, direct normal and diffuse horizontal): sun position,
+    split and transposition by :func:`layers.solar.surface_irradiance`,
+    evaluated once on the series' time stamps."""
+    from layers.solar import DEFAULT_LABEL, LABELS, surface_irradiance
+
+    file = ctx.file
+    if ctx.site is None:
+        raise t.error("solar_irradiance_on", "\"horizontal\" needs a [site] table (latitude, longitude) for the sun's position")
+    ghi = args["solar_irradiance"]
+    times = ghi.times
+    if times is None:
+        raise t.error("solar_irradiance", "with solar_irradiance_on = \"horizontal\" it must be a series (\"series:NAME\") of global horizontal irradiance")
+    azimuth = parse_quantity(t.get("surface_azimuth", required=True), "angle", file=file, key=t.key("surface_azimuth"))
+    if not 0 <= azimuth <= 360:
+        raise t.error("surface_azimuth", f"must be from 0 to 360 degrees (0 north, 90 east, 180 south, 270 west), got {azimuth:g}")
+    albedo = parse_quantity(t.get("albedo", 0.2), "fraction", file=file, key=t.key("albedo"))
+    if not 0 <= albedo <= 1:
+        raise t.error("albedo", f"must be a fraction from 0 to 1, got {albedo:g}")
+    stamp = t.get("irradiance_stamp", DEFAULT_LABEL)
+    if stamp not in LABELS:
+        raise t.error("irradiance_stamp", f"must be one of {', '.join(LABELS)} (where in its interval each value is stamped), got {stamp!r}")
+    dni = forcing("direct_normal_irradiance", "irradiance")
+    dhi = forcing("diffuse_horizontal_irradiance", "irradiance")
+    if (dni is None) != (dhi is None):
+        raise t.error("diffuse_horizontal_irradiance" if dhi is None else "direct_normal_irradiance",
+                      "give direct_normal_irradiance and diffuse_horizontal_irradiance together (or neither: global is split)")
+    import warnings as _warnings
+
+    with _warnings.catch_warnings(record=True) as caught:
+        _warnings.simplefilter("always")
+        try:
+            result = surface_irradiance(
+                times, ctx.site, args["tilt"], azimuth, ghi(times),
+                dni=dni(times) if dni is not None else None, dhi=dhi(times) if dhi is not None else None,
+                albedo=albedo, label=stamp,
+            )
+        except ValueError as exc:
+            raise t.error("solar_irradiance", f"cannot be transposed to the surface ({exc})") from None
+    for w in caught:
+        _warnings.warn(f"{file}: {t.key('solar_irradiance')}: {w.message}", UserWarning, stacklevel=4)
+    args["surface_azimuth"] = float(azimuth)
+    args["albedo"] = float(albedo)
+    return Forcing.from_values(times, result.total, f"irradiance on the surface transposed from {ghi._origin}",
+                               case_file=file, key=t.key("solar_irradiance"))
 
 
 def _parse_boundary(value: Any, side: str, geometry: str, ctx: _ForcingContext, orientation: str) -> BoundarySpec:
@@ -732,12 +801,29 @@ def _parse_boundary(value: Any, side: str, geometry: str, ctx: _ForcingContext, 
         if isinstance(eps, bool) or not isinstance(eps, (int, float)) or not 0 <= eps <= 1:
             raise t.error("emissivity", f"must be a number from 0 to 1, got {eps!r}")
         args["emissivity"] = float(eps)
+        tilt = t.get("tilt", 90.0)
+        if isinstance(tilt, str):
+            tilt = parse_quantity(tilt, "angle", file=file, key=t.key("tilt"))
+        if isinstance(tilt, bool) or not isinstance(tilt, (int, float)) or not 0 <= tilt <= 180:
+            raise t.error("tilt", f"must be an angle from 0 to 180 degrees, got {tilt!r}")
+        args["tilt"] = float(tilt)
         if t.has("solar_absorptance") or t.has("solar_irradiance"):
             a = t.get("solar_absorptance", required=True)
             if isinstance(a, bool) or not isinstance(a, (int, float)) or not 0 <= a <= 1:
                 raise t.error("solar_absorptance", f"must be a number from 0 to 1, got {a!r}")
             args["solar_absorptance"] = float(a)
             args["solar_irradiance"] = forcing("solar_irradiance", "irradiance", required=True)
+            on = t.get("solar_irradiance_on", "surface")
+            if on not in ("surface", "horizontal"):
+                raise t.error("solar_irradiance_on", f"must be \"surface\" or \"horizontal\", got {on!r}")
+            args["solar_irradiance_on"] = on
+            if on == "horizontal":
+                args["solar_irradiance"] = _transposed(t, ctx, args, forcing)
+        for name in ("solar_irradiance_on", "surface_azimuth", "albedo", "irradiance_stamp",
+                     "direct_normal_irradiance", "diffuse_horizontal_irradiance"):
+            if t.has(name) and args.get("solar_irradiance_on") != "horizontal":
+                t.get(name)
+                raise t.error(name, "applies with solar_irradiance and solar_irradiance_on = \"horizontal\"")
         args["wind_speed"] = forcing("wind_speed", "speed")
         args["radiant_temperature"] = forcing("radiant_temperature", "temperature")
         if isinstance(t.data.get("sky_temperature"), str) and t.data["sky_temperature"].strip() == "auto":
@@ -753,12 +839,6 @@ def _parse_boundary(value: Any, side: str, geometry: str, ctx: _ForcingContext, 
         if direction not in ("up", "horizontal", "down"):
             raise t.error("heat_flow_direction", f"must be up, horizontal or down, got {direction!r}")
         args["heat_flow_direction"] = direction
-        tilt = t.get("tilt", 90.0)
-        if isinstance(tilt, str):
-            tilt = parse_quantity(tilt, "angle", file=file, key=t.key("tilt"))
-        if isinstance(tilt, bool) or not isinstance(tilt, (int, float)) or not 0 <= tilt <= 180:
-            raise t.error("tilt", f"must be an angle from 0 to 180 degrees, got {tilt!r}")
-        args["tilt"] = float(tilt)
         jacket = t.get("jacket")
         if jacket is not None:
             from layers.radiation import JACKET_EMISSIVITY
@@ -767,7 +847,8 @@ def _parse_boundary(value: Any, side: str, geometry: str, ctx: _ForcingContext, 
                 raise t.error("jacket", f"unknown jacket {jacket!r}; use one of {', '.join(JACKET_EMISSIVITY)}")
             args["jacket"] = str(jacket)
         if not args.get("auto_film"):
-            unused = [name for name in AUTO_ONLY_KEYS if t.has(name)]
+            unused = [name for name in AUTO_ONLY_KEYS if t.has(name)
+                      and not (name == "tilt" and args.get("solar_irradiance_on") == "horizontal")]
             if unused:
                 import warnings
 

@@ -896,6 +896,25 @@ class Forcing:
         return self
 
     @classmethod
+    def from_values(cls, times: np.ndarray, values: np.ndarray, origin: str, *, case_file: str = "<case>", key: str = "?") -> Forcing:
+        """Values at ``times`` (UTC ``datetime64``, increasing), interpolated
+        linearly in time like a series column (e.g. an irradiance transposed
+        from the series)."""
+        self = cls()
+        times = np.asarray(times).astype("datetime64[s]")
+        self._t0 = times[0]
+        self._x = (times - self._t0) / np.timedelta64(1, "s")
+        self._v = np.asarray(values, dtype=np.float64)
+        self._origin = origin
+        self._case_file, self._key = case_file, key
+        return self
+
+    @property
+    def times(self) -> np.ndarray | None:
+        """The time stamps of a series forcing (UTC), None for a constant or a cycle."""
+        return None if self._x is None else self._t0 + (self._x * 1e6).astype("timedelta64[us]")
+
+    @classmethod
     def from_cycle(cls, func: Callable[[np.ndarray], np.ndarray]) -> Forcing:
         """A generated function of time, e.g. from :func:`daily_cycle`."""
         self = cls()

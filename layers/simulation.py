@@ -297,6 +297,19 @@ def run_record(case: Case, mesh: Mesh, system: System, res: MarchResult, cycles:
             extra[f"sol_air_temperature_{spec.side}"] = t_eq
         air = in_seconds(case, spec.air_temperature)(seconds)
         extra[f"air_temperature_{spec.side}"] = air
+        if spec.solar_irradiance is not None:  # what the surface received, as the run used it
+            transposed = spec.solar_irradiance_on == "horizontal"
+            extra[f"solar_irradiance_{spec.side}"] = (
+                "W m-2",
+                f"solar irradiance on the {spec.side} surface"
+                + (f" (transposed from global horizontal: tilt {spec.tilt:g} deg, azimuth {spec.surface_azimuth:g} deg, albedo {spec.albedo:g})"
+                   if transposed else " (as given)"),
+                np.asarray(in_seconds(case, spec.solar_irradiance)(seconds), dtype=float) * np.ones_like(air),
+            )
+            if transposed:
+                from layers.solar import provenance
+
+                attrs["solar_model"] = provenance()
         if spec.relative_humidity is not None:
             from layers.psychrometrics import dew_point
 

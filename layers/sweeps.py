@@ -44,7 +44,7 @@ from layers.variation import SweepDim, with_values
 MAX_BATCH = 256
 #: Keys of a case whose change alters what drives the boundaries (points that
 #: agree on all of them share one evaluation of the forcing).
-BOUNDARY_KEYS = ("inside", "outside", "series", "time", "geometry")
+BOUNDARY_KEYS = ("inside", "outside", "series", "site", "time", "geometry")
 
 
 @dataclass(frozen=True)
