@@ -123,6 +123,8 @@ class BoundarySpec:
     solar_irradiance_on: str = "surface"            # surface | horizontal (then transposed, layers.solar)
     surface_azimuth: float | None = None            # [deg] 0 north, 90 east, 180 south, 270 west
     albedo: float = 0.2                             # [-] of the ground, for the reflected share
+    irradiance_stamp: str = "end"                   # where in its interval each irradiance value is stamped
+    solar_split: str = ""                           # how direct and diffuse were obtained (transposed only)
     orientation: str = "horizontal"                 # pipes: horizontal | vertical
     jacket: str | None = None
     contents: str | None = None
@@ -706,10 +708,11 @@ def _parse_site(t: _Table) -> Site:
         raise t.error("latitude", f"must be from -90 to 90 degrees (north positive), got {lat:g}")
     if not -180 <= lon <= 180:
         raise t.error("longitude", f"must be from -180 to 180 degrees (east positive), got {lon:g}")
-    if not -500 <= alt <= 9000:
-        raise t.error("altitude", f"{alt:g} m is not a place on Earth (-500 to 9000 m)")
     t.finish()
-    return Site(latitude=lat, longitude=lon, altitude=alt)
+    try:
+        return Site(latitude=lat, longitude=lon, altitude=alt)
+    except ValueError as exc:  # the one place that says what a site may be
+        raise t.error("altitude", str(exc)) from None
 
 
 def _transposed(t: _Table, ctx: _ForcingContext, args: dict, forcing) -> Forcing:
@@ -756,6 +759,8 @@ def _transposed(t: _Table, ctx: _ForcingContext, args: dict, forcing) -> Forcing
         _warnings.warn(f"{file}: {t.key('solar_irradiance')}: {w.message}", UserWarning, stacklevel=4)
     args["surface_azimuth"] = float(azimuth)
     args["albedo"] = float(albedo)
+    args["irradiance_stamp"] = stamp
+    args["solar_split"] = "given direct normal and diffuse horizontal" if dni is not None else "global split (Erbs)"
     return Forcing.from_values(times, result.total, f"irradiance on the surface transposed from {ghi._origin}",
                                case_file=file, key=t.key("solar_irradiance"))
 
@@ -818,9 +823,14 @@ def _parse_boundary(value: Any, side: str, geometry: str, ctx: _ForcingContext, 
                 raise t.error("solar_irradiance_on", f"must be \"surface\" or \"horizontal\", got {on!r}")
             args["solar_irradiance_on"] = on
             if on == "horizontal":
+                if geometry != "planar":
+                    raise t.error("solar_irradiance_on", "\"horizontal\" transposes to a plane (a wall or a roof); for a pipe or "
+                                                         "vessel give the irradiance on its outside surface as the series")
                 args["solar_irradiance"] = _transposed(t, ctx, args, forcing)
-        for name in ("solar_irradiance_on", "surface_azimuth", "albedo", "irradiance_stamp",
-                     "direct_normal_irradiance", "diffuse_horizontal_irradiance"):
+        if t.has("solar_irradiance_on") and "solar_irradiance" not in args:
+            t.get("solar_irradiance_on")
+            raise t.error("solar_irradiance_on", "applies with solar_irradiance (and solar_absorptance)")
+        for name in ("surface_azimuth", "albedo", "irradiance_stamp", "direct_normal_irradiance", "diffuse_horizontal_irradiance"):
             if t.has(name) and args.get("solar_irradiance_on") != "horizontal":
                 t.get(name)
                 raise t.error(name, "applies with solar_irradiance and solar_irradiance_on = \"horizontal\"")

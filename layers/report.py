@@ -141,8 +141,8 @@ def _describe_boundary(spec) -> str:
             film = f"Rs {spec.surface_resistance:.3g} m2K/W (h {1 / spec.surface_resistance if spec.surface_resistance else math.inf:.3g} W/m2K)"
         solar = f", solar absorptance {spec.solar_absorptance:g}" if spec.solar_irradiance is not None else ""
         if spec.solar_irradiance_on == "horizontal":
-            solar += (f", sun transposed from global horizontal to tilt {spec.tilt:g} deg, azimuth {spec.surface_azimuth:g} deg"
-                      f" (albedo {spec.albedo:g})")
+            solar += (f", sun transposed to tilt {spec.tilt:g} deg, azimuth {spec.surface_azimuth:g} deg from a {spec.solar_split}"
+                      f" (albedo {spec.albedo:g}; values stamped at the {spec.irradiance_stamp} of their interval)")
         return f"film, air {air}, {film}{solar}"
     if spec.kind == "temperature":
         t = _constant(spec.surface_temperature)

@@ -151,3 +151,19 @@ def test_a_constant_global_value_cannot_be_transposed(tmp_path):
     with pytest.raises(CaseError) as info:
         parse_case(tomllib.loads(text), text=text, base_dir=tmp_path)
     assert info.value.key == "outside.solar_irradiance" and "must be a series" in info.value.reason
+
+
+def test_surface_written_out_is_the_default_and_a_pipe_is_not_transposed(tmp_path):
+    """solar_irradiance_on = "surface" (the default, written out) reads the
+    series as the surface's own irradiance; a pipe is refused the
+    transposition (it is for planes: walls and roofs)."""
+    _weather(tmp_path)
+    written = _case(tmp_path, 'solar_irradiance_on = "surface"')
+    assert written.outside.solar_irradiance_on == "surface"
+    text = textwrap.dedent(CASE.format(solar=TRANSPOSED.format(azimuth=180, tilt=90))).replace(
+        '[[layers]]', '[geometry]\nkind = "cylinder"\ninner_radius = "50 mm"\n[[layers]]', 1).replace(
+        '[inside]\ntype = "film"\nair_temperature = "20 degC"', '[inside]\ntype = "film"\nair_temperature = "20 degC"\nfilm_coefficient = "10 W/(m2*K)"').replace(
+        'solar_irradiance = "series:ghi"', 'solar_irradiance = "series:ghi"\nfilm_coefficient = "20 W/(m2*K)"')
+    with pytest.raises(CaseError) as info:
+        parse_case(tomllib.loads(text), text=text, base_dir=tmp_path)
+    assert info.value.key == "outside.solar_irradiance_on" and "plane" in info.value.reason
