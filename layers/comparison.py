@@ -337,11 +337,14 @@ class Metric:
     units : str
     values : tuple of float
         One per run, in the order the runs were given.
+    times : tuple of str, optional
+        For a maximum or a minimum, when each run reached it (UTC).
     """
 
     name: str
     units: str
     values: tuple[float, ...]
+    times: tuple[str, ...] = ()
 
     @property
     def differences(self) -> tuple[float, ...]:
@@ -402,8 +405,6 @@ def _mean_over(values: np.ndarray, seconds: np.ndarray) -> float:
     return float(values[0])
 
 
-def _peak(values: np.ndarray) -> float:
-    return float(values[int(np.nanargmax(np.abs(values)))])
 
 
 def _metrics(
@@ -419,38 +420,47 @@ def _metrics(
     runs with contents (over each whole run, NaN where not reached).
     """
     seconds = (combined["time"].values - combined["time"].values[0]) / np.timedelta64(1, "s")
+    stamps = combined["time"].values
     metrics: list[Metric] = []
     largest: list[Metric] = []
 
     def add(name: str, units: str, fn, data: np.ndarray) -> None:
         metrics.append(Metric(name, units, tuple(float(fn(row)) for row in data)))
 
+    def extreme(name: str, units: str, pick, data: np.ndarray) -> None:
+        """A maximum or minimum of each run, with when it was reached."""
+        at = [int(pick(row)) if np.isfinite(row).any() else -1 for row in data]
+        metrics.append(Metric(name, units, tuple(float(row[i]) if i >= 0 else math.nan for row, i in zip(data, at)),
+                              tuple(format_utc(stamps[i]) if i >= 0 else "" for i in at)))
+
     for side in ("outside", "inside"):
         var = f"surface_temperature_{side}"
         data = combined[var].values
-        add(f"{side} surface temperature, max", "degC", np.nanmax, data)
-        add(f"{side} surface temperature, min", "degC", np.nanmin, data)
+        extreme(f"{side} surface temperature, max", "degC", np.nanargmax, data)
+        extreme(f"{side} surface temperature, min", "degC", np.nanargmin, data)
         add(f"{side} surface temperature, mean", "degC", lambda r: _mean_over(r, seconds), data)
     for side in ("inside", "outside"):
         var = f"heat_flow_{side}"
         units = str(combined[var].attrs.get("units", ""))
         data = combined[var].values
+        # a flow that reverses has a largest value each way: both, not one "peak"
+        extreme(f"heat flow, {side} surface, max (outward)", units, np.nanargmax, data)
+        extreme(f"heat flow, {side} surface, min", units, np.nanargmin, data)
         if exact_means and var in exact_means:
             metrics.append(Metric(f"heat flow, {side} surface, mean", units, tuple(exact_means[var])))
         else:
             add(f"heat flow, {side} surface, mean", units, lambda r: _mean_over(r, seconds), data)
-        add(f"heat flow, {side} surface, peak", units, _peak, data)
     if "temperature_interface" in combined and combined.sizes.get("interface", 0):
         materials = combined.attrs.get("comparison_interface_names", "").split("; ")
         for k in range(combined.sizes["interface"]):
             data = combined["temperature_interface"].values[:, k, :]
             where = materials[k] if k < len(materials) and materials[k] else f"interface {k + 1}"
-            add(f"interface {k + 1} ({where}), max", "degC", np.nanmax, data)
-            add(f"interface {k + 1} ({where}), min", "degC", np.nanmin, data)
+            extreme(f"interface {k + 1} ({where}), max", "degC", np.nanargmax, data)
+            extreme(f"interface {k + 1} ({where}), min", "degC", np.nanargmin, data)
     if "contents_temperature" in combined:
-        add("contents temperature, min", "degC", np.nanmin, combined["contents_temperature"].values)
+        extreme("contents temperature, min", "degC", np.nanargmin, combined["contents_temperature"].values)
     if "ice_fraction" in combined:
-        add("ice fraction, max", "1", np.nanmax, combined["ice_fraction"].values)
+        extreme("ice fraction, max", "1", np.nanargmax, combined["ice_fraction"].values)
     for key, name in (("time_to_freezing_h", "contents reach 0 degC after"), ("freeze_time_h", "freeze time (max_ice_fraction)")):
         if run_attrs and any(key in a for a in run_attrs):
             metrics.append(Metric(name, "h", tuple(float(a.get(key, math.nan)) for a in run_attrs)))
@@ -786,6 +796,9 @@ def format_comparison(comparison: Comparison) -> str:
         for i, (v, d) in enumerate(zip(m.values, m.differences)):
             row += f"  {_num(v):>10}" + (f"  {_num(d, signed=True):>10}" if i else "")
         lines.append(row)
+        if m.times:  # when each run reached it
+            lines.append(f"{'':<{name_w}}  {'':<{units_w}}  at " + ", ".join(
+                f"{tag} {t.replace('T', ' ').rstrip('Z')[:16]}" for tag, t in zip(tags, m.times) if t))
     lines.append("")
     lines.append(f"largest difference from {tags[0]} at any compared time")
     for m in c.largest_differences:

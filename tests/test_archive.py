@@ -651,3 +651,29 @@ def test_compare_names_interfaces_by_every_run_s_materials(make_run):
     eps, _ = make_run(wall_text().replace('material = "mineral-wool"', 'material = "eps"'), name="eps")
     names = compare_runs([wool, eps]).dataset.attrs["comparison_interface_names"]
     assert "brick | mineral-wool / brick | eps" in names
+
+
+def test_compare_reports_both_extremes_of_a_reversing_flow_with_their_times(tmp_path, capsys):
+    """A heat flow that reverses has a largest value each way: compare gives the
+    maximum and the minimum (with the time each run reached it) and the mean,
+    not one signed "peak"; the values are those of the run file itself."""
+    import xarray as xr
+
+    from layers.cli import main
+
+    case = Path(__file__).resolve().parents[1] / "cases" / "masonry-wall-hot-week.toml"
+    for archive in ("a", "b"):
+        assert main(["run", str(case), "--archive", str(tmp_path / archive), "-q"]) == 0
+    (a,), (b,) = (tmp_path / "a").glob("*.nc"), (tmp_path / "b").glob("*.nc")
+    capsys.readouterr()
+    assert main(["compare", str(a), str(b)]) == 0
+    out = capsys.readouterr().out
+    with xr.open_dataset(a) as ds:
+        flow = ds["heat_flow_outside"]
+        high, low = float(flow.max()), float(flow.min())
+        when = str(flow["time"].values[int(flow.argmax())])[:16].replace("T", " ")
+    assert low < 0.0 < high  # the flow reverses in this case
+    line = next(row for row in out.splitlines() if row.startswith("heat flow, outside surface, max"))
+    assert f"{high:.4g}" in line and "peak" not in out
+    assert any(row.strip().startswith("at A " + when) for row in out.splitlines())
+    assert any(row.startswith("heat flow, outside surface, min") and f"{low:.4g}" in row for row in out.splitlines())
