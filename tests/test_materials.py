@@ -43,7 +43,7 @@ def library() -> dict[str, Material]:
 
 
 def test_library_loads_with_sources_and_positive_values(library):
-    assert 25 <= len(library) <= 40
+    assert 25 <= len(library) <= 50  # 35 entries, 46 after the 11 of tests/test_materials_added.py
     for name, material in library.items():
         assert material.name == name
         assert material.source.strip(), name
