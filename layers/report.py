@@ -496,13 +496,14 @@ def periodic_report(case: Case, period: float) -> PeriodicReport:
     lines = [
         f"ISO 13786 dynamic thermal characteristics, period {format_duration(period)}  (Rsi {r_si:.3g}, Rse {r_se:.3g} m2K/W)",
         f"  thermal transmittance U            {dc.thermal_transmittance:10.4g} W/(m2*K)",
-        f"  periodic transmittance |Y12|       {abs(dc.periodic_transmittance):10.4g} W/(m2*K)   time shift {dc.time_shift:7.2f} h",
+        f"  periodic transmittance |Y12|       {abs(dc.periodic_transmittance):10.4g} W/(m2*K)   time shift {dc.time_shift:7.2f} h"
+        f"   (lag {dc.time_lag:.2f} h: the inside heat flow follows the outside cycle that much later)",
         f"  decrement factor f                 {dc.decrement_factor:10.4g}",
         f"  internal admittance |Y11|          {abs(dc.internal_admittance):10.4g} W/(m2*K)   time shift {dc.admittance_time_shift_inside:7.2f} h",
         f"  external admittance |Y22|          {abs(dc.external_admittance):10.4g} W/(m2*K)   time shift {dc.admittance_time_shift_outside:7.2f} h",
         f"  areal heat capacity inside  k1     {dc.areal_heat_capacity_inside / 1000:10.4g} kJ/(m2*K)",
         f"  areal heat capacity outside k2     {dc.areal_heat_capacity_outside / 1000:10.4g} kJ/(m2*K)",
-        "  (time shifts follow ISO 13786: negative is a delay)",
+        "  (time shifts follow ISO 13786: negative is a delay; a lag is the same delay as a positive number, as `layers run` reports it)",
         *([note] if (note := auto_film_note(case)) else []),
     ]
     return PeriodicReport(dc, "\n".join(lines))
