@@ -47,6 +47,17 @@ class _Progress:
             self.bar.close()
 
 
+def _say_warnings(args: argparse.Namespace) -> None:
+    """Print the warnings so far (those of reading the case: a key without
+    effect, a swept case run as written) before a long computation, not after it."""
+    for w in getattr(args, "caught", ()):
+        text = str(w.message)
+        if issubclass(w.category, (RuntimeWarning, DeprecationWarning)) or text in args.warned:
+            continue
+        args.warned.add(text)
+        _err(f"warning: {text}")
+
+
 def _print_written(written, extra, cautions: list[str]) -> None:
     """Where a result went (the archive, and -o), then its cautions."""
     print(f"archived: {written}")
@@ -84,6 +95,7 @@ def cmd_run(args: argparse.Namespace) -> int:
     case.record_paths = bool(args.record_paths)
     if (args.workers is not None or args.scheduler) and case.uncertainty is None:
         raise CaseError(case.path, "uncertainty", "--workers and --scheduler run the samples of [uncertainty]; this case has none")
+    _say_warnings(args)
     client, cluster = _client(args)
     progress = _Progress(args.quiet, case.stem)
     # the cell fields go to a scratch file as the march makes them and from there,
@@ -131,6 +143,7 @@ def cmd_size(args: argparse.Namespace) -> int:
         raise CaseError(case.path, "sizing", "is required by 'layers size' (add a [sizing] table)")
     if case.sweep:
         warnings.warn(f"{case.path}: has [[sweep]] tables; `layers size` sizes the case as written", UserWarning, stacklevel=1)
+    _say_warnings(args)
     progress = _Progress(args.quiet, f"{case.stem} sizing")
     try:
         ds = size(case, progress=progress)
@@ -204,6 +217,7 @@ def cmd_sweep(args: argparse.Namespace) -> int:
     if not case.sweep:
         raise CaseError(case.path, "sweep", "is required by 'layers sweep' (add one or more [[sweep]] tables)")
     case.record_paths = bool(args.record_paths)
+    _say_warnings(args)
     client, cluster = _client(args)
     progress = _Progress(args.quiet, f"{case.stem} sweep")
     try:
@@ -275,10 +289,12 @@ def cmd_periodic(args: argparse.Namespace) -> int:
 
 
 def cmd_plot(args: argparse.Namespace) -> int:
-    """``layers plot RUN.nc [-o OUT] [--kind ...] [--times ...] [--variable NAME]``."""
+    """``layers plot RUN.nc [-o OUT] [--kind ...] [--times ...] [--variable NAME] [--from WHEN] [--to WHEN]``."""
     from layers.plots import plot_file
 
-    print(f"written: {plot_file(args.run, args.kind, args.out, getattr(args, 'times', None), getattr(args, 'variable', None))}")
+    written = plot_file(args.run, args.kind, args.out, getattr(args, "times", None), getattr(args, "variable", None),
+                        getattr(args, "start", None), getattr(args, "end", None))
+    print(f"written: {written}")
     return EXIT_OK
 
 
@@ -376,6 +392,8 @@ def build_parser() -> argparse.ArgumentParser:
                     choices=["carpet", "surfaces", "profiles", "sizing", "sweep"])
     pl.add_argument("--times", nargs="*", help="profiles: times to draw (ISO 8601)")
     pl.add_argument("--variable", metavar="NAME", help="sweep: the result per point to map (default heat_flow_inside_mean)")
+    pl.add_argument("--from", dest="start", metavar="WHEN", help="surfaces: first time to draw (ISO 8601, UTC)")
+    pl.add_argument("--to", dest="end", metavar="WHEN", help="surfaces: last time to draw (ISO 8601, UTC)")
     pl.set_defaults(func=cmd_plot)
 
     cp = sub.add_parser("compare", help="compare runs side by side")
@@ -425,13 +443,14 @@ def main(argv: Sequence[str] | None = None) -> int:
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("default")
             refused = False
+            seen: set[str] = set()
+            args.caught, args.warned = caught, seen  # _say_warnings prints those of reading the case before the work
             try:
                 return int(args.func(args))
             except CaseError:
                 refused = True
                 raise
             finally:
-                seen = set()
                 for w in caught:
                     text = str(w.message)
                     # a refusal is one line: the arithmetic warnings that led up to it
