@@ -532,93 +532,394 @@ def plot_carpet(ds: xr.Dataset) -> Any:
     return fig
 
 
-#: The lines of the surfaces plot: (variable, legend label, colour index, dash index, marker, filled).
-#: One code throughout: the marker says the side (circle inside, square
-#: outside, diamond the contents of a pipe), the dash pattern the quantity
-#: (solid surface, dashed air, dotted sol-air, long dash-dot-dot dew point,
-#: dash-dot heat flow), so no two lines differ by colour alone.
+#: Colours of the surfaces plot, one per trace.  Own choice, in families: the
+#: inside in blues and violet (navy surface, sky-blue air, teal sol-air, violet
+#: dew point), the outside in warm colours (brick-red surface, orange air,
+#: magenta sol-air, ochre dew point), the contents grey and the heat flows in
+#: green and purple, so the outside surface, air and sol-air differ in hue and
+#: lightness and not in shade only.
+SURFACE_COLOURS = {
+    "air_temperature_inside": "#5fb0e6",
+    "surface_temperature_inside": "#1d3f73",
+    "sol_air_temperature_inside": "#178a86",
+    "dew_point_inside": "#7a68b0",
+    "surface_temperature_outside": "#8a2f1e",
+    "air_temperature_outside": "#e0902a",
+    "sol_air_temperature_outside": "#c9509a",
+    "dew_point_outside": "#9c7a1c",
+    "contents_temperature": "#6b6b6b",
+    "heat_flow_inside": "#2f8f4e",
+    "heat_flow_outside": "#6a3d9a",
+}
+
+#: The lines of the surfaces plot: (variable, legend label, dash index, marker, filled).
+#: One code throughout: the colour says the trace (:data:`SURFACE_COLOURS`),
+#: the marker the side (circle inside, square outside, diamond the contents
+#: of a pipe), the dash pattern the quantity (solid surface, dashed air,
+#: dotted sol-air, long dash-dot-dot dew point, dash-dot heat flow), so no
+#: two lines differ by colour alone.
 _SURFACE_LINES = (
-    ("air_temperature_inside", "inside air", 0, 1, "o", False),
-    ("surface_temperature_inside", "inside surface", 0, 0, "o", True),
-    ("sol_air_temperature_inside", "inside sol-air", 0, 3, "o", False),
-    ("surface_temperature_outside", "outside surface", 1, 0, "s", True),
-    ("air_temperature_outside", "outside air", 1, 1, "s", False),
-    ("sol_air_temperature_outside", "outside sol-air", 1, 3, "s", False),
-    ("dew_point_inside", "inside dew point", 0, 4, "o", False),
-    ("dew_point_outside", "outside dew point", 1, 4, "s", False),
-    ("contents_temperature", "contents of the bore", 4, 0, "D", True),
+    ("air_temperature_inside", "inside air", 1, "o", False),
+    ("surface_temperature_inside", "inside surface", 0, "o", True),
+    ("sol_air_temperature_inside", "inside sol-air", 3, "o", False),
+    ("surface_temperature_outside", "outside surface", 0, "s", True),
+    ("air_temperature_outside", "outside air", 1, "s", False),
+    ("sol_air_temperature_outside", "outside sol-air", 3, "s", False),
+    ("dew_point_inside", "inside dew point", 4, "o", False),
+    ("dew_point_outside", "outside dew point", 4, "s", False),
+    ("contents_temperature", "contents of the bore", 0, "D", True),
 )
 _FLOW_LINES = (
-    ("heat_flow_inside", "heat flow, inside surface", 2, 2, "^", False),
-    ("heat_flow_outside", "heat flow, outside surface", 3, 4, "v", False),
+    ("heat_flow_inside", "heat flow, inside surface", 2, "^", False),
+    ("heat_flow_outside", "heat flow, outside surface", 4, "v", False),
 )
 
+#: A surfaces plot (the whole run, or the window ``--from`` / ``--to``) that
+#: spans at least this long is drawn as daily bands (shaded from the daily
+#: minimum to the daily maximum, the daily mean as a line) instead of every
+#: sample: an hourly trace of three weeks or more is a solid band at 10 in.
+DAILY_BANDS_FROM = np.timedelta64(21, "D")
+#: A day (UTC) enters the daily bands only with at least this fraction of the
+#: usual number of samples in a day, so a part-day at either end of the run
+#: does not draw a band of a few hours as if it were a day.
+DAY_COVERAGE = 0.5
+#: A heat flow's first samples are off scale when they lie further outside the
+#: axis the rest would get (its range, zero included) than this many times that
+#: axis: a start from a given temperature, or a periodic start that does not
+#: meet the first drive, that would squeeze the rest into a thin line.
+SPIKE_RATIO = 0.5
+#: At most this many leading samples are left out of the heat-flow scale.
+SPIKE_SAMPLES = 3
 
-def _coded_line(colour: int, dash: int, marker: str, filled: bool) -> dict[str, Any]:
+
+def _coded_line(name: str, dash: int, marker: str, filled: bool) -> dict[str, Any]:
+    colour = SURFACE_COLOURS[name]
     return {
-        "color": PALETTE[colour],
+        "color": colour,
         "linestyle": LINESTYLES[dash],
         "marker": marker,
         "markersize": 4.5,
-        "markerfacecolor": PALETTE[colour] if filled else "white",
+        "markerfacecolor": colour if filled else "white",
         "linewidth": 1.6,
     }
 
 
-def plot_surfaces(ds: xr.Dataset) -> Any:
-    """Air and surface temperatures on both sides, and the heat flows, over time.
+def _window_bound(text: str, option: str, source: str) -> np.datetime64:
+    """An ISO 8601 date or time of ``--from`` / ``--to`` as UTC [datetime64 s]."""
+    try:
+        when = dt.datetime.fromisoformat(str(text).strip())
+    except ValueError:
+        raise CaseError(source, option, f"cannot read {text!r} as an ISO 8601 date or time "
+                                        "(e.g. 2026-07-01 or 2026-07-01T06:00, UTC)") from None
+    if when.tzinfo is not None:
+        when = when.astimezone(dt.timezone.utc).replace(tzinfo=None)
+    return np.datetime64(when, "s")
 
-    Temperatures are on the left axis (air, sol-air, surfaces, dew points
-    and the contents of a pipe's bore, each where the run has it); the heat
-    flows through the inside and outside surfaces (positive from inside to
-    outside) on the right axis.
+
+def select_window(ds: xr.Dataset, start: str | None, end: str | None, source: str = "run") -> xr.Dataset:
+    """The part of a run between ``start`` and ``end`` (both kept, UTC).
 
     Parameters
     ----------
     ds : xarray.Dataset
         A run.
+    start, end : str or None
+        ISO 8601 dates or times (``2026-07-01``, ``2026-07-01T06:00``; an
+        offset such as ``+02:00`` is converted to UTC, a time without one is
+        UTC).  None: the run's first (last) output time.
+    source : str
+        The run file, for messages.
+
+    Returns
+    -------
+    xarray.Dataset
+        The run on the output times in the window.
+
+    Raises
+    ------
+    CaseError
+        A bound that cannot be read (key ``--from`` or ``--to``), lies
+        outside the run, or a window that is empty.
+    """
+    if start is None and end is None:
+        return ds
+    stamps = np.asarray(ds["time"].values).astype("datetime64[s]")
+    first, last = stamps[0], stamps[-1]
+    span = f"the run is {np.datetime_as_string(first, unit='m')} to {np.datetime_as_string(last, unit='m')} UTC"
+    lo = _window_bound(start, "--from", source) if start is not None else first
+    hi = _window_bound(end, "--to", source) if end is not None else last
+    if start is not None and lo > last:
+        raise CaseError(source, "--from", f"{start} is after the end of the run; {span}")
+    if end is not None and hi < first:
+        raise CaseError(source, "--to", f"{end} is before the start of the run; {span}")
+    if start is not None and end is not None and hi <= lo:
+        raise CaseError(source, "--to", f"{end} is not after --from {start}; the window is empty")
+    keep = np.flatnonzero((stamps >= lo) & (stamps <= hi))
+    if keep.size < 2:
+        raise CaseError(source, "--from" if start is not None else "--to",
+                        f"the window {np.datetime_as_string(lo, unit='m')} to {np.datetime_as_string(hi, unit='m')} UTC "
+                        f"holds {'no output time' if keep.size == 0 else 'one output time only'}; {span}")
+    return ds.isel(time=slice(int(keep[0]), int(keep[-1]) + 1))
+
+
+@dataclass(frozen=True)
+class DailyBands:
+    """Daily (UTC) extremes and mean of one quantity.
+
+    Attributes
+    ----------
+    day : numpy.ndarray of datetime64
+        Noon of each day drawn (UTC).
+    low, mean, high : numpy.ndarray
+        Daily minimum, mean and maximum [units of the quantity].
+    """
+
+    day: np.ndarray
+    low: np.ndarray
+    mean: np.ndarray
+    high: np.ndarray
+
+
+def daily_bands(time: np.ndarray, values: np.ndarray) -> DailyBands:
+    """Daily minimum, mean and maximum of a series, by UTC day.
+
+    Days with fewer samples than :data:`DAY_COVERAGE` of the usual count (a
+    part-day at either end) are left out; NaN samples are skipped.
+
+    Parameters
+    ----------
+    time : numpy.ndarray of datetime64
+        Sorted output times (UTC).
+    values : numpy.ndarray
+        The series [any unit].
+
+    Returns
+    -------
+    DailyBands
+    """
+    stamps = np.asarray(time).astype("datetime64[s]")
+    values = np.asarray(values, dtype=float)
+    days = stamps.astype("datetime64[D]")
+    starts = np.flatnonzero(np.concatenate(([True], days[1:] != days[:-1])))
+    counts = np.diff(np.concatenate((starts, [days.size])))
+    finite = np.isfinite(values)
+    safe = np.where(finite, values, 0.0)
+    n = np.add.reduceat(finite.astype(int), starts)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mean = np.add.reduceat(safe, starts) / n
+    low = np.fmin.reduceat(np.where(finite, values, np.nan), starts)
+    high = np.fmax.reduceat(np.where(finite, values, np.nan), starts)
+    full = (counts >= DAY_COVERAGE * np.median(counts)) & (n > 0)
+    noon = days[starts] + np.timedelta64(12, "h")
+    return DailyBands(noon[full], low[full], mean[full], high[full])
+
+
+def leading_spike(values: np.ndarray) -> int:
+    """How many of a heat flow's first samples are off scale (0 to :data:`SPIKE_SAMPLES`).
+
+    A first sample is off scale when it lies further outside the axis the
+    samples after the first :data:`SPIKE_SAMPLES` would get (their range with
+    zero, which the heat-flow axis always shows) than :data:`SPIKE_RATIO`
+    times that axis: the jump of a start from a given temperature, or of a
+    periodic start that does not meet the first drive.  The following
+    samples are counted while they are off scale too.
+
+    Parameters
+    ----------
+    values : numpy.ndarray
+        A heat flow [W m-2, W m-1 or W].
+
+    Returns
+    -------
+    int
+    """
+    values = np.asarray(values, dtype=float)
+    rest = values[SPIKE_SAMPLES:]
+    rest = rest[np.isfinite(rest)]
+    if rest.size < 4 * SPIKE_SAMPLES:
+        return 0
+    lo, hi = min(float(rest.min()), 0.0), max(float(rest.max()), 0.0)
+    reach = SPIKE_RATIO * max(hi - lo, 1e-9)
+    count = 0
+    for value in values[:SPIKE_SAMPLES]:
+        if not math.isfinite(value) or lo - reach <= value <= hi + reach:
+            break
+        count += 1
+    return count
+
+
+def _flow_limits(kept: list[np.ndarray]) -> tuple[float, float]:
+    """Axis limits that show every kept heat-flow sample, zero included, with a margin."""
+    joined = np.concatenate([k[np.isfinite(k)] for k in kept] + [np.zeros(1)])
+    lo, hi = float(joined.min()), float(joined.max())
+    pad = 0.06 * (hi - lo) if hi > lo else 1.0
+    return lo - pad, hi + pad
+
+
+def _mark_off_scale(ax, time0: Any, value: float, count: int, units: str, colour: str,
+                    limits: tuple[float, float]) -> None:
+    """An arrow at the top or bottom edge where a heat flow's first sample is off scale, with its value."""
+    above = value > limits[1]
+    edge = 1.0 if above else 0.0
+    shown = f"{value + 0.0:,.0f}" if abs(value) >= 100 else f"{value + 0.0:.3g}"
+    what = "off scale" if count == 1 else f"first {count} samples off scale"
+    text = f"start: {shown} {pretty_units(units)} ({what})"
+    ax.annotate(text, xy=(time0, edge), xycoords=("data", "axes fraction"),
+                xytext=(28, -26 if above else 26), textcoords="offset points", ha="left",
+                va="top" if above else "bottom", fontsize=8, color=colour, annotation_clip=False, zorder=5,
+                bbox={"facecolor": "white", "edgecolor": "none", "alpha": 0.85, "pad": 1.0},
+                arrowprops={"arrowstyle": "-|>", "color": colour, "linewidth": 1.0, "shrinkA": 0, "shrinkB": 0})
+
+
+def plot_surfaces(ds: xr.Dataset, start: str | None = None, end: str | None = None) -> Any:
+    """Air and surface temperatures on both sides, and the heat flows, over time.
+
+    Temperatures (air, sol-air, surfaces, dew points and the contents of a
+    pipe's bore, each where the run has it) and the heat flows through the
+    inside and outside surfaces (positive from inside to outside).  A span
+    shorter than :data:`DAILY_BANDS_FROM` shows every sample, the heat flows
+    on a right-hand axis; a longer one shows daily bands (:func:`daily_bands`:
+    shaded from the daily minimum to the maximum, the mean as a line), the
+    heat flows in a panel of their own below the temperatures.  Heat-flow
+    samples at the start that are far off the rest (:func:`leading_spike`)
+    are left out of the heat-flow scale (and the bands) and marked at the
+    axis edge with their value.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        A run.
+    start, end : str, optional
+        ISO 8601 dates or times (UTC) of a window of the run to draw (see
+        :func:`select_window`); default the whole run.
 
     Returns
     -------
     matplotlib.figure.Figure
+
+    Raises
+    ------
+    CaseError
+        A sweep or sizing Dataset (key ``--kind``), a run without surface
+        temperatures, or a window that cannot be read or holds no output time.
     """
     source = str(ds.encoding.get("source", "run"))
     _refuse_sweep(ds, source, "surfaces")
     if _is_sizing(ds):
         raise CaseError(source, "--kind", "this is a sizing Dataset (dimension thickness); plot it with --kind sizing")
     _need(ds, ("surface_temperature_inside", "surface_temperature_outside"), source)
-    fig, (ax,) = new_figure(ds, "surface temperatures and heat flows")
-    time = np.asarray(ds["time"].values).astype("datetime64[us]").astype(dt.datetime)
+    whole_start = np.asarray(ds["time"].values)[0]
+    ds = select_window(ds, start, end, source)
+    stamps = np.asarray(ds["time"].values).astype("datetime64[us]")
+    time = stamps.astype(dt.datetime)
+    banded = stamps.size > 2 and (stamps[-1] - stamps[0]) >= DAILY_BANDS_FROM and (
+        np.median(np.diff(stamps)) < np.timedelta64(12, "h"))
+    # the start's jump is looked for only where the drawn samples begin with the run's first
+    from_run_start = np.asarray(ds["time"].values)[0] == whole_start
+    flows = [f for f in _FLOW_LINES if f[0] in ds.variables]
+    spikes = {name: leading_spike(ds[name].values) if from_run_start else 0 for name, *_ in flows}
+
+    what = "surface temperatures and heat flows"
+    if start is not None or end is not None:
+        what += (f", {np.datetime_as_string(stamps[0], unit='m').replace('T', ' ')} to "
+                 f"{np.datetime_as_string(stamps[-1], unit='m').replace('T', ' ')} UTC")
+    if banded:
+        what += "; daily bands (UTC): shaded min to max, line the mean"
+    if any(spikes.values()):
+        what += "; first heat-flow sample off scale"
+    if banded and flows:
+        fig, (ax, flow_ax) = new_figure(ds, what, nrows=2, sharex=True)
+        fig.get_layout_engine().set(hspace=0.03)
+        gs = ax.get_subplotspec().get_gridspec()
+        gs.set_height_ratios([2.2, 1.0])
+    else:
+        fig, (ax,) = new_figure(ds, what)
+        flow_ax = None
     every = _markevery(time.size)
-    handles = []
+    handles, labels = [], []
     t_units = None
     for name, label, *code in _SURFACE_LINES:
         if name not in ds.variables:
             continue
         da = ds[name]
         t_units = t_units or _units(da, "degC")
-        (line,) = ax.plot(time, da.values, label=label, markevery=every, **_coded_line(*code))
-        handles.append(line)
-    ax.set_ylabel(axis_label("temperature", t_units or "degC"))
-    flows = [f for f in _FLOW_LINES if f[0] in ds.variables]
-    if flows:
-        right = ax.twinx()
-        right.tick_params(labelsize=8.5)
-        f_units = _units(ds[flows[0][0]])
-        for name, label, *code in flows:
-            kw = _coded_line(*code)
-            kw.update(linewidth=1.3, markersize=4)
-            (line,) = right.plot(time, ds[name].values, label=f"{label} (right axis)", markevery=every, **kw)
+        kw = _coded_line(name, *code)
+        if name.startswith("surface_temperature"):
+            kw["zorder"] = 2.6  # the surfaces, the run's own result, above the drives they follow
+        if banded:
+            handles.append(_draw_band(ax, stamps, np.asarray(da.values, dtype=float), label, kw))
+        else:
+            (line,) = ax.plot(time, da.values, label=label, markevery=every, **kw)
             handles.append(line)
+        labels.append(label)
+    ax.set_ylabel(axis_label("temperature", t_units or "degC"))
+    if flows:
+        f_units = _units(ds[flows[0][0]])
+        if flow_ax is None:
+            right = ax.twinx()
+            right.tick_params(labelsize=8.5)
+            suffix = " (right axis)"
+        else:
+            right = flow_ax
+            suffix = ""
+        kept = []
+        for name, label, *code in flows:
+            kw = _coded_line(name, *code)
+            kw.update(linewidth=1.3, markersize=4)
+            values = np.asarray(ds[name].values, dtype=float)
+            skip = spikes[name]
+            kept.append(values[skip:])
+            if banded:
+                shown = values.copy()
+                shown[:skip] = np.nan  # the start's jump would stretch the first day's band
+                handles.append(_draw_band(right, stamps, shown, f"{label}{suffix}", kw))
+            else:
+                (line,) = right.plot(time, values, label=f"{label}{suffix}", markevery=every, **kw)
+                handles.append(line)
+            labels.append(f"{label}{suffix}")
         right.axhline(0.0, color="#999999", linewidth=0.8, linestyle=(0, (1, 3)))
-        right.set_ylabel(axis_label("heat flow, positive outward", f_units))
-        # keep the temperature lines drawn above the flows' axis background
-        right.set_zorder(ax.get_zorder() - 1)
-        ax.patch.set_visible(False)
-    _time_axis(ax)
-    ax.legend(handles=handles, loc="upper center", bbox_to_anchor=(0.5, -0.11), ncols=min(4, len(handles)),
-              fontsize=8.5, frameon=False)
+        limits = _flow_limits(kept)
+        right.set_ylim(*limits)
+        for name, *_ in flows:
+            if spikes[name]:
+                # on the axes drawn on top (the temperatures' when the flows share their frame), so no line hides it
+                _mark_off_scale(ax if flow_ax is None else right, time[0], float(ds[name].values[0]), spikes[name],
+                                f_units, SURFACE_COLOURS[name], limits)
+        flow_label = axis_label("heat flow, positive outward", f_units)
+        right.set_ylabel(flow_label if flow_ax is None else flow_label.replace(", ", ",\n", 1))
+        if flow_ax is None:
+            # keep the temperature lines drawn above the flows' axis background
+            right.set_zorder(ax.get_zorder() - 1)
+            ax.patch.set_visible(False)
+        else:
+            ax.set_xlabel("")
+    _time_axis(flow_ax if flow_ax is not None else ax)
+    if flow_ax is not None:
+        ax.tick_params(labelbottom=False)
+        ax.set_xlabel("")
+    ax.set_xlim(time[0], time[-1])
+    if banded:
+        # below the panels, inside the figure: the layout keeps it clear of the axes and the caution strip
+        # below the time axis of the lower panel, inside the figure (the layout makes room for it)
+        (flow_ax or ax).legend(handles=handles, labels=labels, loc="upper center", bbox_to_anchor=(0.5, 0.0),
+                               borderaxespad=4.0, ncols=min(4, len(handles)), fontsize=8.5, frameon=False)
+    else:
+        ax.legend(handles=handles, labels=labels, loc="upper center", bbox_to_anchor=(0.5, -0.11), ncols=min(4, len(handles)),
+                  fontsize=8.5, frameon=False)
     return fig
+
+
+def _draw_band(ax, stamps: np.ndarray, values: np.ndarray, label: str, kw: dict[str, Any]) -> Any:
+    """One quantity as daily bands: the min-max band shaded, the mean a coded line; its legend handle."""
+    bands = daily_bands(stamps, values)
+    days = bands.day.astype("datetime64[us]").astype(dt.datetime)
+    # a light fill with a thin edge of its own colour, so each band's reach shows where bands overlap
+    patch = ax.fill_between(days, bands.low, bands.high, facecolor=kw["color"], alpha=0.14, linewidth=0,
+                            label=f"_band {label}", gid="daily band")
+    for edge in (bands.low, bands.high):
+        ax.plot(days, edge, color=kw["color"], linewidth=0.5, alpha=0.7, label="_band edge")
+    (line,) = ax.plot(days, bands.mean, label=label, markevery=_markevery(days.size), **kw)
+    return (patch, line)
 
 
 def plot_comparison(combined: xr.Dataset, labels: list[str]) -> Any:
@@ -1268,11 +1569,14 @@ PLOTTERS = {"carpet": plot_carpet, "surfaces": plot_surfaces, "profiles": plot_p
             "sweep": plot_sweep}
 
 
-def plot(ds: xr.Dataset, kind: str, times: list[str] | None = None, variable: str | None = None) -> Any:
+def plot(ds: xr.Dataset, kind: str, times: list[str] | None = None, variable: str | None = None,
+         start: str | None = None, end: str | None = None) -> Any:
     """The figure of one ``kind`` (``carpet``, ``surfaces``, ``profiles``, ``sizing`` or ``sweep``;
-    ``times`` for profiles, ``variable`` for sweep)."""
+    ``times`` for profiles, ``variable`` for sweep, the window ``start`` / ``end`` for surfaces)."""
     if kind not in PLOTTERS:
         raise ValueError(f"kind must be one of {KINDS}, got {kind!r}")
+    if kind == "surfaces":
+        return plot_surfaces(ds, start, end)
     if kind == "profiles":
         return plot_profiles(ds, times)
     if kind == "sweep":
@@ -1344,7 +1648,7 @@ def open_run(path: str | os.PathLike) -> xr.Dataset:
 
 def plot_file(
     run: str | os.PathLike, kind: str | None = None, out: str | os.PathLike | None = None, times: list[str] | None = None,
-    variable: str | None = None,
+    variable: str | None = None, start: str | None = None, end: str | None = None,
 ) -> Path:
     """Draw one figure of a run, sizing or sweep file and save it, never over a file.
 
@@ -1363,6 +1667,9 @@ def plot_file(
     variable : str, optional
         For ``sweep``: the variable on the sweep dimensions to map (default
         ``heat_flow_inside_mean``).
+    start, end : str, optional
+        For ``surfaces``: ISO 8601 dates or times (UTC) of the window to draw
+        (``--from`` / ``--to``; see :func:`select_window`).
 
     Returns
     -------
@@ -1394,6 +1701,9 @@ def plot_file(
         raise CaseError(str(run), "--kind", f"sweep needs a Dataset from 'layers sweep'; this is {what}")
     if variable is not None and kind != "sweep":
         raise CaseError(str(run), "--variable", "only --kind sweep uses --variable")
+    for option, value in (("--from", start), ("--to", end)):
+        if value is not None and kind != "surfaces":
+            raise CaseError(str(run), option, f"only --kind surfaces uses {option}")
     if kind == "sweep":
         _sweep_figure(ds, variable, str(run))  # a name the map cannot show is refused before any file is named
     target = output_path(run, kind, out)
@@ -1401,7 +1711,9 @@ def plot_file(
         raise CaseError(str(run), "--kind", "this is a sizing Dataset (dimension thickness); use --kind sizing")
     if times and kind != "profiles":
         raise CaseError(str(run), "--times", "only --kind profiles uses --times")
-    fig = plot(ds, kind, times, variable)
+    if kind == "surfaces" and not sweep and not _is_sizing(ds):
+        select_window(ds, start, end, str(run))  # a bad window is refused before the figure is drawn
+    fig = plot(ds, kind, times, variable, start, end)
     try:
         return save_figure(fig, target, {"title": str(ds.attrs.get("title", "")), "caution": _caution(ds)})
     except FileExistsError:
@@ -1412,5 +1724,6 @@ __all__ = [
     "CARPET_CMAP", "DPI", "FIGSIZE", "KINDS", "LINESTYLES", "MARKERS", "PALETTE",
     "LayerBand", "axis_label", "cell_bounds", "is_sweep", "layer_bands", "new_figure", "open_run", "output_path",
     "plot", "plot_carpet", "plot_comparison", "plot_file", "plot_profiles", "plot_sizing", "plot_surfaces", "plot_sweep",
+    "DAILY_BANDS_FROM", "SURFACE_COLOURS", "DailyBands", "daily_bands", "leading_spike", "select_window",
     "pretty_units", "save_figure", "select_times", "sweep_dimensions", "sweep_variables",
 ]
