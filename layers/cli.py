@@ -8,6 +8,7 @@ error.
 from __future__ import annotations
 
 import argparse
+import contextlib
 import os
 import sys
 import warnings
@@ -96,21 +97,17 @@ def cmd_run(args: argparse.Namespace) -> int:
     if (args.workers is not None or args.scheduler) and case.uncertainty is None:
         raise CaseError(case.path, "uncertainty", "--workers and --scheduler run the samples of [uncertainty]; this case has none")
     _say_warnings(args)
-    client, cluster = _client(args)
-    progress = _Progress(args.quiet, case.stem)
     # the cell fields go to a scratch file as the march makes them and from there,
     # block by block, into the archive: memory stays flat however long the run
     sink = None
     try:
-        sink = FieldSink(case.mesh()) if case.time.keep_temperature is not False else None
-        try:
-            ds = run_case(case, progress=progress, field_sink=sink, client=client)
-        finally:
-            progress.close()
-            if client is not None:
-                client.close()
-            if cluster is not None:
-                cluster.close()
+        with _cluster_client(args) as client:
+            progress = _Progress(args.quiet, case.stem)
+            sink = FieldSink(case.mesh()) if case.time.keep_temperature is not False else None
+            try:
+                ds = run_case(case, progress=progress, field_sink=sink, client=client)
+            finally:
+                progress.close()
         import shlex
 
         ds.attrs["command"] = "layers " + shlex.join(args.argv)
@@ -203,6 +200,20 @@ def _client(args: argparse.Namespace):
         raise CaseError("(command line)", "--scheduler", f"cannot reach the scheduler at {args.scheduler!r} ({exc})") from None
 
 
+@contextlib.contextmanager
+def _cluster_client(args: argparse.Namespace):
+    """The dask client of ``--workers`` / ``--scheduler`` (None without them),
+    closed with its local cluster when the block ends."""
+    client, cluster = _client(args)
+    try:
+        yield client
+    finally:
+        if client is not None:
+            client.close()
+        if cluster is not None:
+            cluster.close()
+
+
 def cmd_sweep(args: argparse.Namespace) -> int:
     import shlex
 
@@ -218,16 +229,12 @@ def cmd_sweep(args: argparse.Namespace) -> int:
         raise CaseError(case.path, "sweep", "is required by 'layers sweep' (add one or more [[sweep]] tables)")
     case.record_paths = bool(args.record_paths)
     _say_warnings(args)
-    client, cluster = _client(args)
-    progress = _Progress(args.quiet, f"{case.stem} sweep")
-    try:
-        ds = sweep(case, client=client, progress=progress)
-    finally:
-        progress.close()
-        if client is not None:
-            client.close()
-        if cluster is not None:
-            cluster.close()
+    with _cluster_client(args) as client:
+        progress = _Progress(args.quiet, f"{case.stem} sweep")
+        try:
+            ds = sweep(case, client=client, progress=progress)
+        finally:
+            progress.close()
     ds.attrs["command"] = "layers " + shlex.join(args.argv)
     written = archive(ds, f"{case.stem}-sweep", args.archive)
     extra = write_output(ds, args.out)
