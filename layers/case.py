@@ -155,6 +155,7 @@ class TimePlan:
     scheme: str
     period: float = 86400.0
     keep_temperature: bool | None = None  # the cell field in the result; None: runs yes, sweeps no
+    start_zone: str = ""                  # how start was read: its own offset, the series' time zone, or UTC
 
     @property
     def n_steps(self) -> int:
@@ -920,8 +921,14 @@ def _parse_datetime(value: Any, file: str, key: str, timezone: str) -> np.dateti
 
 def _parse_time(t: _Table, series: Series | None, timezone: str) -> TimePlan:
     file = t.file
+    start_zone = f"the start of the series ({timezone})" if series is not None else "the default start (UTC)"
     if t.has("start"):
         start = _parse_datetime(t.get("start"), file, t.key("start"), timezone)
+        written = t.data["start"]
+        naive = not (isinstance(written, dt.datetime) and written.tzinfo is not None) and not (
+            isinstance(written, str) and re.search(r"(Z|[+-]\d\d:?\d\d)\s*$", written.strip()))
+        start_zone = (f"written without an offset: read in the series' time zone {timezone}" if naive and series is not None
+                      else "written without an offset: read as UTC" if naive else "written with its own offset")
     elif series is not None:
         start = series.time[0].astype("datetime64[s]")
     else:
@@ -981,6 +988,7 @@ def _parse_time(t: _Table, series: Series | None, timezone: str) -> TimePlan:
         scheme=scheme,
         period=period,
         keep_temperature=keep,
+        start_zone=start_zone,
     )
 
 

@@ -113,6 +113,8 @@ def check_report(case: Case) -> str:
         f"({format_duration(plan.duration)}), step {format_duration(plan.step)} x {plan.n_steps}, "
         f"kept every {format_duration(plan.output_every)} ({plan.n_steps // plan.output_stride + 1} records)"
     )
+    if plan.start_zone:
+        lines.append(f"           start: {plan.start_zone}; every time here is UTC (Z)")
     lines.append(f"scheme:    {plan.scheme}; initial state: {plan.initial if isinstance(plan.initial, str) else f'{plan.initial:g} degC'}")
     if case.series is not None:
         filled = {k: v for k, v in case.series.filled.items() if v}
