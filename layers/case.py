@@ -390,6 +390,8 @@ def parse_case(
     uncertainty = parse_uncertainty(top.get("uncertainty"), data, file)
     if sweep and uncertainty is not None:
         raise CaseError(file, "uncertainty", "a case sweeps or samples, not both at once (run the sweep, then sample the chosen design)")
+    if geometry == "planar":  # a pipe's process temperatures may well be 263 to 374 degC
+        _warn_kelvin_looking(data, file)
     sizing = None
     if top.has("sizing"):
         sizing = _parse_sizing(_Table(top.get("sizing"), file, "sizing"), layers, geometry, inside, outside, time, timezone)
@@ -416,6 +418,48 @@ def parse_case(
         uncertainty=uncertainty,
         base_dir=base_dir,
     )
+
+
+#: Bare numbers in this range [degC] look like room or weather temperatures written in kelvin.
+KELVIN_LOOKING = (263.0, 374.0)
+
+
+def _warn_kelvin_looking(data: dict, file: str) -> None:
+    """Warn where a temperature is a bare number that reads like kelvin (e.g.
+    293.15) in a case whose other temperatures are ordinary ones (below 100
+    degC): bare temperatures are degrees Celsius."""
+    found: list[tuple[str, float]] = []   # bare numbers
+    written: list[float] = []             # temperatures written with a unit [degC]
+
+    def walk(node: Any, path: str) -> None:
+        if isinstance(node, dict):
+            for key, value in node.items():
+                walk(value, f"{path}.{key}" if path else str(key))
+        elif isinstance(node, list):
+            for i, value in enumerate(node, start=1):
+                walk(value, f"{path}[{i}]")
+        elif path.endswith("temperature") or path == "time.initial" or (path.startswith("series.cycles.") and path.endswith(".mean")):
+            if isinstance(node, (int, float)) and not isinstance(node, bool):
+                found.append((path, float(node)))
+            elif isinstance(node, str) and not node.strip().startswith("series:"):
+                try:
+                    written.append(parse_temperature(node, file=file, key=path))
+                except CaseError:
+                    pass  # the reader says what is wrong with it
+
+    walk({k: v for k, v in data.items() if k not in ("sweep", "uncertainty", "materials")}, "")
+    looking = [(key, v) for key, v in found if KELVIN_LOOKING[0] <= v <= KELVIN_LOOKING[1]]
+    ordinary = [v for key, v in found if v < 100.0] + [v for v in written if v < 100.0]
+    if looking and ordinary:
+        import warnings
+
+        key, value = looking[0]
+        warnings.warn(
+            f"{file}: {key} = {value:g} is read as {value:g} degC (bare temperatures are degrees Celsius); "
+            f"if you meant kelvin, write \"{value:g} K\"",
+            UserWarning,
+            stacklevel=3,
+        )
 
 
 def _iso(t: np.datetime64) -> str:

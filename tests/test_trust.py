@@ -223,3 +223,38 @@ def test_plot_of_a_comparison_file_is_refused_with_a_hint(tmp_path, capsys):
     capsys.readouterr()
     assert main(["plot", str(both)]) == 2
     assert "layers compare" in capsys.readouterr().err
+
+
+def test_a_bare_temperature_that_reads_like_kelvin_is_warned_about(tmp_path):
+    """A wall whose room air is written 293.15 (kelvin, without the unit) among
+    ordinary temperatures: read as 293.15 degC, as the contract says, with a
+    warning naming the key and the fix; the same number with its unit, or a
+    pipe's process temperature, gives no such warning."""
+    import tomllib
+    import warnings
+
+    from layers.case import parse_case
+
+    wall = """
+    [[layers]]
+    material = "brick"
+    thickness = "200 mm"
+    [inside]
+    type = "film"
+    air_temperature = {inside}
+    [outside]
+    type = "film"
+    air_temperature = "0 degC"
+    [time]
+    duration = "1 d"
+    step = "1 h"
+    """
+    import textwrap
+
+    text = textwrap.dedent(wall.format(inside="293.15"))
+    with pytest.warns(UserWarning, match=r"inside.air_temperature = 293.15 is read as 293.15 degC.*293.15 K"):
+        parse_case(tomllib.loads(text), text=text)
+    text = textwrap.dedent(wall.format(inside='"293.15 K"'))
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        parse_case(tomllib.loads(text), text=text)
