@@ -35,7 +35,7 @@ from layers.case import MAX_RECORD_BYTES, Case, parse_case, read_toml, reusing_s
 from layers.catalogue import SUMMARY_PREFIX, headline_values
 from layers.errors import CaseError
 from layers.formatting import format_utc
-from layers.march import BadConductivity, MarchResult, UnphysicalState
+from layers.march import MarchResult, UnphysicalState
 from layers.results import HEAT_FLOW_UNITS, cf_encoding, utc_now
 from layers.variation import SweepDim, with_values
 
