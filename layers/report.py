@@ -329,7 +329,9 @@ def run_summary(ds: xr.Dataset, case: Case | None = None) -> str:
         # A run that starts from a given temperature has a jump at the surfaces
         # at t = 0 whose flux depends on the mesh; the peak is taken after it.
         first = 1 if _starts_from_a_temperature(ds) and len(q) > 1 else 0
-        peak_i = first + int(np.argmax(np.abs(q[first:])))
+        hi_i = first + int(np.argmax(q[first:]))
+        lo_i = first + int(np.argmin(q[first:]))
+        stamp = ds["time"].values
         lines.append(
             f"  {side:<7} surface  min {lo:7.2f} degC at {t_lo}Z   max {hi:7.2f} degC at {t_hi}Z"
         )
@@ -340,9 +342,11 @@ def run_summary(ds: xr.Dataset, case: Case | None = None) -> str:
             mean = float(total) / float(seconds[-1])
         else:
             mean = float(np.trapezoid(q, seconds) / seconds[-1]) if seconds[-1] > 0 else float(q[0])
+        # positive outward: the maximum is the largest outward flow, the minimum the largest inward one
         lines.append(
-            f"          heat flow mean {mean:9.3g} {flow_units}   peak {q[peak_i]:9.3g} {flow_units}"
-            + (" (of the kept samples after the start)" if first else "")
+            f"          heat flow mean {mean:9.3g} {flow_units}   max {q[hi_i]:.3g} {flow_units} at {np.datetime_as_string(stamp[hi_i], unit='m')}Z"
+            f"   min {q[lo_i]:.3g} {flow_units} at {np.datetime_as_string(stamp[lo_i], unit='m')}Z"
+            + (" (kept samples after the start)" if first else "")
         )
     if "surface_temperature_outside_quantile" in ds:
         n = ds.attrs.get("uncertainty_samples", "?")
