@@ -11,12 +11,16 @@ the judge, and docs/fuzz-findings.md for what the campaign found.
   unmutated small cases (a check of the harness) and a seeded handful of
   mutations, in two parallel subprocesses, in well under a minute.
 * The campaign is much larger (every demo case, both ``check`` and ``run`` for
-  every mutation, a 20 s limit). It is marked ``slow`` and runs only when
-  asked for, because the project's ``slow`` tests are otherwise part of the
-  default suite:
+  every mutation; the ``[[sweep]]`` and ``[uncertainty]`` bases and their
+  mutations with ``check`` and ``sweep``, or ``check``, ``run`` and ``size``;
+  a 20 s limit). It is marked ``slow`` and runs only when asked for, because
+  the project's ``slow`` tests are otherwise part of the default suite:
 
       python -m pytest -q -m slow tests/test_fuzz.py
       (or LAYERS_FUZZ_CAMPAIGN=1 python -m pytest -q tests/test_fuzz.py)
+
+  ``LAYERS_FUZZ_REPORT=FILE.json`` writes every outcome (verdict, command,
+  detail) to a file, for the counts in docs/fuzz-findings.md.
 
 Examples that fail today carry ``xfail(strict=True)`` with their class; once a
 defect is fixed the example passes, the strict mark turns that into a failure,
@@ -39,6 +43,16 @@ DEFAULT_TIMEOUT = 10.0  # seconds per command ("never longer than a few seconds"
 CAMPAIGN_TIMEOUT = 20.0
 SAMPLE_SEED, SAMPLE_SIZE = 11, 12
 CAMPAIGN_SEED, CAMPAIGN_SIZE = 1, 300
+VARIATION_SIZE = 300  # seeded mutations of the sweep and uncertainty bases (campaign only)
+
+#: Sweep and uncertainty examples run by default, with the one command each runs
+#: there (about a second each; the campaign runs every command of each): the
+#: padded cell axis and sol-air NaNs of a sweep file, run and size with samples,
+#: and one refusal.
+DEFAULT_VARIATION = {
+    "base:sweep-pipe-cells": ("sweep",), "base:sweep-weather-sun": ("sweep",), "base:unc-wall-size": ("run",),
+    "base:unc-pipe-size": ("size",), "known:size-sized-layer": ("size",),
+}
 
 #: Known-defect reproductions run by default (the others run in the campaign).
 DEFAULT_KNOWN = {
@@ -72,11 +86,16 @@ def default_sample() -> list[fc.FuzzCase]:
             cases.append(case)
     cases += [c for c in fc.base_cases() if not c.name.startswith("base:demo:")]
     cases += fc.campaign(SAMPLE_SEED, SAMPLE_SIZE)
+    for case in fc.variation_base_cases() + fc.variation_known_cases():
+        if case.name in DEFAULT_VARIATION:
+            case.commands = DEFAULT_VARIATION[case.name]
+            cases.append(case)
     return cases
 
 
 def campaign_cases() -> list[fc.FuzzCase]:
-    return fc.base_cases() + fc.known_cases() + fc.campaign(CAMPAIGN_SEED, CAMPAIGN_SIZE)
+    return (fc.base_cases() + fc.known_cases() + fc.campaign(CAMPAIGN_SEED, CAMPAIGN_SIZE)
+            + fc.variation_base_cases() + fc.variation_known_cases() + fc.variation_campaign(CAMPAIGN_SEED, VARIATION_SIZE))
 
 
 def _params(cases: list[fc.FuzzCase]) -> list:
@@ -101,6 +120,13 @@ class _Lazy:
         if self.outcomes is None:
             workers = int(os.environ.get("LAYERS_FUZZ_WORKERS", "2"))
             self.outcomes = fc.run_many(self.cases, root, self.timeout, workers=workers)
+            if report := os.environ.get("LAYERS_FUZZ_REPORT"):  # every outcome as JSON, for docs/fuzz-findings.md
+                import json
+
+                rows = [{"id": c.id, "description": c.description, "commands": list(c.commands), "verdict": o.verdict,
+                         "command": o.command, "seconds": round(o.seconds, 2), "detail": o.detail}
+                        for c in self.cases for o in [self.outcomes[c.id]]]
+                Path(report).write_text(json.dumps(rows, indent=1), encoding="utf-8")
         return self.outcomes[case.id]
 
 
@@ -165,11 +191,78 @@ def test_judge_flags_unsound_and_bad_messages(tmp_path):
     assert fc.classify(0, "layers: warning: divide by zero encountered in divide\n", [tmp_path / "good.nc"], case, True)[0] == "bad-message"
 
 
+def test_judge_reads_sweep_and_sizing_files(tmp_path):
+    """A sweep file has the sweep dimensions in front; NaN is padding only in
+    ``temperature``/``x`` beyond a point's cells and in a sol-air temperature
+    of a point without sun; a sizing file has no time and no cell field."""
+    import numpy as np
+    import xarray as xr
+
+    case = fc.FuzzCase("judge", '[time]\nstart = "2026-01-01T00:00"\n')
+    nan = np.nan
+    temperature = np.array([[[20.0, 15.0, 10.0], [19.0, 14.0, 9.0]], [[20.0, 12.0, nan], [19.0, 11.0, nan]]])  # (w, time, cell)
+    good = xr.Dataset(
+        {
+            "surface_temperature_outside": (("w", "time"), np.array([[5.0, 6.0], [4.0, 5.0]]), {"units": "degC"}),
+            "surface_temperature_inside": (("w", "time"), np.array([[19.0, 18.0], [19.5, 18.5]]), {"units": "degC"}),
+            "sol_air_temperature_outside": (("w", "time"), np.array([[7.0, 9.0], [nan, nan]]), {"units": "degC"}),
+            "heat_flow_inside": (("w", "time"), np.array([[10.0, 9.0], [8.0, 7.0]]), {"units": "W m-2"}),
+            "temperature": (("w", "time", "cell"), temperature, {"units": "degC"}),
+            "x": (("w", "cell"), np.array([[0.01, 0.03, 0.05], [0.02, 0.06, nan]]), {"units": "m"}),
+        },
+        coords={"time": ("time", [0.0, 3600.0], {"units": "seconds since 2026-01-01T00:00:00"}),
+                "w": ("w", [40.0, 80.0], {"units": "mm"})},
+        attrs={"product": "sweep"},
+    )
+
+    def verdict(ds, name):
+        ds.to_netcdf(tmp_path / name)
+        return fc.classify(0, "", [tmp_path / name], case, True)
+
+    assert verdict(good, "good.nc") == ("sound", "exit 0")
+    no_field = good.drop_vars(["temperature", "x"])
+    assert verdict(no_field, "no-field.nc")[0] == "sound"  # a sweep keeps no cell field unless asked
+    for name, change in [
+        ("surface", lambda d: d["surface_temperature_outside"].values.__setitem__((1, 0), nan)),
+        ("surface-cold", lambda d: d["surface_temperature_inside"].values.__setitem__((0, 1), -280.0)),
+        ("inner-nan", lambda d: d["temperature"].values.__setitem__((0, 1, 1), nan)),
+        ("leading-pad", lambda d: (d["temperature"].values.__setitem__((0, slice(None), 0), nan),
+                                   d["x"].values.__setitem__((0, 0), nan))),
+        ("x-mismatch", lambda d: d["x"].values.__setitem__((0, 2), nan)),
+        ("cell-cold", lambda d: d["temperature"].values.__setitem__((1, 0, 0), -274.0)),
+        ("sol-air-partial", lambda d: d["sol_air_temperature_outside"].values.__setitem__((0, 1), nan)),
+        ("flow", lambda d: d["heat_flow_inside"].values.__setitem__((0, 1), np.inf)),
+        ("coordinate", None),
+    ]:
+        bad = good.copy(deep=True)
+        if change is None:
+            bad = bad.assign_coords(w=("w", [40.0, nan], {"units": "mm"}))
+        else:
+            change(bad)
+        assert verdict(bad, f"{name}.nc")[0] == "unsound", name
+    sizing = xr.Dataset(
+        {"surface_temperature_outside": ("thickness", [30.0, 25.0], {"units": "degC"}),
+         "heat_flow": ("thickness", [40.0, 30.0], {"units": "W m-1"}),
+         "probability_passes": ("thickness", [0.25, 1.0], {"units": "1"})},
+        coords={"thickness": ("thickness", [0.02, 0.04], {"units": "m"})}, attrs={"product": "sizing"})
+    assert verdict(sizing, "sizing.nc")[0] == "sound"
+    sizing["probability_passes"].values[0] = 1.5
+    assert verdict(sizing, "sizing-bad.nc")[0] == "unsound"
+    # size's exit 1 is an answer ("no candidate passes"), not a refusal
+    assert fc._no_candidate_passes("no candidate thickness meets every criterion\n", "layers: warning: x\n")
+    assert not fc._no_candidate_passes("no candidate thickness meets every criterion\n", "layers: case.toml: k: bad\n")
+
+
 def test_mutations_are_seeded_and_varied():
     a, b = fc.campaign(5, 40), fc.campaign(5, 40)
     assert [c.text for c in a] == [c.text for c in b] and [c.files for c in a] == [c.files for c in b]
     assert len({c.description.split(" ")[0] for c in a}) > 10
     assert any(c.text != base.text for c in a for base in fc.base_cases()[:1])
+    v, w = fc.variation_campaign(5, 40), fc.variation_campaign(5, 40)
+    assert [c.text for c in v] == [c.text for c in w] and [c.commands for c in v] == [c.commands for c in w]
+    assert len({c.description.split(" ")[0] for c in v}) > 10
+    assert {"sweep", "run", "size", "check"} <= {cmd for c in v for cmd in c.commands}
+    assert len({c.id for c in fc.variation_campaign(1, 300)}) == 300
 
 
 # --------------------------------------------------------------------------
@@ -196,3 +289,22 @@ CAMPAIGN_CASES = campaign_cases()
 @pytest.mark.parametrize("case", _params(CAMPAIGN_CASES))
 def test_fuzz_campaign(case, campaign_outcomes):
     _assert_trustworthy(campaign_outcomes(case), case)
+
+
+#: One case key under two spellings ("layers.3.thickness", "layers.03.thickness"):
+#: the judge sees a sound file, but the second spelling silently replaces the
+#: first (a sweep coordinate, an input distribution, the sized layer's refusal).
+#: case-file.md promises a refusal ("one table per key"; size refuses a
+#: tolerance on the thickness it sizes).
+ALIASES_REFUSED = ("known:sweep-aliased-keys", "known:uncertainty-aliased-keys", "known:size-sized-layer-alias")
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("name", ALIASES_REFUSED)
+def test_campaign_refuses_one_key_under_two_spellings(name, campaign_outcomes):
+    case = next(c for c in CAMPAIGN_CASES if c.name == name)
+    outcome = campaign_outcomes(case)
+    assert outcome.verdict == "refused", (
+        f"{name}: {outcome.verdict} ({outcome.detail}); the aliased key was accepted and one spelling silently won\n"
+        f"--- case ---\n{case.text[-600:]}"
+    )
