@@ -22,7 +22,7 @@ from typing import Any
 
 import numpy as np
 
-from layers.constants import ISO6946_RSE, ISO6946_RSI_HORIZONTAL
+from layers.constants import ABSOLUTE_ZERO_CELSIUS, ISO6946_RSE, ISO6946_RSI_HORIZONTAL
 from layers.errors import CaseError
 from layers.materials import Material, material_from_table, resolve
 from layers.mesh import GEOMETRIES, LayerSpec, Mesh, MeshRule, build_mesh
@@ -633,6 +633,8 @@ def _read_series_table(value: Any, file: str, base_dir: Path, series_dir: Path |
         amplitude = parse_quantity(c.get("amplitude", required=True), "temperature_difference", file=file, key=c.key("amplitude"))
         if amplitude < 0:
             raise c.error("amplitude", "must be non-negative")
+        if mean - amplitude <= ABSOLUTE_ZERO_CELSIUS:
+            raise c.error("amplitude", f"takes the cycle to {mean - amplitude:.4g} degC, at or below absolute zero")
         peak = c.get("peak_hour", 15)
         if isinstance(peak, bool) or not isinstance(peak, (int, float)) or not 0 <= peak < 24:
             raise c.error("peak_hour", f"must be an hour from 0 to 24, got {peak!r}")

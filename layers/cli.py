@@ -460,9 +460,9 @@ def main(argv: Sequence[str] | None = None) -> int:
             finally:
                 for w in caught:
                     text = str(w.message)
-                    # a refusal is one line: the arithmetic warnings that led up to it
-                    # (overflow, divide by zero) are symptoms of the same bad input
-                    if refused and issubclass(w.category, RuntimeWarning):
+                    # a refusal is one line: the warnings that led up to it (a key without
+                    # effect, overflow) are beside the point of what must be corrected
+                    if refused:
                         continue
                     if text not in seen and not issubclass(w.category, DeprecationWarning):
                         seen.add(text)

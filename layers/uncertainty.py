@@ -72,7 +72,8 @@ def sample_points(case: Case) -> list[Point]:
         for key, values in numbers.items():
             value = float(values[i])
             settings[key] = f"{value:.15g} {units[key]}" if units[key] else value
-        label = f"sample {i + 1} (" + ", ".join(f"{k} = {settings[k]}" for k in settings) + ")"
+        shown = ", ".join(f"{k} = {settings[k]}" for k in list(settings)[:3]) + (f", and {len(settings) - 3} more" if len(settings) > 3 else "")
+        label = f"sample {i + 1} ({shown[:200]})"
         grid.append(Point((i,), settings, label))
     return grid
 

@@ -90,22 +90,28 @@ def _path(key: str) -> list[str]:
     return key.split(".")
 
 
+def said(key: Any) -> str:
+    """A key as a message may quote it: escaped, at most about 60 characters."""
+    text = repr(key)
+    return text if len(text) <= 60 else text[:57] + "...'"
+
+
 def _lookup(data: dict, key: str, file: str, where: str) -> tuple[Any, str | int, Any]:
     """The container holding ``key``'s last part, that part, and its value (None if absent).
 
     A list item is written 1-based (``layers.2.thickness``).  The last part
     may be absent from a table (an optional key); everything before it must exist.
     """
-    if not isinstance(key, str) or not key or any(not part for part in _path(key)):
-        raise CaseError(file, where, f"must be a dotted case key like \"layers.2.thickness\", got {key!r}")
+    if not isinstance(key, str) or not key or any(not part for part in _path(key)) or not key.isprintable() or len(key) > 200:
+        raise CaseError(file, where, f"must be a dotted case key like \"layers.2.thickness\", got {said(key)}")
     node: Any = data
     parts = _path(key)
     for depth, part in enumerate(parts):
         last = depth == len(parts) - 1
         if isinstance(node, list):
-            if not (part.isascii() and part.isdigit()) or not 1 <= int(part) <= len(node):
-                raise CaseError(file, where, f"{key!r}: {'.'.join(parts[:depth]) or 'the case'} is a list of {len(node)}; "
-                                             f"give an item number 1..{len(node)}, not {part!r}")
+            if not (part.isascii() and part.isdigit()) or part != str(int(part)) or not 1 <= int(part) <= len(node):
+                raise CaseError(file, where, f"{said(key)}: {'.'.join(parts[:depth]) or 'the case'} is a list of {len(node)}; "
+                                             f"give an item number 1..{len(node)} written plainly, not {said(part)}")
             index: str | int = int(part) - 1
             if last:
                 return node, index, node[index]
@@ -114,10 +120,10 @@ def _lookup(data: dict, key: str, file: str, where: str) -> tuple[Any, str | int
             if last:
                 return node, part, node.get(part)
             if part not in node:
-                raise CaseError(file, where, f"{key!r}: the case has no {'.'.join(parts[:depth + 1])!r}")
+                raise CaseError(file, where, f"{said(key)}: the case has no {said('.'.join(parts[:depth + 1]))}")
             node = node[part]
         else:
-            raise CaseError(file, where, f"{key!r}: {'.'.join(parts[:depth])!r} is a value, not a table or list")
+            raise CaseError(file, where, f"{said(key)}: {said('.'.join(parts[:depth]))} is a value, not a table or list")
     raise AssertionError("unreachable")
 
 
@@ -125,14 +131,14 @@ def check_key(data: dict, key: str, file: str, where: str) -> Any:
     """Refuse a key that cannot vary; return its current value (None if absent)."""
     head = _path(key)[0] if isinstance(key, str) else ""
     if head in ("sweep", "uncertainty", "title", "label"):
-        raise CaseError(file, where, f"{key!r} cannot vary (it is not part of the physics)")
+        raise CaseError(file, where, f"{said(key)} cannot vary (it is not part of the physics)")
     if head == "series" and _path(key)[-1] in ("file", "path"):
-        raise CaseError(file, where, f"{key!r} cannot vary: a sweep or sample reads the one series file the case names")
+        raise CaseError(file, where, f"{said(key)} cannot vary: a sweep or sample reads the one series file the case names")
     if key in ("time.keep_temperature", "time.output_every", "time.start", "time.end", "time.duration"):
-        raise CaseError(file, where, f"{key!r} cannot vary: every point keeps the same records at the same times")
+        raise CaseError(file, where, f"{said(key)} cannot vary: every point keeps the same records at the same times")
     _, _, value = _lookup(data, key, file, where)
     if isinstance(value, (dict, list)):
-        raise CaseError(file, where, f"{key!r} is a table or list; name one value inside it")
+        raise CaseError(file, where, f"{said(key)} is a table or list; name one value inside it")
     return value
 
 
@@ -208,7 +214,7 @@ def parse_sweep(value: Any, data: dict, file: str) -> tuple[SweepDim, ...]:
         key = table.get("key")
         check_key(data, key, file, f"{where}.key")
         if any(d.key == key for d in dims):
-            raise CaseError(file, f"{where}.key", f"{key!r} is swept by two tables")
+            raise CaseError(file, f"{where}.key", f"{said(key)} is swept by two tables")
         if ("values" in table) == ("range" in table):
             raise CaseError(file, where, "give values = [...] or range = {from, to, count}, one of them")
         if "values" in table:
@@ -292,7 +298,7 @@ def parse_uncertainty(value: Any, data: dict, file: str) -> UncertaintySpec | No
         raise CaseError(file, "uncertainty.vary", "name at least one case key to vary")
     entries = []
     for key, spec in vary.items():
-        where = f"uncertainty.vary.{key}"
+        where = f"uncertainty.vary.{key}" if key.isprintable() and len(key) <= 60 else f"uncertainty.vary[{said(key)}]"
         base = check_key(data, key, file, where)
         spec = _table(spec, file, where)
         _unknown(spec, ("relative_sd", "sd", "low", "high"), file, where)
@@ -312,7 +318,7 @@ def parse_uncertainty(value: Any, data: dict, file: str) -> UncertaintySpec | No
             raise CaseError(file, where, "give sd or relative_sd (normal about the case's value), or low and high (uniform)")
         mean = quantity_parts(base, file, where) if base is not None else None
         if mean is None:
-            raise CaseError(file, where, f"a normal spread needs a number or quantity at {key!r} in the case, found {base!r}")
+            raise CaseError(file, where, f"a normal spread needs a number or quantity at {said(key)} in the case, found {said(base)}")
         if "relative_sd" in spec:
             rel = quantity_parts(spec["relative_sd"], file, f"{where}.relative_sd")
             if rel is None:
