@@ -130,13 +130,6 @@ class ModalSystem:
             pairs.append((forcing, ex.film(forcing, np.zeros(seconds.shape))))
         return pairs[0], pairs[1]
 
-    def drives(self, seconds: np.ndarray) -> tuple[np.ndarray, np.ndarray, tuple, tuple]:
-        """beta_in, beta_out at ``seconds`` [W per reference unit], and the forcing of each side."""
-        f_in, f_out = self.forcing(seconds)
-        u, open_side = _sources(f_in[1], f_out[1], seconds.shape)
-        gain = np.where(open_side, [self.system.area_in, self.system.area_out], [self.g_in, self.g_out])
-        return gain[0] * u[:, 0], gain[1] * u[:, 1], f_in, f_out
-
 
 def _sources(film_in, film_out, shape: tuple) -> tuple[np.ndarray, np.ndarray]:
     """What drives each side of members that share their films: ``u`` (times,
@@ -196,6 +189,29 @@ class BatchResult(NamedTuple):
     final: np.ndarray                   # (B, n), NaN beyond a member's cells
     final_modes: list                   # each member's modal state at the end
     drive_range: np.ndarray             # (B, 2) coldest and hottest temperature met at a boundary [degC]
+
+    def member(self, i: int, system: System, step: float, t0: float = 0.0) -> MarchResult:
+        """Member ``i`` (marching ``system`` in steps of ``step`` [s] from ``t0``
+        [s]) as a :class:`layers.march.MarchResult`, its arrays cut to its own cells."""
+        n = system.mesh.n
+        kept = self.kept_steps.size
+        final = self.final[i, :n]
+        return MarchResult(
+            time=t0 + step * self.kept_steps.astype(float),
+            temperature=self.temperature[i, :, :n] if self.temperature is not None else None,
+            interface_temperature=self.interface_temperature[i],
+            q_in=self.q_in[i], q_out=self.q_out[i],
+            film_in=self.film_in[i] if system.inside.kind == "film" else np.full(kept, math.nan),
+            film_out=self.film_out[i] if system.outside.kind == "film" else np.full(kept, math.nan),
+            t_eq_in=self.t_eq_in[i], t_eq_out=self.t_eq_out[i],
+            surface_in=self.surface_in[i], surface_out=self.surface_out[i],
+            contents_temperature=None, ice_fraction=None,
+            heat_in=float(self.heat_in[i]), heat_out=float(self.heat_out[i]), heat_abs=float(self.heat_abs[i]),
+            stored=self.stored[i], stored_initial=float(self.stored[i, 0]), stored_final=float(final @ system.capacity),
+            final=final, final_enthalpy=0.0, initial_enthalpy=0.0, unconverged_steps=0, max_iterations_used=0,
+            smoothed_steps=0, factorisations=0, drive_range=(float(self.drive_range[i, 0]), float(self.drive_range[i, 1])),
+            scheme="exact",
+        )
 
 
 class ModalBatch:
@@ -552,38 +568,7 @@ def exact_march(
     modal = modal or ModalSystem(system)
     res = ModalBatch([modal], step).run(initial[None, :], n_steps, output_every=output_every, t0=t0, progress=progress,
                                         field_sink=field_sink)
-    kept = res.kept_steps.size
-    temps = res.temperature[0] if res.temperature is not None else None
-    return MarchResult(
-        time=t0 + step * res.kept_steps.astype(float),
-        temperature=temps,
-        interface_temperature=res.interface_temperature[0],
-        q_in=res.q_in[0],
-        q_out=res.q_out[0],
-        film_in=res.film_in[0] if system.inside.kind == "film" else np.full(kept, math.nan),
-        film_out=res.film_out[0] if system.outside.kind == "film" else np.full(kept, math.nan),
-        t_eq_in=res.t_eq_in[0],
-        t_eq_out=res.t_eq_out[0],
-        surface_in=res.surface_in[0],
-        surface_out=res.surface_out[0],
-        contents_temperature=None,
-        ice_fraction=None,
-        heat_in=float(res.heat_in[0]),
-        heat_out=float(res.heat_out[0]),
-        heat_abs=float(res.heat_abs[0]),
-        stored=res.stored[0],
-        stored_initial=float(res.stored[0, 0]),
-        stored_final=float(res.final[0] @ system.capacity),
-        final=res.final[0],
-        final_enthalpy=0.0,
-        initial_enthalpy=0.0,
-        unconverged_steps=0,
-        max_iterations_used=0,
-        smoothed_steps=0,
-        factorisations=0,
-        drive_range=(float(res.drive_range[0, 0]), float(res.drive_range[0, 1])),
-        scheme="exact",
-    )
+    return res.member(0, system, step, t0)
 
 
 def exact_periodic_start(system: System, step: float, steps: int, modal: ModalSystem | None = None) -> np.ndarray:

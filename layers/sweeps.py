@@ -35,7 +35,7 @@ from layers.case import MAX_RECORD_BYTES, Case, parse_case, read_toml, reusing_s
 from layers.catalogue import SUMMARY_PREFIX, headline_values
 from layers.errors import CaseError
 from layers.formatting import format_utc
-from layers.march import MarchResult, UnphysicalState
+from layers.march import UnphysicalState
 from layers.results import HEAT_FLOW_UNITS, cf_encoding, utc_now
 from layers.variation import SweepDim, with_values
 
@@ -215,23 +215,7 @@ def _run_exact(cases: list[Case], groups: list[list[int]]) -> list[dict]:
         raise _MemberError(member, systems[member], exc) from None
     records = []
     for i, (v, mesh, system) in enumerate(zip(cases, meshes, systems)):
-        kept = res.kept_steps.size
-        one = MarchResult(
-            time=plan.step * res.kept_steps.astype(float),
-            temperature=res.temperature[i, :, : mesh.n] if res.temperature is not None else None,
-            interface_temperature=res.interface_temperature[i],
-            q_in=res.q_in[i], q_out=res.q_out[i],
-            film_in=res.film_in[i] if system.inside.kind == "film" else np.full(kept, math.nan),
-            film_out=res.film_out[i] if system.outside.kind == "film" else np.full(kept, math.nan),
-            t_eq_in=res.t_eq_in[i], t_eq_out=res.t_eq_out[i],
-            surface_in=res.surface_in[i], surface_out=res.surface_out[i],
-            contents_temperature=None, ice_fraction=None,
-            heat_in=float(res.heat_in[i]), heat_out=float(res.heat_out[i]), heat_abs=float(res.heat_abs[i]),
-            stored=res.stored[i], stored_initial=float(res.stored[i, 0]), stored_final=float(res.final[i, : mesh.n] @ system.capacity),
-            final=res.final[i, : mesh.n], final_enthalpy=0.0, initial_enthalpy=0.0, unconverged_steps=0, max_iterations_used=0,
-            smoothed_steps=0, factorisations=0, drive_range=(float(res.drive_range[i, 0]), float(res.drive_range[i, 1])),
-            scheme="exact",
-        )
+        one = res.member(i, system, plan.step)
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always")
             record = _slim(run_record(v, mesh, system, one, cycles), v, mesh)
