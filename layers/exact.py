@@ -162,6 +162,36 @@ BLOCK_VALUES = 1 << 22
 CHUNK_VALUES = 1 << 18
 
 
+#: Below this many carried modes per step of a chunk the recurrence runs mode by
+#: mode along time (scipy.signal.lfilter, a compiled loop: about 5 us a call plus
+#: 4 ns a step); above it, step by step over all modes at once (about 1 us a
+#: step plus 1 ns a mode).  Measured on the 2-core machine of docs/benchmarks.md.
+LFILTER_MODES_PER_STEP = 0.15
+
+
+def _recur(zs: np.ndarray, decay: np.ndarray, tmp: np.ndarray) -> None:
+    """z_i = decay z_(i-1) + zs_i in place along the first axis of ``zs`` (steps,
+    members, modes); ``zs[0]`` already holds the first state."""
+    steps = zs.shape[0]
+    carried = np.flatnonzero(decay.ravel() != 0.0)  # padding modes (decay 0) need nothing
+    if steps > 1 and carried.size < LFILTER_MODES_PER_STEP * steps:
+        from scipy.signal import lfilter
+
+        flat = zs.reshape(steps, -1)
+        rates = decay.ravel()
+        for j in carried:
+            flat[:, j] = lfilter(_ONE, (1.0, -rates[j]), flat[:, j])
+        if not np.shares_memory(flat, zs):
+            zs[...] = flat.reshape(zs.shape)
+        return
+    for i in range(1, steps):
+        np.multiply(decay, zs[i - 1], out=tmp)
+        zs[i] += tmp
+
+
+_ONE = (1.0,)
+
+
 class BatchResult(NamedTuple):
     """What :meth:`ModalBatch.run` returns, each with the members in front.
 
@@ -448,9 +478,7 @@ class ModalBatch:
                     for gi, members in enumerate(self.groups):
                         zs[:, members] = (ends_block[gi][c0:c0 + mm] @ self.group_drive[gi]).reshape(mm, members.size, -1)
                 zs[0] += self.decay * z
-                for i in range(1, mm):
-                    np.multiply(self.decay, zs[i - 1], out=step_tmp)
-                    zs[i] += step_tmp
+                _recur(zs, self.decay, step_tmp)
                 by_member = zs.transpose(1, 0, 2)                                  # (B, mm, slow)
                 every = by_member @ self.every_rows                                # (B, mm, 4)
                 ends = every[:, :, :2] + both @ self.end_fast_both[:, :, :2]      # surface cells at each step's end
