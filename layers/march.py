@@ -62,7 +62,7 @@ import numpy as np
 from layers.constants import ABSOLUTE_ZERO_CELSIUS, HIGHEST_PHYSICAL_TEMPERATURE
 from layers.contents import WaterNode
 from layers.errors import ConvergenceWarning
-from layers.exchange import Exchange, thevenin
+from layers.exchange import Exchange, SurfaceFilm, thevenin
 from layers.mesh import Mesh
 
 from layers.schemes import DEFAULT_SCHEME, SCHEMES, Scheme, resolve_scheme
@@ -117,6 +117,95 @@ def _check_physical(state_temperature: np.ndarray, contents: float, time: float,
         raise UnphysicalState(time, low, high, q_in, q_out)
 
 
+def _check_batch(batch: _Batch, temp: np.ndarray, contents: float, time: float, q_in: np.ndarray, q_out: np.ndarray) -> None:
+    """:func:`_check_physical` for every member; the exception's ``member`` says which."""
+    if batch.size == 1:
+        _check_physical(temp, contents, time, float(q_in), float(q_out))
+        return
+    low, high = float(temp.min()), float(temp.max())
+    if low > ABSOLUTE_ZERO_CELSIUS and high < HIGHEST_PHYSICAL_TEMPERATURE:
+        return
+    for i, part in enumerate(batch.slices):
+        try:
+            _check_physical(temp[part], math.nan, time, float(q_in[i]), float(q_out[i]))
+        except UnphysicalState as exc:
+            exc.member = i
+            raise
+
+
+def _all(test) -> bool:
+    """Whether a comparison of one member's numbers (a bool) or of every member's (an array) holds."""
+    return bool(test) if isinstance(test, (bool, np.bool_)) else bool(test.all())
+
+
+class _Batch:
+    """Members marched together as one tridiagonal system: their cells laid end to
+    end, with no conductance between one member's last cell and the next one's
+    first, so that one LAPACK factorisation and solve serve them all and each
+    member's numbers are those it would have alone.  Members share their
+    boundaries' forcing (the exchange models of the first); each keeps its own
+    mesh, areas and diameters.  Contents are marched one member at a time."""
+
+    def __init__(self, systems: list[System]) -> None:
+        if not systems:
+            raise ValueError("an empty batch")
+        if len(systems) > 1 and any(s.water is not None for s in systems):
+            raise ValueError("contents are marched one member at a time")
+        first = systems[0]
+        self.systems, self.size = systems, len(systems)
+        self.inside, self.outside, self.water = first.inside, first.outside, first.water
+        cells = np.array([s.mesh.n for s in systems])
+        ends = np.cumsum(cells)
+        self.start, self.end = ends - cells, ends - 1           # each member's first and last cell
+        self.slices = [slice(int(a), int(b) + 1) for a, b in zip(self.start, self.end)]
+        self.capacity = np.concatenate([s.capacity for s in systems])
+        self.constant_k = all(s.constant_k for s in systems)
+        self.depends_on_temperature = any(s.depends_on_temperature for s in systems)
+        # per-member numbers: plain floats and cell numbers for a batch of one
+        # (the march's common case, whose cost is mostly per-operation), arrays otherwise
+        one = self.size == 1
+        self.area_in, self.area_out, self.diameter_in, self.diameter_out = (
+            float(getattr(first, name)) if one else np.array([getattr(s, name) for s in systems], dtype=float)
+            for name in ("area_in", "area_out", "diameter_in", "diameter_out"))
+        self.first, self.last = (int(self.start[0]), int(self.end[0])) if one else (self.start, self.end)
+        self.ends = np.concatenate([self.start, self.end])      # every surface cell
+        self._junction = np.ones(int(ends[-1]) - 1, dtype=bool)
+        self._junction[self.end[:-1]] = False                   # the faces between members
+        if self.constant_k:
+            self._fixed = (first._k, first._g, first._halves) if one else self._stack([(s._k, s._g, s._halves) for s in systems])
+
+    def _stack(self, parts) -> tuple[np.ndarray, np.ndarray, tuple[np.ndarray, np.ndarray]]:
+        k = np.concatenate([p[0] for p in parts])
+        g = np.zeros(self._junction.size)
+        g[self._junction] = np.concatenate([p[1] for p in parts])
+        halves = (np.array([p[2][0] for p in parts], dtype=float), np.array([p[2][1] for p in parts], dtype=float))
+        return k, g, halves
+
+    def conduction(self, temperature: np.ndarray) -> tuple[np.ndarray, np.ndarray, tuple[np.ndarray, np.ndarray]]:
+        """Cell conductivities, face conductances (0 between members) and each member's two half-cell resistances."""
+        if self.constant_k:
+            return self._fixed
+        if self.size == 1:
+            return self.systems[0].conduction(temperature)
+        parts = []
+        for member, (s, part) in enumerate(zip(self.systems, self.slices)):
+            try:
+                parts.append(s.conduction(temperature[part]))
+            except BadConductivity as exc:
+                exc.member = member
+                raise
+        return self._stack(parts)
+
+    def contents_temperature(self, enthalpy: float) -> float:
+        return self.systems[0].contents_temperature(enthalpy) if self.water is not None else math.nan
+
+    def stored_energy(self, temperature: np.ndarray, enthalpy: float) -> np.ndarray:
+        """Heat stored in each member (and any contents) [J per ref. unit] (members,)."""
+        if self.size == 1:
+            return float(self.capacity @ temperature) + (enthalpy if self.water is not None else 0.0)
+        return np.add.reduceat(self.capacity * temperature, self.start)
+
+
 @dataclass
 class System:
     """What the march integrates: the cells, both boundaries and optional contents.
@@ -168,32 +257,40 @@ class System:
 
 @dataclass
 class _Side:
-    """One boundary's coefficients at an iterate: heat in = G (t_ext - T_cell) + q."""
+    """One boundary's coefficients at an iterate, per member: heat in = G (t_ext - T_cell) + q."""
 
-    conductance: float
-    t_ext: float
-    q: float
-    film: float       # surface coefficient [W m-2 K-1] (NaN where not a film)
-    t_eq: float       # equivalent temperature [degC]
+    conductance: np.ndarray   # (members,)
+    t_ext: np.ndarray
+    q: np.ndarray
+    film: np.ndarray | float  # surface coefficient [W m-2 K-1] (NaN where not a film)
+    t_eq: np.ndarray | float  # equivalent temperature [degC]
 
 
 @dataclass
 class _Coefficients:
     k: np.ndarray
     g: np.ndarray
-    r_in: float
-    r_out: float
+    r_in: np.ndarray
+    r_out: np.ndarray
     inside: _Side
     outside: _Side
 
 
 class _Drive:
-    """One boundary's forcing over a chunk of steps, at every stage fraction."""
+    """One boundary's forcing over a chunk of steps, at every stage fraction,
+    for every member (``area``, ``diameter``: a float for a batch of one, else
+    one per member)."""
 
-    def __init__(self, exchange: Exchange, area: float, diameter: float) -> None:
+    def __init__(self, exchange: Exchange, area, diameter, members: list[Exchange] | None = None) -> None:
         self.exchange, self.area, self.diameter = exchange, area, diameter
         self.dependent = exchange.depends_on_temperature
+        # a pipe's or a vessel's automatic film depends on each member's own diameter
+        # through a table made for it: each member's exchange evaluated on its own
+        self.each = members if (members and len(members) > 1 and self.dependent and exchange.geometry != "planar") else None
         self.is_film = exchange.kind == "film"
+        self.members = np.size(area)
+        self.one = isinstance(area, float)
+        self._zero = 0.0 if self.one else np.zeros(self.members)
 
     def load(self, seconds: np.ndarray) -> None:
         self.use(self.exchange.forcing(seconds), seconds.shape)
@@ -204,38 +301,53 @@ class _Drive:
         if not self.dependent:
             # the exchange does not depend on the surface: reduce it for the whole chunk at once
             surface = np.zeros(shape)
-            film = self.exchange.film(self.forcing, surface, self.diameter)
+            film = self.exchange.film(self.forcing, surface, self.diameter if self.one else self.diameter[0])
             self.h = np.broadcast_to(film.h, shape)
             self.t_eq = np.broadcast_to(film.t_eq, shape)
             self.q = np.broadcast_to(film.q_imposed, shape)
-            theta, resistance = thevenin(self.h, self.t_eq, self.q, self.area)
-            self.theta = np.broadcast_to(theta, shape).tolist()
-            self.resistance = np.broadcast_to(resistance, shape).tolist()
-            self.flows = (self.q * self.area).tolist()
+            area = np.atleast_1d(self.area)
+            theta, resistance = thevenin(self.h[:, None], self.t_eq[:, None], self.q[:, None], area[None, :])
+            theta = np.broadcast_to(theta, shape + (self.members,))
+            resistance = np.broadcast_to(resistance, shape + (self.members,))
+            none = np.isinf(resistance)
+            self.open = bool(none.any())  # no film (a flux or adiabatic side): only the imposed flow
+            if self.open and not none.all():
+                raise ValueError("a boundary keeps its film, or its lack of one, throughout")
+            flows = self.q[:, None] * area[None, :]
+            if self.one:  # plain floats: picked one at a time
+                self.theta, self.resistance, self.flows = theta[:, 0].tolist(), resistance[:, 0].tolist(), flows[:, 0].tolist()
+            else:
+                self.theta, self.resistance, self.flows = theta, resistance, flows
             self.t_eqs = self.t_eq.tolist()
             self.films = self.h.tolist() if self.is_film else None
 
-    def at(self, i: int, t_surface: float, r_half: float, contents: float = math.nan) -> _Side:
+    def at(self, i: int, t_surface, r_half, contents: float = math.nan) -> _Side:
         if not self.dependent and self.exchange.kind != "contents":
             film = self.films[i] if self.films is not None else math.nan
-            resistance = self.resistance[i]
-            if resistance == math.inf:  # no film: only the imposed flow
-                return _Side(0.0, 0.0, self.flows[i], film, self.t_eqs[i])
-            return _Side(1.0 / (resistance + r_half), self.theta[i], 0.0, film, self.t_eqs[i])
+            if self.open:
+                return _Side(self._zero, self._zero, self.flows[i], film, self.t_eqs[i])
+            return _Side(1.0 / (self.resistance[i] + r_half), self.theta[i], self._zero, film, self.t_eqs[i])
         if self.dependent:
             if i != self._index:  # the forcing of one stage, picked once for all its iterations
                 self._index, self._values = i, {name: float(values[i]) for name, values in self.forcing.items()}
-            film = self.exchange.film(self._values, t_surface, self.diameter)
-            h, t_eq, q = float(film.h), float(film.t_eq), float(film.q_imposed)
+            if self.each is not None:
+                films = [ex.film(self._values, t, d) for ex, t, d in zip(self.each, t_surface, self.diameter)]
+                film = SurfaceFilm(*(np.array([float(getattr(f, name)) for f in films]) for name in ("h", "t_eq", "q_imposed")))
+            else:
+                film = self.exchange.film(self._values, t_surface, self.diameter)
+            if self.one:
+                h, t_eq, q = float(film.h), float(film.t_eq), float(film.q_imposed)
+            else:
+                h, t_eq, q = (np.broadcast_to(v, (self.members,)) for v in (film.h, film.t_eq, film.q_imposed))
         else:
             h, t_eq, q = float(self.h[i]), float(self.t_eq[i]), float(self.q[i])
         if self.exchange.kind == "contents":
             t_eq = contents
-        film = h if self.is_film else math.nan
+        shown = h if self.is_film else math.nan
         theta, resistance = thevenin(h, t_eq, q, self.area)
-        if math.isinf(resistance):  # no film: only the imposed flow
-            return _Side(0.0, 0.0, q * self.area, film, t_eq)
-        return _Side(1.0 / (resistance + r_half), theta, 0.0, film, t_eq)
+        if (math.isinf(resistance) if self.one else np.isinf(resistance).all()):  # no film: only the imposed flow
+            return _Side(self._zero, self._zero, q * self.area, shown, t_eq)
+        return _Side(1.0 / (resistance + r_half), theta, self._zero, shown, t_eq)
 
 
 class _Factor:
@@ -307,65 +419,67 @@ class MarchResult:
 
 
 class _Stepper:
-    """The stage solver and the state it carries between stages."""
+    """The stage solver and the state it carries between stages, for a batch of
+    members (:class:`_Batch`; a single construction is a batch of one)."""
 
-    def __init__(self, system: System, scheme: Scheme) -> None:
-        self.s = system
+    def __init__(self, system: System | _Batch, scheme: Scheme) -> None:
+        batch = system if isinstance(system, _Batch) else _Batch([system])
+        self.s = batch
         self.scheme = scheme
-        self.drive_in = _Drive(system.inside, system.area_in, system.diameter_in)
-        self.drive_out = _Drive(system.outside, system.area_out, system.diameter_out)
+        self.first, self.last = batch.first, batch.last
+        self.drive_in = _Drive(batch.inside, batch.area_in, batch.diameter_in, [s.inside for s in batch.systems])
+        self.drive_out = _Drive(batch.outside, batch.area_out, batch.diameter_out, [s.outside for s in batch.systems])
         self.factors: dict[float, _Factor] = {}
         self.factorisations = 0
         self.unconverged = 0
         self.max_iter = 0
-        self.fixed_matrix = not system.depends_on_temperature
-        if system.constant_k:
+        self.fixed_matrix = not batch.depends_on_temperature
+        if batch.constant_k:
             # the interior of K never changes: only the two boundary conductances can
-            g = system._g
-            self.k_interior = np.zeros(system.capacity.size)
+            g = batch.conduction(None)[1]
+            self.k_interior = np.zeros(batch.capacity.size)
             self.k_interior[:-1] += g
             self.k_interior[1:] += g
 
     # -------------------------------------------------------------- coefficients
-    def coefficients(self, temp: np.ndarray, tw: float, surfaces: tuple[float, float], i: int) -> _Coefficients:
+    def coefficients(self, temp: np.ndarray, tw: float, surfaces: tuple[np.ndarray, np.ndarray], i: int) -> _Coefficients:
         k, g, (r_in, r_out) = self.s.conduction(temp)
         inside = self.drive_in.at(i, surfaces[0], r_in, tw)
         outside = self.drive_out.at(i, surfaces[1], r_out)
         return _Coefficients(k, g, r_in, r_out, inside, outside)
 
-    def net_heat(self, temp: np.ndarray, tw: float, c: _Coefficients) -> tuple[np.ndarray, float, float, float]:
-        """F(T): net heat into each cell and into the contents; boundary heat in (inside, outside)."""
+    def net_heat(self, temp: np.ndarray, tw: float, c: _Coefficients) -> tuple[np.ndarray, float, np.ndarray, np.ndarray]:
+        """F(T): net heat into each cell and into the contents; boundary heat in (inside, outside), per member."""
         q_in, q_out = self.boundary_heat(temp, c)
         flow = c.g * (temp[:-1] - temp[1:])
         f = np.empty_like(temp)
         f[:-1] = -flow
         f[-1] = 0.0
         f[1:] += flow
-        f[0] += q_in
-        f[-1] += q_out
-        return f, (-q_in if self.s.water is not None else 0.0), q_in, q_out
+        f[self.first] += q_in
+        f[self.last] += q_out
+        return f, (-float(q_in) if self.s.water is not None else 0.0), q_in, q_out
 
-    @staticmethod
-    def boundary_heat(temp: np.ndarray, c: _Coefficients) -> tuple[float, float]:
-        """Heat into the construction through the inside and the outside surface [W per reference unit]."""
+    def boundary_heat(self, temp: np.ndarray, c: _Coefficients) -> tuple[np.ndarray, np.ndarray]:
+        """Heat into each member through its inside and its outside surface [W per reference unit]."""
         i, o = c.inside, c.outside
-        return i.conductance * (i.t_ext - float(temp[0])) + i.q, o.conductance * (o.t_ext - float(temp[-1])) + o.q
+        return i.conductance * (i.t_ext - temp[self.first]) + i.q, o.conductance * (o.t_ext - temp[self.last]) + o.q
 
-    @staticmethod
-    def surfaces(temp: np.ndarray, c: _Coefficients, q_in: float, q_out: float) -> tuple[float, float]:
-        return float(temp[0] + q_in * c.r_in), float(temp[-1] + q_out * c.r_out)
+    def surfaces(self, temp: np.ndarray, c: _Coefficients, q_in: np.ndarray, q_out: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        return temp[self.first] + q_in * c.r_in, temp[self.last] + q_out * c.r_out
 
     def _factor(self, a: float, c: _Coefficients) -> _Factor:
         cached = self.factors.get(a)
         if cached is not None and self.fixed_matrix:
             return cached
         g_in, g_out = c.inside.conductance, c.outside.conductance
+        first, last = self.first, self.last
         if cached is not None and self.s.constant_k:
             # only the boundary conductances move: compare them on the diagonal
-            base_in = cached.diag[0] - a * cached.gw  # type: ignore[attr-defined]
-            base_out = cached.diag[-1] - a * cached.g_out  # type: ignore[attr-defined]
-            if (abs(a * (g_in - cached.gw)) <= REFACTOR_TOLERANCE * (base_in + a * cached.gw)  # type: ignore[attr-defined]
-                    and abs(a * (g_out - cached.g_out)) <= REFACTOR_TOLERANCE * (base_out + a * cached.g_out)):  # type: ignore[attr-defined]
+            base_in = cached.diag[first] - a * cached.gw  # type: ignore[attr-defined]
+            base_out = cached.diag[last] - a * cached.g_out  # type: ignore[attr-defined]
+            if (_all(abs(a * (g_in - cached.gw)) <= REFACTOR_TOLERANCE * (base_in + a * cached.gw))  # type: ignore[attr-defined]
+                    and _all(abs(a * (g_out - cached.g_out)) <= REFACTOR_TOLERANCE * (base_out + a * cached.g_out))):  # type: ignore[attr-defined]
                 return cached
         if self.s.constant_k:
             d = self.k_interior.copy()
@@ -373,8 +487,8 @@ class _Stepper:
             d = np.zeros(self.s.capacity.size)
             d[:-1] += c.g
             d[1:] += c.g
-        d[0] += g_in
-        d[-1] += g_out
+        d[first] += g_in
+        d[last] += g_out
         diag = self.s.capacity + a * d
         off = -a * c.g
         if cached is not None and not self.s.constant_k and cached.close_to(diag, off):
@@ -386,14 +500,14 @@ class _Stepper:
         self.factorisations += 1
         return factor
 
-    def initial_coefficients(self, temp: np.ndarray, enthalpy: float, i: int) -> tuple[_Coefficients, tuple[float, float]]:
+    def initial_coefficients(self, temp: np.ndarray, enthalpy: float, i: int) -> tuple[_Coefficients, tuple[np.ndarray, np.ndarray]]:
         """Coefficients at the initial state, with surface temperatures iterated to consistency."""
         tw = self.s.contents_temperature(enthalpy)
-        surfaces = (float(temp[0]), float(temp[-1]))
+        surfaces = (temp[self.first], temp[self.last])
         for _ in range(MAX_ITERATIONS):
             c = self.coefficients(temp, tw, surfaces, i)
             new = self.surfaces(temp, c, *self.boundary_heat(temp, c))
-            done = max(abs(new[0] - surfaces[0]), abs(new[1] - surfaces[1])) < TOLERANCE
+            done = max(float(np.max(np.abs(new[0] - surfaces[0]))), float(np.max(np.abs(new[1] - surfaces[1])))) < TOLERANCE
             surfaces = new
             if done or not self.s.depends_on_temperature:
                 break
@@ -405,8 +519,8 @@ class _Stepper:
         temp = rhs  # only its size and the conduction matter for a fixed matrix
         c = self.coefficients(temp, math.nan, surfaces, i)
         b = rhs.copy()
-        b[0] += a * (c.inside.conductance * c.inside.t_ext + c.inside.q)
-        b[-1] += a * (c.outside.conductance * c.outside.t_ext + c.outside.q)
+        b[self.first] += a * (c.inside.conductance * c.inside.t_ext + c.inside.q)
+        b[self.last] += a * (c.outside.conductance * c.outside.t_ext + c.outside.q)
         new_t = self._factor(a, c).solve(b)
         q_in, q_out = self.boundary_heat(new_t, c)
         self.max_iter = max(self.max_iter, 1)
@@ -419,6 +533,7 @@ class _Stepper:
         if self.fixed_matrix and water is None:
             return self._linear_stage(rhs, a, i, surfaces, h_w)
         cap = self.s.capacity
+        first, last = self.first, self.last
         tw = float(water.state(h_w)[0]) if water is not None else math.nan
         for iteration in range(1, MAX_ITERATIONS + 1):
             c = self.coefficients(temp, tw, surfaces, i)
@@ -428,8 +543,8 @@ class _Stepper:
             delta = factor.solve(residual)
             if water is None:
                 new_t, new_h, new_tw = temp + delta, h_w, tw
-            else:
-                gw, gw_f = c.inside.conductance, factor.gw  # type: ignore[attr-defined]
+            else:  # a batch of one
+                gw, gw_f = float(c.inside.conductance), float(factor.gw)  # type: ignore[attr-defined]
                 if factor.unit_response is None:
                     unit = np.zeros(temp.size)
                     unit[0] = a * gw_f
@@ -447,8 +562,8 @@ class _Stepper:
             # the heat that crossed each boundary in this solve differs from
             # q(T_new) by (G - G_factorised) times the change, and the tally
             # takes that, so the energy balance closes at round-off.
-            chord_in = (c.inside.conductance - factor.gw) * (new_t[0] - temp[0])  # type: ignore[attr-defined]
-            chord_out = (c.outside.conductance - factor.g_out) * (new_t[-1] - temp[-1])  # type: ignore[attr-defined]
+            chord_in = (c.inside.conductance - factor.gw) * (new_t[first] - temp[first])  # type: ignore[attr-defined]
+            chord_out = (c.outside.conductance - factor.g_out) * (new_t[last] - temp[last])  # type: ignore[attr-defined]
             temp, h_w, tw = new_t, new_h, new_tw
             if water is not None:
                 c.inside.t_ext = tw
@@ -553,39 +668,44 @@ class _State:
 
 
 class _Records:
-    """The arrays kept at the output times."""
+    """The arrays kept at the output times, (kept, members) or (kept, cells of all members)."""
 
     NAMES = ("q_in", "q_out", "film_in", "film_out", "teq_in", "teq_out", "ts_in", "ts_out", "tw", "ice", "stored")
 
     #: Rows of cell fields held before they go to a field sink.
     SINK_BLOCK = 256
 
-    def __init__(self, system: System, n_out: int, sink=None) -> None:
-        self.system = system
+    def __init__(self, batch: _Batch, n_out: int, sink=None) -> None:
+        self.batch = batch
         self.sink = sink  # where kept cell fields go (``sink.write(rows)``) instead of memory
+        if sink is not None and batch.size != 1:
+            raise ValueError("a field sink takes the fields of a batch of one")
         rows = n_out if sink is None else min(n_out, self.SINK_BLOCK)
-        self.temperature = np.empty((rows, system.capacity.size))
-        self.faces = np.empty((n_out, system.mesh.interfaces.size))
-        self.values = {name: np.empty(n_out) for name in self.NAMES}
+        self.temperature = np.empty((rows, batch.capacity.size))
+        self.faces = [np.empty((n_out, s.mesh.interfaces.size)) for s in batch.systems]
+        shape = (n_out,) if batch.size == 1 else (n_out, batch.size)
+        self.values = {name: np.empty(shape) for name in self.NAMES}
         self.count = 0
         self.flushed = 0  # rows already given to the sink
 
-    def add(self, state: _State, q_in: float, q_out: float) -> None:
+    def add(self, state: _State, q_in: np.ndarray, q_out: np.ndarray) -> None:
         """Keep a state, with the boundary flows [W per ref. unit] the scheme took."""
-        j, v, c, water = self.count, self.values, state.coefficients, self.system.water
+        j, v, c, batch = self.count, self.values, state.coefficients, self.batch
         if self.sink is not None and j - self.flushed == self.temperature.shape[0]:
             self._flush()
         self.temperature[j - self.flushed] = state.temperature
-        if not self.system.constant_k:  # else all at once in finish()
-            self.faces[j] = self.system.mesh.interface_temperatures(state.temperature, c.k, c.g, q_in, q_out)
+        if not batch.constant_k:  # else all at once in finish()
+            for m, (system, part) in enumerate(zip(batch.systems, batch.slices)):
+                self.faces[m][j] = system.mesh.interface_temperatures(state.temperature[part], c.k[part], c.g[batch.start[m]:batch.end[m]],
+                                                                      float(np.atleast_1d(q_in)[m]), float(np.atleast_1d(q_out)[m]))
         v["q_in"][j], v["q_out"][j] = q_in, q_out
         v["film_in"][j], v["film_out"][j] = c.inside.film, c.outside.film
         v["teq_in"][j], v["teq_out"][j] = c.inside.t_eq, c.outside.t_eq
         v["ts_in"][j], v["ts_out"][j] = state.surfaces
-        if water is not None:
-            t_w, ice = water.state(state.enthalpy)
+        if batch.water is not None:
+            t_w, ice = batch.water.state(state.enthalpy)
             v["tw"][j], v["ice"][j] = float(t_w), float(ice)
-        v["stored"][j] = self.system.stored_energy(state.temperature, state.enthalpy)
+        v["stored"][j] = batch.stored_energy(state.temperature, state.enthalpy)
         self.count += 1
 
     def _flush(self) -> None:
@@ -597,12 +717,19 @@ class _Records:
 
     def _faces(self, start: int, stop: int) -> np.ndarray:
         rows = self.temperature[: stop - start]
-        system = self.system
-        if system.constant_k and stop > start:
-            k, g, _ = system.conduction(rows[0])
+        batch = self.batch
+        if batch.constant_k and stop > start:
             span = slice(start, stop)
-            self.faces[span] = system.mesh.interface_temperatures(rows, k, g, self.values["q_in"][span], self.values["q_out"][span])
+            for m, (system, part) in enumerate(zip(batch.systems, batch.slices)):
+                k, g, _ = system.conduction(rows[0, part])
+                self.faces[m][span] = system.mesh.interface_temperatures(rows[:, part], k, g, self.column("q_in", m)[span],
+                                                                         self.column("q_out", m)[span])
         return rows
+
+    def column(self, name: str, member: int) -> np.ndarray:
+        """A kept value of one member at every kept state."""
+        values = self.values[name]
+        return values if values.ndim == 1 else values[:, member]
 
     def finish(self) -> None:
         """Layer-face temperatures of every kept state, in one pass where k is
@@ -753,24 +880,71 @@ def march(
         the march makes them, so that memory does not grow with the run
         (:class:`layers.results.FieldSink`); the result's ``temperature`` is then None.
     """
-    st = _Stepper(system, scheme if isinstance(scheme, Scheme) else resolve_scheme(scheme))
-    water, h = system.water, step
+    return march_batch([system], [initial], step, n_steps, output_every=output_every, scheme=scheme, t0=t0,
+                       initial_water=initial_water, smooth_start=smooth_start, ice_target=ice_target, progress=progress,
+                       field_sink=field_sink)[0]
+
+
+def march_batch(
+    systems: list[System],
+    initials: list[np.ndarray],
+    step: float,
+    n_steps: int,
+    *,
+    output_every: int = 1,
+    scheme: str | Scheme = DEFAULT_SCHEME,
+    t0: float = 0.0,
+    initial_water: float | None = None,
+    smooth_start: bool = False,
+    ice_target: float = 0.25,
+    progress: Callable[[int], None] | None = None,
+    field_sink=None,
+) -> list[MarchResult]:
+    """March several constructions together (see :func:`march` for the arguments):
+    members that share their boundaries' forcing (the exchange models of the
+    first are evaluated, with each member's own areas, diameters and surface
+    temperatures), cell counts free, one member at most with contents.  They
+    are one tridiagonal system with no coupling between members, so every
+    factorisation and solve is one LAPACK call for all of them; a stage
+    iterates until every member has converged.
+
+    Raises
+    ------
+    UnphysicalState
+        With ``member``: the index of the member that left the physical range.
+    """
+    batch = _Batch(list(systems))
+    st = _Stepper(batch, scheme if isinstance(scheme, Scheme) else resolve_scheme(scheme))
+    water, h = batch.water, step
     forcing = _Forcing(st, t0, h, n_steps, smooth_start)
     forcing.load(0)
-    temp = np.array(initial, dtype=float)
+    temp = np.concatenate([np.asarray(x, dtype=float) for x in initials])
+    if temp.size != batch.capacity.size:
+        raise ValueError("each member's initial state has its own number of cells")
     enthalpy = water.enthalpy(initial_water) if water is not None else 0.0
     c, surfaces = st.initial_coefficients(temp, enthalpy, forcing.index(0, 0.0))
     state = _settled_state(st, temp, enthalpy, c, surfaces)
-    _check_physical(temp, system.contents_temperature(enthalpy), t0, state.q_in, state.q_out)
+    _check_batch(batch, temp, batch.contents_temperature(enthalpy), t0, state.q_in, state.q_out)
     # every output_every-th state, and the last one (where output_every does not divide the run)
     kept = n_steps // output_every + 1 + (1 if n_steps % output_every else 0)
-    records = _Records(system, kept, field_sink)
+    records = _Records(batch, kept, field_sink)
     records.add(state, state.q_in, state.q_out)
     freeze = _FreezeWatch(water, enthalpy, t0, ice_target)
-    heat_in = heat_out = heat_abs = 0.0
+    # heat through each surface over the run and its absolute sum (floats for a batch of one;
+    # three separate arrays otherwise, added to in place)
+    heat_in, heat_out, heat_abs = (0.0, 0.0, 0.0) if batch.size == 1 else (np.zeros(batch.size), np.zeros(batch.size), np.zeros(batch.size))
     smoothed = 0
     previous = None
     report = max(1, n_steps // 200)
+    if batch.size == 1:
+        first, last = batch.first, batch.last
+
+        def sound(t: np.ndarray) -> bool:
+            return ABSOLUTE_ZERO_CELSIUS < t[first] < HIGHEST_PHYSICAL_TEMPERATURE and ABSOLUTE_ZERO_CELSIUS < t[last] < HIGHEST_PHYSICAL_TEMPERATURE
+    else:
+        def sound(t: np.ndarray) -> bool:
+            ends = t[batch.ends]
+            return ends.min() > ABSOLUTE_ZERO_CELSIUS and ends.max() < HIGHEST_PHYSICAL_TEMPERATURE
     for k in range(n_steps):
         if forcing.smooth(k):
             smoothed += 1
@@ -781,13 +955,11 @@ def march(
         previous = state.temperature
         freeze.update(t0 + k * h, h, state.enthalpy, enthalpy)
         state = _settled_state(st, temp, enthalpy, c, surfaces)
-        # Every step the two surface cells, where a diffusion problem takes its
+        # Every step the surface cells, where a diffusion problem takes its
         # extremes beyond those of its start (maximum principle); every 64 steps
         # and at every kept state all cells and the contents.
-        if not (ABSOLUTE_ZERO_CELSIUS < temp[0] < HIGHEST_PHYSICAL_TEMPERATURE
-                and ABSOLUTE_ZERO_CELSIUS < temp[-1] < HIGHEST_PHYSICAL_TEMPERATURE) \
-                or k % 64 == 63 or (k + 1) % output_every == 0 or k == n_steps - 1:
-            _check_physical(temp, system.contents_temperature(enthalpy), t0 + (k + 1) * h, q_in, q_out)
+        if not sound(temp) or k % 64 == 63 or (k + 1) % output_every == 0 or k == n_steps - 1:
+            _check_batch(batch, temp, batch.contents_temperature(enthalpy), t0 + (k + 1) * h, q_in, q_out)
         if water is None:  # with contents, the water is part of the stored energy
             heat_in += e_in
             heat_abs += abs(e_in)
@@ -805,43 +977,48 @@ def march(
             f"{st.unconverged} of {n_steps} steps stopped at {MAX_ITERATIONS} iterations "
             f"before the {TOLERANCE:g} K tolerance",
             ConvergenceWarning,
-            stacklevel=2,
+            stacklevel=3 if batch.size == 1 else 2,
         )
     records.finish()
     v = records.values
-    initial_range = (float(np.min(initial)), float(np.max(initial)))
-    return MarchResult(
-        time=np.minimum(t0 + h * output_every * np.arange(records.count), t0 + h * n_steps),
-        temperature=records.temperature if field_sink is None else None,
-        interface_temperature=records.faces,
-        q_in=v["q_in"],
-        q_out=v["q_out"],
-        film_in=v["film_in"],
-        film_out=v["film_out"],
-        t_eq_in=v["teq_in"],
-        t_eq_out=v["teq_out"],
-        surface_in=v["ts_in"],
-        surface_out=v["ts_out"],
-        contents_temperature=v["tw"] if water is not None else None,
-        ice_fraction=v["ice"] if water is not None else None,
-        heat_in=heat_in,
-        heat_out=heat_out,
-        heat_abs=heat_abs,
-        stored=v["stored"],
-        stored_initial=float(v["stored"][0]),
-        stored_final=system.stored_energy(state.temperature, state.enthalpy),
-        final=state.temperature,
-        final_enthalpy=state.enthalpy,
-        initial_enthalpy=water.enthalpy(initial_water) if water is not None else 0.0,
-        unconverged_steps=st.unconverged,
-        max_iterations_used=st.max_iter,
-        smoothed_steps=smoothed,
-        drive_range=(min(forcing.low, initial_range[0]), max(forcing.high, initial_range[1])),
-        factorisations=st.factorisations,
-        time_to_freezing=freeze.to_freezing,
-        time_to_ice_fraction=freeze.to_ice_fraction,
-        scheme=st.scheme.name,
-    )
+    times = np.minimum(t0 + h * output_every * np.arange(records.count), t0 + h * n_steps)
+    stored_final = batch.stored_energy(state.temperature, state.enthalpy)
+    results = []
+    for m, (system, part) in enumerate(zip(batch.systems, batch.slices)):
+        start_cells = np.asarray(initials[m], dtype=float)
+        results.append(MarchResult(
+            time=times,
+            temperature=records.temperature[:, part] if field_sink is None else None,
+            interface_temperature=records.faces[m],
+            q_in=records.column("q_in", m),
+            q_out=records.column("q_out", m),
+            film_in=records.column("film_in", m),
+            film_out=records.column("film_out", m),
+            t_eq_in=records.column("teq_in", m),
+            t_eq_out=records.column("teq_out", m),
+            surface_in=records.column("ts_in", m),
+            surface_out=records.column("ts_out", m),
+            contents_temperature=v["tw"] if water is not None else None,
+            ice_fraction=v["ice"] if water is not None else None,
+            heat_in=float(np.atleast_1d(heat_in)[m]),
+            heat_out=float(np.atleast_1d(heat_out)[m]),
+            heat_abs=float(np.atleast_1d(heat_abs)[m]),
+            stored=records.column("stored", m),
+            stored_initial=float(records.column("stored", m)[0]),
+            stored_final=float(np.atleast_1d(stored_final)[m]),
+            final=state.temperature[part],
+            final_enthalpy=state.enthalpy,
+            initial_enthalpy=water.enthalpy(initial_water) if water is not None else 0.0,
+            unconverged_steps=st.unconverged,
+            max_iterations_used=st.max_iter,
+            smoothed_steps=smoothed,
+            drive_range=(min(forcing.low, float(np.min(start_cells))), max(forcing.high, float(np.max(start_cells)))),
+            factorisations=st.factorisations,
+            time_to_freezing=freeze.to_freezing,
+            time_to_ice_fraction=freeze.to_ice_fraction,
+            scheme=st.scheme.name,
+        ))
+    return results
 
 
 def settle(system: System, guess: np.ndarray, t0: float = 0.0, t_water: float | None = None) -> np.ndarray:

@@ -22,7 +22,7 @@ from layers.constants import ABSOLUTE_ZERO_CELSIUS
 from layers.contents import WaterNode
 from layers.exact import exact_march, exact_periodic_start, is_exact_ready
 from layers.exchange import exchanges, in_seconds
-from layers.march import TOLERANCE, BadConductivity, MarchResult, System, UnphysicalState, march, periodic_start, settle
+from layers.march import TOLERANCE, BadConductivity, MarchResult, System, UnphysicalState, march, march_batch, periodic_start, settle
 from layers.schemes import resolve_scheme
 from layers.mesh import Mesh
 from layers.results import FieldExtremes, to_dataset
@@ -145,11 +145,16 @@ def run_march(case: Case, mesh: Mesh, progress: Callable[[int, int], None] | Non
     except UnphysicalState as exc:
         raise unphysical_error(case, system, exc) from None
     except BadConductivity as exc:
-        raise CaseError(
-            case.path, f"layers[{exc.layer}].material",
-            f"the conductivity of {exc.material} comes out as {exc.conductivity:.3g} W/(m*K) at {exc.temperature:.4g} degC: "
-            "its k(T) law does not hold there; give it values over the whole temperature range of the run",
-        ) from None
+        raise conductivity_error(case, exc) from None
+
+
+def conductivity_error(case: Case, exc: BadConductivity) -> CaseError:
+    """A k(T) law used where it does not hold, as a CaseError naming the layer."""
+    return CaseError(
+        case.path, f"layers[{exc.layer}].material",
+        f"the conductivity of {exc.material} comes out as {exc.conductivity:.3g} W/(m*K) at {exc.temperature:.4g} degC: "
+        "its k(T) law does not hold there; give it values over the whole temperature range of the run",
+    )
 
 
 def _run_march(case: Case, mesh: Mesh, system: System, progress, field_sink=None) -> tuple[MarchResult, int, System]:
@@ -161,6 +166,20 @@ def _run_march(case: Case, mesh: Mesh, system: System, progress, field_sink=None
     if scheme == "exact":
         return exact_march(system, initial, plan.step, total, output_every=plan.output_stride, progress=callback,
                            field_sink=field_sink), cycles, system
+    step_size = _stepping_start(case, system, scheme)
+    water0 = case.inside.initial_temperature if system.water is not None else None
+    result = march(
+        system, initial, plan.step, total,
+        output_every=plan.output_stride, scheme=scheme, initial_water=water0,
+        smooth_start=step_size > 0.0, ice_target=_ice_target(case), progress=callback, field_sink=field_sink,
+    )
+    _warn_jumps(case, scheme, step_size, result)
+    return result, cycles, system
+
+
+def _stepping_start(case: Case, system: System, scheme: str) -> float:
+    """How far [K] a start from a temperature lies from what drives the boundaries
+    (the start is smoothed when it is not 0); warns for Crank-Nicolson."""
     step_size = _starts_with_a_step(case, system)
     if scheme == "crank-nicolson" and step_size > STEP_WARNING:
         warnings.warn(
@@ -168,23 +187,55 @@ def _run_march(case: Case, mesh: Mesh, system: System, progress, field_sink=None
             "backward-Euler half steps but still rings wherever a boundary changes abruptly; "
             "tr-bdf2 (the default) damps it",
             UserWarning,
-            stacklevel=4,
+            stacklevel=5,
         )
-    water0 = case.inside.initial_temperature if system.water is not None else None
-    result = march(
-        system, initial, plan.step, total,
-        output_every=plan.output_stride, scheme=scheme, initial_water=water0,
-        smooth_start=step_size > 0.0, ice_target=_ice_target(case), progress=callback, field_sink=field_sink,
-    )
-    jumps = result.smoothed_steps - (min(resolve_scheme(scheme).smoothing_steps, total) if step_size > 0.0 else 0)
+    return step_size
+
+
+def _warn_jumps(case: Case, scheme: str, step_size: float, result: MarchResult) -> None:
+    """Crank-Nicolson: say how many steps after a jump in a boundary were smoothed."""
+    jumps = result.smoothed_steps - (min(resolve_scheme(scheme).smoothing_steps, case.time.n_steps) if step_size > 0.0 else 0)
     if scheme == "crank-nicolson" and jumps > 0:
         warnings.warn(
             f"{case.path}: crank-nicolson met {jumps} step(s) where a boundary jumps; they were taken as "
             "backward-Euler half steps, but its fluxes ring after sudden changes: tr-bdf2 (the default) damps them",
             UserWarning,
-            stacklevel=4,
+            stacklevel=5,
         )
-    return result, cycles, system
+
+
+def stepping_key(case: Case, system: System) -> tuple | None:
+    """What cases must agree on to be marched together by the stepping path
+    (:func:`layers.march.march_batch`), besides their boundaries: None for a
+    case that is marched alone (contents in the bore, or the exact path)."""
+    scheme = scheme_for(case, system)
+    if scheme == "exact" or system.water is not None:
+        return None
+    plan = case.time
+    return (scheme, plan.step, plan.n_steps, plan.output_stride, str(plan.start), str(plan.initial), plan.period,
+            _starts_with_a_step(case, system) > 0.0)
+
+
+def march_together(cases: list[Case], meshes: list[Mesh], systems: list[System]) -> tuple[list[MarchResult], list[int]]:
+    """March cases with the same :func:`stepping_key` and the same boundaries
+    together (one tridiagonal system, :func:`layers.march.march_batch`): each
+    result is the one its case gets alone, to the stages' iteration tolerance.
+    Returns the results and the periodic cycles each case's start used.
+
+    Raises
+    ------
+    UnphysicalState
+        With ``member``, the index of the case that left the physical range.
+    """
+    first = cases[0]
+    scheme = scheme_for(first, systems[0])
+    starts = [initial_state(v, m, s, scheme) for v, m, s in zip(cases, meshes, systems)]
+    step_size = _stepping_start(first, systems[0], scheme)
+    plan = first.time
+    results = march_batch(systems, [x for x, _ in starts], plan.step, plan.n_steps, output_every=plan.output_stride,
+                          scheme=scheme, smooth_start=step_size > 0.0)
+    _warn_jumps(first, scheme, step_size, results[0])
+    return results, [cycles for _, cycles in starts]
 
 
 #: A run whose cells leave the range of their initial and boundary temperatures

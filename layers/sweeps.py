@@ -35,7 +35,7 @@ from layers.case import MAX_RECORD_BYTES, Case, parse_case, read_toml, reusing_s
 from layers.catalogue import SUMMARY_PREFIX, headline_values
 from layers.errors import CaseError
 from layers.formatting import format_utc
-from layers.march import UnphysicalState
+from layers.march import BadConductivity, UnphysicalState
 from layers.results import HEAT_FLOW_UNITS, cf_encoding, utc_now
 from layers.variation import SweepDim, with_values
 
@@ -61,7 +61,8 @@ class Point:
 
 @dataclass(frozen=True)
 class Job:
-    """Points run together: ``exact`` (one modal batch) or ``step`` (one by one)."""
+    """Points run together: ``exact`` (one modal batch) or ``step`` (marched together
+    by the stepping path: points that share their boundaries and time plan)."""
 
     kind: str
     points: tuple[int, ...]
@@ -106,24 +107,28 @@ def plan_jobs(case: Case, cases: list[Case], sources: list[dict], labels: list[s
     batches of up to :data:`MAX_BATCH`, the others one by one
     (``sources``: each point's case data, to tell which share their boundaries;
     ``labels``: how an error names each point)."""
-    from layers.simulation import scheme_for, system_for
+    from layers.simulation import scheme_for, stepping_key, system_for
 
     groups: dict[tuple, list[int]] = {}
-    stepping: list[int] = []
+    stepping: dict[tuple, list[int]] = {}
+    alone: list[int] = []
     for i, v in enumerate(cases):
         mesh = v.mesh()
         system = system_for(v, mesh)
         v.__dict__["_system"] = system  # the serial run reuses it
         try:
             scheme = scheme_for(v, system)
+            key = stepping_key(v, system) if scheme != "exact" else None
         except CaseError as exc:
             raise _at_point(exc, labels[i] if labels else f"point {i + 1}") from None
         if scheme == "exact":
             plan = v.time
             key = (plan.step, plan.n_steps, plan.output_stride, str(plan.start), str(plan.initial), plan.period)
             groups.setdefault(key, []).append(i)
-        else:
-            stepping.append(i)
+        elif key is None:
+            alone.append(i)
+        else:  # marched together only with points whose boundaries are the same
+            stepping.setdefault(key + (_boundary_signature(sources[i]),), []).append(i)
     jobs = []
     for members in groups.values():
         for j in range(0, len(members), MAX_BATCH):
@@ -132,7 +137,9 @@ def plan_jobs(case: Case, cases: list[Case], sources: list[dict], labels: list[s
             for position, i in enumerate(part):
                 shared.setdefault(_boundary_signature(sources[i]), []).append(position)
             jobs.append(Job("exact", tuple(part), tuple(tuple(v) for v in shared.values())))
-    jobs += [Job("step", (i,)) for i in stepping]
+    for members in stepping.values():
+        jobs += [Job("step", tuple(members[j:j + MAX_BATCH])) for j in range(0, len(members), MAX_BATCH)]
+    jobs += [Job("step", (i,)) for i in alone]
     return sorted(jobs, key=lambda job: job.points[0])
 
 
@@ -148,7 +155,7 @@ def run_job(text: str, file: str, base_dir: str | None, job: Job, settings: list
     this with the case text and the points' settings (all picklable) and reads
     the points' cases itself; the serial run passes the ``cases`` it has read.
     An error names its point (``labels``)."""
-    from layers.simulation import run_march, run_record, unphysical_error
+    from layers.simulation import conductivity_error, run_march, run_record, unphysical_error
 
     labels = labels or [f"point {i + 1}" for i in range(len(settings))]
     if cases is None:
@@ -158,6 +165,8 @@ def run_job(text: str, file: str, base_dir: str | None, job: Job, settings: list
         for v in cases:
             v.record_paths = record_paths
     try:
+        if job.kind == "step" and len(cases) > 1:
+            return _run_stepping(cases)
         if job.kind == "step":
             v = cases[0]
             mesh = v.mesh()
@@ -169,15 +178,17 @@ def run_job(text: str, file: str, base_dir: str | None, job: Job, settings: list
             return [record]
         return _run_exact(cases, [list(g) for g in job.shared])
     except _MemberError as exc:
+        if isinstance(exc.cause, BadConductivity):
+            raise _at_point(conductivity_error(cases[exc.member], exc.cause), labels[exc.member]) from None
         raise _at_point(unphysical_error(cases[exc.member], exc.system, exc.cause), labels[exc.member]) from None
     except CaseError as exc:
         raise _at_point(exc, labels[0] if len(labels) == 1 else "one of " + ", ".join(labels[:3]) + ("..." if len(labels) > 3 else "")) from None
 
 
 class _MemberError(Exception):
-    """A member of a modal batch left the physical range."""
+    """A member of a batch left the physical range, or its k(T) law."""
 
-    def __init__(self, member: int, system, cause: UnphysicalState) -> None:
+    def __init__(self, member: int, system, cause: UnphysicalState | BadConductivity) -> None:
         super().__init__(str(cause))
         self.member, self.system, self.cause = member, system, cause
 
@@ -220,6 +231,34 @@ def _run_exact(cases: list[Case], groups: list[list[int]]) -> list[dict]:
             warnings.simplefilter("always")
             record = _slim(run_record(v, mesh, system, one, cycles), v, mesh)
         record["warnings"] = _texts(caught)
+        records.append(record)
+    return records
+
+
+def _run_stepping(cases: list[Case]) -> list[dict]:
+    """March points that share their boundaries and time plan together
+    (:func:`layers.simulation.march_together`, one tridiagonal system)."""
+    from layers.simulation import march_together, run_record, system_for
+
+    meshes = [v.mesh() for v in cases]
+    systems = [v.__dict__.pop("_system", None) or system_for(v, m) for v, m in zip(cases, meshes)]
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        try:
+            results, cycles = march_together(cases, meshes, systems)
+        except UnphysicalState as exc:
+            member = getattr(exc, "member", 0)
+            raise _MemberError(member, systems[member], exc) from None
+        except BadConductivity as exc:
+            member = getattr(exc, "member", 0)
+            raise _MemberError(member, systems[member], exc) from None
+    shared = _texts(caught)  # said once for the batch: each point would say them alone
+    records = []
+    for v, mesh, system, res, n in zip(cases, meshes, systems, results, cycles):
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            record = _slim(run_record(v, mesh, system, res, n), v, mesh)
+        record["warnings"] = shared + [t for t in _texts(caught) if t not in shared]
         records.append(record)
     return records
 
