@@ -30,7 +30,7 @@ if TYPE_CHECKING:
 
     from layers.case import Case
 
-__all__ = ["load_case", "open_run", "parse_case", "periodic", "simulate", "size", "sweep"]
+__all__ = ["condensation", "load_case", "open_run", "parse_case", "periodic", "simulate", "size", "sweep"]
 
 
 def load_case(path: str | os.PathLike) -> Case:
@@ -242,6 +242,45 @@ def periodic(case: Case, period: str | float = "24 h") -> xr.Dataset:
 
     seconds = parse_period(period, file="(argument)", key="period")
     return periodic_dataset(case, periodic_report(case, seconds))
+
+
+def condensation(case: Case) -> xr.Dataset:
+    """ISO 13788 monthly interstitial condensation (Glaser method) of a plane construction.
+
+    What ``layers condensation`` computes and archives.
+
+    Parameters
+    ----------
+    case : Case
+        A planar case with a ``[condensation]`` table (monthly inside and
+        outside climate, January first), film or temperature boundaries, and
+        a ``vapour_resistance_factor`` for every solid layer (the library's,
+        a ``[materials]`` entry's or the layer's own) [-].
+
+    Returns
+    -------
+    xarray.Dataset
+        Dimensions ``month`` (1-12) and ``interface`` (0 = inside surface ...
+        n = outside surface, membranes included): ``condensation_rate``
+        [kg m-2 s-1] (positive condensing, negative drying),
+        ``accumulated_moisture`` [kg m-2] at the end of each month,
+        ``vapour_pressure`` and ``saturation_vapour_pressure`` [Pa],
+        ``interface_temperature`` [degC]; attributes ``first_month`` (the
+        ISO 13788 starting month, 0 when no month condenses), ``verdict``
+        (``no condensation``, ``dries out within the year`` or
+        ``accumulates``), ``max_accumulated_moisture`` [kg m-2], the surface
+        resistances used [m2 K W-1], provenance and the caution.
+
+    Raises
+    ------
+    CaseError
+        No ``[condensation]`` table, a cylinder or sphere (the method is for
+        plane elements), a layer without vapour data, a flux, adiabatic or
+        contents boundary.
+    """
+    from layers.iso13788 import assess
+
+    return assess(case)
 
 
 def open_run(path: str | os.PathLike) -> xr.Dataset:

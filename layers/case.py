@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import contextlib
 import contextvars
+import dataclasses
 import datetime as dt
 import hashlib
 import math
@@ -24,7 +25,7 @@ import numpy as np
 
 from layers.constants import ABSOLUTE_ZERO_CELSIUS, ISO6946_RSE, ISO6946_RSI_HORIZONTAL
 from layers.errors import CaseError
-from layers.materials import Material, material_from_table, resolve
+from layers.materials import Material, material_from_table, resolve, resolve_membrane, vapour_resistance_factor_problem
 from layers.mesh import GEOMETRIES, LayerSpec, Mesh, MeshRule, build_mesh
 from layers.series import RANGES, Clock, ColumnSpec, Forcing, Series, daily_cycle, read_series
 from layers.units import parse_quantity, parse_temperature
@@ -48,7 +49,7 @@ MIN_LAYER_THICKNESS = 1e-6
 #: low enough to catch a max_cell written in the wrong unit.
 MAX_CELLS = 20000
 #: The tables and keys of the top level of a case file.
-TOP_LEVEL_KEYS = ("title", "label", "geometry", "materials", "layers", "mesh", "series", "site", "inside", "outside", "time", "sizing", "sweep", "uncertainty")
+TOP_LEVEL_KEYS = ("title", "label", "geometry", "materials", "layers", "mesh", "series", "site", "inside", "outside", "time", "sizing", "sweep", "uncertainty", "condensation")
 
 
 class _Table:
@@ -118,8 +119,8 @@ class BoundarySpec:
     wind_speed: Forcing | None = None               # [m s-1]
     radiant_temperature: Forcing | None = None      # [degC] surroundings for radiation (auto film)
     sky_temperature: Forcing | None = None          # [degC]
-    heat_flow_direction: str = "horizontal"         # ISO 6946: up | horizontal | down
-    tilt: float = 90.0                              # [deg] 90 = vertical wall, 0 = flat roof
+    heat_flow_direction: str = "auto"               # ISO 6946: up | horizontal | down | auto (from tilt and the sign of air - surface)
+    tilt: float = 90.0                              # [deg] of the construction's outside face: 90 wall, 0 flat roof, 180 floor over a cold space
     solar_irradiance_on: str = "surface"            # surface | horizontal (then transposed, layers.solar)
     surface_azimuth: float | None = None            # [deg] 0 north, 90 east, 180 south, 270 west
     albedo: float = 0.2                             # [-] of the ground, for the reflected share
@@ -170,7 +171,7 @@ class TimePlan:
 class SizingSpec:
     """The ``[sizing]`` table, in SI."""
 
-    layer: int                                   # 1-based
+    layer: int                                   # 1-based, among the thermal layers (Case.layers)
     thicknesses: tuple[float, ...]               # [m]
     max_surface_temperature: float | None = None  # [degC]
     dew_point_margin: float | None = None        # [K]
@@ -178,6 +179,80 @@ class SizingSpec:
     min_freeze_time: float | None = None         # [s]
     max_ice_fraction: float = 0.25               # [-]
     design_time: np.datetime64 | None = None     # UTC; None: the run's start
+    case_layer: int = 0                          # 1-based, as the case file counts (membranes included); 0: = layer
+
+    @property
+    def listed(self) -> int:
+        """The sized layer's number as the case file writes it (membranes counted)."""
+        return self.case_layer or self.layer
+
+
+@dataclass(frozen=True)
+class VapourLayer:
+    """One layer of the case's list as the vapour calculation (ISO 13788) sees it.
+
+    Every ``[[layers]]`` table has one, membranes included, in the case's
+    order; the thermal layers (``Case.layers``) leave the membranes out.
+
+    Attributes
+    ----------
+    number : int
+        1-based position in the case file's list of layers.
+    name : str
+    kind : str
+        ``solid``, ``air-gap`` or ``membrane``.
+    thermal_index : int or None
+        1-based position in ``Case.layers`` (None for a membrane, which has
+        no thermal part).
+    thickness : float
+        [m] (0 for a membrane; an air gap's given thickness, 0 when none).
+    material : Material or None
+        The solid layer's material.
+    vapour_resistance_factor : float or None
+        The layer's own ``vapour_resistance_factor`` [-], which overrides its
+        material's (both cups); None: the material's.
+    equivalent_air_thickness : float or None
+        A membrane's s_d [m].
+    """
+
+    number: int
+    name: str
+    kind: str
+    thermal_index: int | None
+    thickness: float = 0.0
+    material: Material | None = None
+    vapour_resistance_factor: float | None = None
+    equivalent_air_thickness: float | None = None
+
+
+@dataclass(frozen=True)
+class CondensationSpec:
+    """The ``[condensation]`` table: ISO 13788 monthly mean climate, January first.
+
+    Every array has 12 values, one per calendar month.
+
+    Attributes
+    ----------
+    inside_temperature, outside_temperature : numpy.ndarray
+        Monthly mean air temperatures [degC].
+    outside_relative_humidity : numpy.ndarray
+        [-] fraction in (0, 1].
+    inside_relative_humidity : numpy.ndarray or None
+        [-] fraction in (0, 1]; None with ``humidity_class``.
+    humidity_class : int or None
+        ISO 13788 Annex A internal humidity class 1-5 (the inside vapour
+        pressure is the outside one plus the class's excess); None with
+        ``inside_relative_humidity``.
+    vapour_data : str
+        ``dry-cup`` (default) or ``wet-cup``: which ISO 10456 value of mu is used.
+    """
+
+    inside_temperature: np.ndarray
+    outside_temperature: np.ndarray
+    outside_relative_humidity: np.ndarray
+    inside_relative_humidity: np.ndarray | None = None
+    humidity_class: int | None = None
+    vapour_data: str = "dry-cup"
 
 
 @dataclass
@@ -206,6 +281,9 @@ class Case:
     uncertainty: UncertaintySpec | None = None
     record_paths: bool = False  # record the user's absolute case and series paths in results
     base_dir: Path | None = None  # where its series file was looked for
+    time_zones: dict[str, str] = field(default_factory=dict)  # each time read -> the zone it was read in (check, run attribute)
+    vapour_layers: tuple[VapourLayer, ...] = ()  # every [[layers]] table, membranes included (ISO 13788)
+    condensation: CondensationSpec | None = None  # the [condensation] table
 
     @property
     def stem(self) -> str:
@@ -337,7 +415,7 @@ def parse_case(
             name, mats.data[name], file=file, key=f"materials.{name}", library=True
         )
 
-    layers = _parse_layers(top.get("layers", required=True), materials, file)
+    layers, vapour_layers = _parse_layers(top.get("layers", required=True), materials, file)
     rule = _parse_mesh(_Table(top.get("mesh", {}), file, "mesh"))
     cells = sum(layer.cells if layer.cells else rule.estimated_cells(layer.thickness) for layer in layers if layer.material is not None)
     if cells > MAX_CELLS:
@@ -353,14 +431,17 @@ def parse_case(
 
     site = _parse_site(_Table(top.get("site"), file, "site")) if top.has("site") else None
     forcing_ctx = _ForcingContext(file, series, cycles, columns_kind, timezone, site)
-    inside = _parse_boundary(top.get("inside", required=True), "inside", geometry, forcing_ctx, pipe_orientation)
-    outside = _parse_boundary(top.get("outside", required=True), "outside", geometry, forcing_ctx, pipe_orientation)
+    tilt = _construction_tilt(data, file, geometry)
+    inside = _parse_boundary(top.get("inside", required=True), "inside", geometry, forcing_ctx, pipe_orientation, tilt, data.get("outside"))
+    outside = _parse_boundary(top.get("outside", required=True), "outside", geometry, forcing_ctx, pipe_orientation, tilt, data.get("inside"))
     if outside.kind == "contents":
         raise CaseError(file, "outside.type", "a contents boundary fills the bore: use it on the inside")
     if inside.kind == "contents" and geometry == "planar":
         raise CaseError(file, "inside.type", "a contents boundary needs cylinder or sphere geometry")
 
     time = _parse_time(_Table(top.get("time", {}), file, "time"), series, timezone)
+    time_zones = _time_zones(data, file, series, cycles, timezone)
+    time = dataclasses.replace(time, start_zone=time_zones["time.start"])
     _check_budget(file, cells, len(layers), time)
     for spec in (inside, outside):
         for name, forcing in spec.values.items():
@@ -394,7 +475,11 @@ def parse_case(
         _warn_kelvin_looking(data, file)
     sizing = None
     if top.has("sizing"):
-        sizing = _parse_sizing(_Table(top.get("sizing"), file, "sizing"), layers, geometry, inside, outside, time, timezone)
+        sizing = _parse_sizing(_Table(top.get("sizing"), file, "sizing"), layers, geometry, inside, outside, time, timezone,
+                               vapour_layers)
+    condensation = None
+    if top.has("condensation"):
+        condensation = _parse_condensation(_Table(top.get("condensation"), file, "condensation"))
     top.finish()
     return Case(
         path=file,
@@ -417,6 +502,9 @@ def parse_case(
         sweep=sweep,
         uncertainty=uncertainty,
         base_dir=base_dir,
+        time_zones=time_zones,
+        vapour_layers=vapour_layers,
+        condensation=condensation,
     )
 
 
@@ -498,13 +586,18 @@ def _positive(value: Any, kind: str, table: _Table, name: str, allow_zero: bool 
     return number
 
 
-def _parse_layers(items: Any, materials: dict[str, Material], file: str) -> tuple[LayerSpec, ...]:
+def _parse_layers(items: Any, materials: dict[str, Material], file: str) -> tuple[tuple[LayerSpec, ...], tuple[VapourLayer, ...]]:
+    """The thermal layers (membranes left out) and every layer as the vapour calculation sees it."""
     if not isinstance(items, list) or not items:
         raise CaseError(file, "layers", "give at least one [[layers]] table")
     out = []
+    vapour: list[VapourLayer] = []
     for number, item in enumerate(items, start=1):
         t = _Table(item, file, f"layers[{number}]")
         kind = t.get("kind", "solid")
+        if kind == "membrane":
+            vapour.append(_parse_membrane(t, number))
+            continue
         if kind == "air-gap":
             resistance = _positive(t.get("resistance", required=True), "areal_resistance", t, "resistance")
             thickness = 0.0
@@ -516,9 +609,10 @@ def _parse_layers(items: Any, materials: dict[str, Material], file: str) -> tupl
             t.get("name")
             t.finish()
             out.append(LayerSpec(thickness, None, resistance=resistance, name=str(t.data.get("name", "air gap"))))
+            vapour.append(VapourLayer(number, out[-1].name, "air-gap", len(out), thickness=thickness))
             continue
         if kind != "solid":
-            raise t.error("kind", f"unknown layer kind {kind!r}; use 'solid' (the default) or 'air-gap'")
+            raise t.error("kind", f"unknown layer kind {kind!r}; use 'solid' (the default), 'air-gap' or 'membrane'")
         name = t.get("material", required=True)
         if not isinstance(name, str):
             raise t.error("material", "must be a material name")
@@ -542,12 +636,117 @@ def _parse_layers(items: Any, materials: dict[str, Material], file: str) -> tupl
         cells = t.get("cells")
         if cells is not None and (isinstance(cells, bool) or not isinstance(cells, int) or cells < 1):
             raise t.error("cells", f"must be a whole number >= 1, got {cells!r}")
+        mu = None
+        if t.has("vapour_resistance_factor"):
+            mu = t.get("vapour_resistance_factor")
+            problem = vapour_resistance_factor_problem(mu)
+            if problem:
+                raise t.error("vapour_resistance_factor", problem)
+            mu = float(mu)
         t.get("name")
         t.finish()
         out.append(LayerSpec(thickness, material, contact_resistance=contact, cells=cells, name=str(t.data.get("name", name))))
+        vapour.append(VapourLayer(number, out[-1].name, "solid", len(out), thickness=thickness, material=material,
+                                  vapour_resistance_factor=mu))
     if all(spec.is_gap for spec in out):
         raise CaseError(file, "layers", "needs at least one solid layer")
-    return tuple(out)
+    return tuple(out), tuple(vapour)
+
+
+#: The thinnest and thickest s_d a membrane layer may have [m] (below: no sheet;
+#: above: beyond any declared product, most likely a slip of unit).
+MEMBRANE_SD_RANGE = (1e-3, 5000.0)
+
+
+def _parse_membrane(t: _Table, number: int) -> VapourLayer:
+    """A ``kind = "membrane"`` layer: vapour resistance s_d, no thermal part."""
+    name = t.get("material")
+    membrane = None
+    if name is not None:
+        membrane = resolve_membrane(name, file=t.file, key=t.key("material"))
+    if t.has("equivalent_air_thickness"):
+        sd = _positive(t.get("equivalent_air_thickness"), "length", t, "equivalent_air_thickness")
+    elif membrane is not None:
+        sd = membrane.equivalent_air_thickness
+    else:
+        raise t.error("equivalent_air_thickness", "is required for a membrane (its s_d, e.g. \"20 m\"), or name a library "
+                                                  "membrane with material = \"...\"")
+    if not MEMBRANE_SD_RANGE[0] <= sd <= MEMBRANE_SD_RANGE[1]:
+        raise t.error("equivalent_air_thickness", f"{sd:g} m is outside {MEMBRANE_SD_RANGE[0]:g} to {MEMBRANE_SD_RANGE[1]:g} m, "
+                                                  "the range of real sheets (s_d is an air-layer thickness in metres)")
+    for refused, why in (("thickness", "a membrane has no thermal thickness here; give its s_d as equivalent_air_thickness"),
+                         ("contact_resistance", "a membrane carries no thermal resistance"),
+                         ("resistance", "a membrane carries no thermal resistance; use kind = \"air-gap\" for one"),
+                         ("cells", "a membrane has no cells (no thermal part)"),
+                         ("vapour_resistance_factor", "give a membrane's vapour resistance as equivalent_air_thickness (s_d)")):
+        if t.has(refused):
+            t.get(refused)
+            raise t.error(refused, why)
+    t.get("name")
+    t.finish()
+    label = str(t.data.get("name", membrane.name if membrane is not None else "membrane"))
+    return VapourLayer(number, label, "membrane", None, equivalent_air_thickness=sd)
+
+
+#: Vapour data a [condensation] table may choose (ISO 10456 dry-cup or wet-cup mu).
+VAPOUR_DATA = ("dry-cup", "wet-cup")
+#: The ISO 13788 Annex A internal humidity classes.
+HUMIDITY_CLASSES = (1, 2, 3, 4, 5)
+
+
+def _monthly(t: _Table, name: str, kind: str, required: bool = True) -> np.ndarray | None:
+    """A [condensation] quantity: one value for every month, or 12 values (January first)."""
+    if not t.has(name):
+        if required:
+            t.get(name, required=True)
+        return None
+    raw = t.get(name)
+    values = raw if isinstance(raw, list) else [raw]
+    if isinstance(raw, list) and len(raw) != 12:
+        raise t.error(name, f"give one value for every month or 12 values (January first), got {len(raw)}")
+    out = []
+    for i, value in enumerate(values, start=1):
+        key = t.key(name) if not isinstance(raw, list) else f"{t.key(name)}[{i}]"
+        if isinstance(value, bool) or not isinstance(value, (int, float, str)):
+            raise CaseError(t.file, key, f"expected a quantity, got {value!r}")
+        if isinstance(value, float) and not math.isfinite(value):
+            raise CaseError(t.file, key, f"{value!r} is not a finite number")
+        if kind == "temperature":
+            number = parse_temperature(value, file=t.file, key=key)
+            if not -60.0 <= number <= 60.0:
+                raise CaseError(t.file, key, f"{number:g} degC is not a monthly mean air temperature (ISO 13788 climates lie "
+                                             "within -60 to 60 degC)")
+        else:
+            number = parse_quantity(value, "fraction", file=t.file, key=key)
+            if not 0.0 < number <= 1.0:
+                raise CaseError(t.file, key, f"relative humidity must be above 0 and at most 100 %, got {value!r}")
+        if not math.isfinite(number):
+            raise CaseError(t.file, key, f"{value!r} is not a finite number")
+        out.append(number)
+    return np.array(out * 12 if len(out) == 1 else out, dtype=float)
+
+
+def _parse_condensation(t: _Table) -> CondensationSpec:
+    """The [condensation] table (ISO 13788 monthly method)."""
+    inside = _monthly(t, "inside_temperature", "temperature")
+    outside = _monthly(t, "outside_temperature", "temperature")
+    outside_rh = _monthly(t, "outside_relative_humidity", "fraction")
+    if t.has("inside_relative_humidity") and t.has("humidity_class"):
+        t.get("humidity_class")
+        raise t.error("humidity_class", "give inside_relative_humidity or humidity_class, not both")
+    inside_rh = _monthly(t, "inside_relative_humidity", "fraction", required=False)
+    humidity_class = None
+    if t.has("humidity_class"):
+        humidity_class = t.get("humidity_class")
+        if isinstance(humidity_class, bool) or humidity_class not in HUMIDITY_CLASSES:
+            raise t.error("humidity_class", f"must be an ISO 13788 internal humidity class 1 to 5, got {humidity_class!r}")
+    elif inside_rh is None:
+        raise t.error("inside_relative_humidity", "is required (or give humidity_class = 1 to 5, ISO 13788 Annex A)")
+    vapour_data = t.get("vapour_data", "dry-cup")
+    if vapour_data not in VAPOUR_DATA:
+        raise t.error("vapour_data", f"must be \"dry-cup\" or \"wet-cup\" (which ISO 10456 mu to use), got {vapour_data!r}")
+    t.finish()
+    return CondensationSpec(inside, outside, outside_rh, inside_rh, humidity_class, vapour_data)
 
 
 def _parse_mesh(t: _Table) -> MeshRule:
@@ -812,7 +1011,44 @@ def _transposed(t: _Table, ctx: _ForcingContext, args: dict, forcing) -> Forcing
                                case_file=file, key=t.key("solar_irradiance"))
 
 
-def _parse_boundary(value: Any, side: str, geometry: str, ctx: _ForcingContext, orientation: str) -> BoundarySpec:
+def _tilt_value(raw: Any, file: str, key: str) -> float:
+    """A ``tilt`` as written (number of degrees or an angle string) -> [deg], 0 to 180."""
+    tilt = parse_quantity(raw, "angle", file=file, key=key) if isinstance(raw, str) else raw
+    if isinstance(tilt, bool) or not isinstance(tilt, (int, float)) or not 0 <= tilt <= 180:
+        raise CaseError(file, key, f"must be an angle from 0 to 180 degrees, got {tilt!r}")
+    return float(tilt)
+
+
+def _construction_tilt(data: dict, file: str, geometry: str) -> float | None:
+    """The tilt of a wall or roof, written in ``[inside]``, ``[outside]`` or both [deg].
+
+    ``tilt`` describes the construction, measured on its outside face as for
+    the sun (0 a flat roof, 90 a wall, 180 a floor over a cold space), so one
+    value serves both sides: the outside for its sky view and the sun, the
+    inside for its ISO 6946 heat-flow direction.  Written on both sides of a
+    planar construction, the two must agree.  None when neither gives it.
+    """
+    found: dict[str, float] = {}
+    for side in ("inside", "outside"):
+        table = data.get(side)
+        if isinstance(table, dict) and "tilt" in table:
+            found[side] = _tilt_value(table["tilt"], file, f"{side}.tilt")
+    if geometry == "planar" and len(found) == 2 and found["inside"] != found["outside"]:
+        raise CaseError(
+            file, "inside.tilt",
+            f"{found['inside']:g} deg differs from outside.tilt {found['outside']:g} deg: the two faces of a wall or roof "
+            "have one tilt (of the outside face: 0 roof, 90 wall, 180 floor over a cold space); give it once",
+        )
+    return found.get("outside", found.get("inside"))
+
+
+def _tilt_serves(other: Any) -> bool:
+    """Whether the other side's table makes use of the construction's tilt."""
+    return isinstance(other, dict) and (other.get("film_coefficient") == "auto" or other.get("solar_irradiance_on") == "horizontal")
+
+
+def _parse_boundary(value: Any, side: str, geometry: str, ctx: _ForcingContext, orientation: str,
+                    construction_tilt: float | None = None, other: Any = None) -> BoundarySpec:
     file = ctx.file
     t = _Table(value, file, side)
     kind = t.get("type", required=True)
@@ -853,12 +1089,13 @@ def _parse_boundary(value: Any, side: str, geometry: str, ctx: _ForcingContext, 
         if isinstance(eps, bool) or not isinstance(eps, (int, float)) or not 0 <= eps <= 1:
             raise t.error("emissivity", f"must be a number from 0 to 1, got {eps!r}")
         args["emissivity"] = float(eps)
-        tilt = t.get("tilt", 90.0)
-        if isinstance(tilt, str):
-            tilt = parse_quantity(tilt, "angle", file=file, key=t.key("tilt"))
-        if isinstance(tilt, bool) or not isinstance(tilt, (int, float)) or not 0 <= tilt <= 180:
-            raise t.error("tilt", f"must be an angle from 0 to 180 degrees, got {tilt!r}")
-        args["tilt"] = float(tilt)
+        raw_tilt = t.get("tilt")
+        if raw_tilt is not None:
+            args["tilt"] = _tilt_value(raw_tilt, file, t.key("tilt"))
+        elif geometry == "planar" and construction_tilt is not None:
+            args["tilt"] = construction_tilt  # written on the other side: one tilt per construction
+        else:
+            args["tilt"] = 90.0
         if t.has("solar_absorptance") or t.has("solar_irradiance"):
             a = t.get("solar_absorptance", required=True)
             if isinstance(a, bool) or not isinstance(a, (int, float)) or not 0 <= a <= 1:
@@ -892,10 +1129,16 @@ def _parse_boundary(value: Any, side: str, geometry: str, ctx: _ForcingContext, 
             args["sky_temperature"] = forcing("sky_temperature", "temperature")
         if args.get("auto_film") and geometry != "planar" and side == "inside":
             raise t.error("film_coefficient", "\"auto\" is for surfaces in air; give the film coefficient of the fluid in the bore")
-        direction = t.get("heat_flow_direction", "horizontal")
-        if direction not in ("up", "horizontal", "down"):
-            raise t.error("heat_flow_direction", f"must be up, horizontal or down, got {direction!r}")
+        direction = t.get("heat_flow_direction", "auto")
+        if direction not in ("auto", "up", "horizontal", "down"):
+            raise t.error("heat_flow_direction", f"must be up, horizontal, down or auto (from the tilt and the sign of air minus surface), got {direction!r}")
         args["heat_flow_direction"] = direction
+        if t.has("heat_flow_direction") and args.get("auto_film") and (side == "outside" or geometry != "planar"):
+            import warnings
+
+            why = ("the outside coefficient of ISO 6946, 4 + 4 v, is driven by the wind and the same for every direction"
+                   if geometry == "planar" else "a pipe's or vessel's convection follows from its correlations")
+            warnings.warn(f"{file}: {side}: heat_flow_direction not used: {why}", UserWarning, stacklevel=2)
         jacket = t.get("jacket")
         if jacket is not None:
             from layers.radiation import JACKET_EMISSIVITY
@@ -905,7 +1148,8 @@ def _parse_boundary(value: Any, side: str, geometry: str, ctx: _ForcingContext, 
             args["jacket"] = str(jacket)
         if not args.get("auto_film"):
             unused = [name for name in AUTO_ONLY_KEYS if t.has(name)
-                      and not (name == "tilt" and args.get("solar_irradiance_on") == "horizontal")]
+                      and not (name == "tilt" and (args.get("solar_irradiance_on") == "horizontal"
+                                                   or (geometry == "planar" and _tilt_serves(other))))]
             if unused:
                 import warnings
 
@@ -963,6 +1207,97 @@ def _parse_datetime(value: Any, file: str, key: str, timezone: str) -> np.dateti
         return Clock(timezone, file=file, key="series.timezone").localize(stamp, (file, key))
     utc = stamp.astimezone(dt.timezone.utc).replace(tzinfo=None)
     return Clock("UTC", file=file, key=key).localize(utc, (file, key))
+
+
+def _written_offset(value: Any) -> str | None:
+    """The UTC offset a case-file time is written with (``+01:00``, ``Z``), None
+    when it has none, ``""`` when it cannot be read (refused elsewhere)."""
+    if isinstance(value, str):
+        try:
+            value = dt.datetime.fromisoformat(value.strip())
+        except ValueError:
+            return ""
+    if isinstance(value, dt.datetime):
+        offset = value.utcoffset()
+        if offset is None:
+            return None
+        minutes = int(offset.total_seconds()) // 60
+        if minutes == 0:
+            return "Z"
+        return f"{'+' if minutes > 0 else '-'}{abs(minutes) // 60:02d}:{abs(minutes) % 60:02d}"
+    return None if isinstance(value, dt.date) else ""
+
+
+def _time_zones(data: dict, file: str, series: Series | None, cycles: dict, timezone: str) -> dict[str, str]:
+    """Which zone each time of the case is read in, refusing an ambiguous mix.
+
+    Rules (``docs/case-file.md``, "Time zones"): an explicit offset always
+    wins; a time without one (in the series file, ``[time] start`` and
+    ``end``, ``[sizing] design_time``) is read in ``series.timezone``; with
+    no zone declared it is read as UTC, and said so.  When no zone is
+    declared and naive times meet times with explicit offsets (netCDF CF
+    times count as explicit UTC), the naive ones' zone would be a guess:
+    refused, naming the first naive key.  ``peak_hour`` of a generated cycle
+    is a clock reading in ``series.timezone`` (UTC when none is declared);
+    it is reported, not refused.
+
+    Returns
+    -------
+    dict
+        Key as the case file writes it -> how its time was read.
+    """
+    table = data.get("series") if isinstance(data.get("series"), dict) else {}
+    declared = "timezone" in table
+    naive_zone = f"read in {timezone} (series.timezone)" if declared else "read as UTC (no series.timezone declared)"
+    zones: dict[str, str] = {}
+    naive: list[str] = []
+    explicit: list[tuple[str, str]] = []
+    if series is not None:
+        key = f"series.file ({base_name(series.file)})"
+        if series.time_form == "naive":
+            zones[key] = f"stamps without offsets, {naive_zone}"
+            naive.append("series.file")
+        elif series.time_form == "cf":
+            zones[key] = "netCDF CF times (UTC)"
+            explicit.append(("series.file", "Z"))
+        else:
+            offsets = series.time_form.split(" ", 1)[1]
+            zones[key] = f"stamps with their own UTC offsets ({offsets})"
+            explicit.append(("series.file", offsets.split(", ")[0]))
+    for table_name, name in (("time", "start"), ("time", "end"), ("sizing", "design_time")):
+        section = data.get(table_name)
+        key = f"{table_name}.{name}"
+        if not isinstance(section, dict) or name not in section:
+            if key == "time.start":
+                zones[key] = ("not given: the series' first stamp" if series is not None
+                              else f"not given: the default {DEFAULT_START} UTC")
+            continue
+        offset = _written_offset(section[name])
+        if offset == "":
+            continue
+        if offset is None:
+            zones[key] = f"written without an offset, {naive_zone}"
+            naive.append(key)
+        else:
+            zones[key] = f"written with offset {offset}"
+            explicit.append((key, offset))
+    if cycles:
+        clock = Clock(timezone, file=file, key="series.timezone")
+        zones["series.cycles peak_hour"] = (
+            f"on the clock of {timezone} (series.timezone{', at its standard offset all year' if clock.zone is not None else ''})"
+            if declared else "on the UTC clock (no series.timezone declared)")
+    if not declared and naive and explicit:
+        key, (other, offset) = naive[0], explicit[0]
+        what = "the stamps of the series file have" if key == "series.file" else "is written with"
+        their = "the series file's stamps carry" if other == "series.file" else f"{other} carries"
+        raise CaseError(
+            file, key,
+            f"{what} no UTC offset while {their} one ({offset}) and no series.timezone is declared, so the zone "
+            f"of the naive {'stamps' if key == 'series.file' else 'time'} would be a guess: "
+            f"{'declare series.timezone' if key == 'series.file' else 'write it with an offset, or declare series.timezone'} "
+            "(the zone of every time written without an offset)",
+        )
+    return zones
 
 
 def _parse_time(t: _Table, series: Series | None, timezone: str) -> TimePlan:
@@ -1039,12 +1374,19 @@ def _parse_time(t: _Table, series: Series | None, timezone: str) -> TimePlan:
 
 
 def _parse_sizing(
-    t: _Table, layers, geometry: str, inside: BoundarySpec, outside: BoundarySpec, time: TimePlan, timezone: str
+    t: _Table, layers, geometry: str, inside: BoundarySpec, outside: BoundarySpec, time: TimePlan, timezone: str,
+    vapour_layers: tuple[VapourLayer, ...] = (),
 ) -> SizingSpec:
     file = t.file
     layer = t.get("layer", required=True)
-    if isinstance(layer, bool) or not isinstance(layer, int) or not 1 <= layer <= len(layers):
-        raise t.error("layer", f"must be a layer number from 1 to {len(layers)}, got {layer!r}")
+    listed = len(vapour_layers) or len(layers)  # the case file's numbering counts membranes too
+    if isinstance(layer, bool) or not isinstance(layer, int) or not 1 <= layer <= listed:
+        raise t.error("layer", f"must be a layer number from 1 to {listed}, got {layer!r}")
+    if vapour_layers:
+        named = vapour_layers[layer - 1]
+        if named.thermal_index is None:
+            raise t.error("layer", f"names a membrane ({named.name}), which has no thermal thickness to size")
+        layer = named.thermal_index  # from here on: the position among the thermal layers
     if layers[layer - 1].is_gap:
         raise t.error("layer", "names an air gap, which has no thickness to size")
     raw = t.get("thicknesses", required=True)
@@ -1072,7 +1414,7 @@ def _parse_sizing(
     else:
         raise t.error("thicknesses", "must be a list of thicknesses or {from, to, step}")
     heat_kind = {"planar": "heat_flux", "cylinder": "linear_heat_flow"}.get(geometry)
-    out: dict[str, Any] = {"layer": layer, "thicknesses": values}
+    out: dict[str, Any] = {"layer": layer, "thicknesses": values, "case_layer": int(t.get("layer"))}
     if t.has("max_surface_temperature"):
         out["max_surface_temperature"] = parse_temperature(t.get("max_surface_temperature"), file=file, key=t.key("max_surface_temperature"))
     if t.has("dew_point_margin"):

@@ -37,6 +37,7 @@ import numpy as np
 from numpy.typing import ArrayLike
 
 from layers.checks import choice as _choice
+from layers.checks import finite as _finite
 from layers.checks import non_negative as _non_negative
 from layers.checks import positive as _positive
 from layers.checks import temperature as _temperature
@@ -64,6 +65,8 @@ __all__ = [
     "forced_convection_coefficient",
     "combined_convection_coefficient",
     "iso6946_internal_convection",
+    "iso6946_heat_flow_direction",
+    "iso6946_internal_convection_derived",
     "iso6946_external_convection",
 ]
 
@@ -903,6 +906,97 @@ def iso6946_internal_convection(direction: str) -> float:
     """
     _choice("direction", direction, tuple(_ISO6946_INTERNAL))
     return _ISO6946_INTERNAL[direction]
+
+
+#: Half-width of the band of heat-flow directions that ISO 6946 counts as horizontal
+#: [deg]: "the values under 'horizontal' apply to directions of heat flow +-30 deg
+#: from the horizontal plane" (ISO 6946:2017, note to the table of conventional
+#: surface resistances; from memory).
+ISO6946_HORIZONTAL_BAND = 30.0
+
+
+def _flow_codes(tilt: ArrayLike, air_minus_surface: ArrayLike) -> np.ndarray:
+    """+1 up, 0 horizontal (or no flow), -1 down; see :func:`iso6946_heat_flow_direction`."""
+    beta = _finite("tilt", tilt)
+    if np.any((beta < 0.0) | (beta > 180.0)):
+        raise ValueError("tilt must be within [0, 180] (0 = outside face up, 90 = vertical, 180 = outside face down)")
+    difference = np.asarray(air_minus_surface, dtype=float)  # NaN (a state the march then refuses): horizontal
+    # heat from the air into the construction flows along the construction's outward
+    # normal, whose vertical part is cos(tilt); the normal is within the horizontal
+    # band when the surface is within it of vertical, |90 - tilt| <= 30 deg
+    horizontal = np.abs(90.0 - beta) <= ISO6946_HORIZONTAL_BAND
+    vertical = np.cos(np.radians(beta)) * difference
+    return np.where(horizontal, 0, np.where(vertical > 0.0, 1, np.where(vertical < 0.0, -1, 0))).astype(np.int8)
+
+
+_DIRECTION_NAMES = np.array(["down", "horizontal", "up"])
+
+
+def iso6946_heat_flow_direction(tilt: ArrayLike, air_minus_surface: ArrayLike) -> np.ndarray:
+    """Direction of the heat flow between the room air and an inside surface, ISO 6946's way.
+
+    Parameters
+    ----------
+    tilt : array_like
+        Tilt of the construction, measured on its outside face as for the
+        sun: 0 = a flat roof (outside face up), 90 = a wall, 180 = a floor
+        over a cold space (outside face down) [deg].
+    air_minus_surface : array_like
+        Room air temperature minus inside surface temperature [K]; positive
+        when heat flows from the room into the construction.
+
+    Returns
+    -------
+    numpy.ndarray of str, or str
+        ``"up"``, ``"horizontal"`` or ``"down"`` per element (a str for scalars).
+
+    Notes
+    -----
+    Heat flows horizontally when its direction lies within +-30 deg of the
+    horizontal plane (:data:`ISO6946_HORIZONTAL_BAND`), i.e. for surfaces
+    tilted 60 to 120 deg; otherwise up or down by the sign of the vertical
+    part of the flow: a ceiling (tilt 0) under a warmer room has heat flow
+    up, a floor (tilt 180) under a warmer room heat flow down, and either
+    turns round when the surface is warmer than the air.  With no
+    difference (no flow) the direction is "horizontal", the value ISO 6946
+    practice takes for an undefined direction.
+
+    References
+    ----------
+    ISO 6946:2017, table of conventional surface resistances and its note on
+    the +-30 deg band (from memory).
+    """
+    names = _DIRECTION_NAMES[_flow_codes(tilt, air_minus_surface) + 1]
+    return names if np.ndim(names) else str(names)
+
+
+def iso6946_internal_convection_derived(tilt: ArrayLike, air_temperature: ArrayLike, surface_temperature: ArrayLike) -> np.ndarray:
+    """Inside convective coefficient hci with the heat-flow direction derived at each value.
+
+    hci of :func:`iso6946_internal_convection` for the direction
+    :func:`iso6946_heat_flow_direction` gives for ``tilt`` and the sign of
+    ``air_temperature - surface_temperature``; vectorised (the arguments
+    broadcast).
+
+    Parameters
+    ----------
+    tilt : array_like
+        Tilt of the construction's outside face [deg] (0 roof, 90 wall, 180 floor).
+    air_temperature, surface_temperature : array_like
+        Room air and inside surface temperature [degC].
+
+    Returns
+    -------
+    numpy.ndarray
+        hci = 5.0 (up), 2.5 (horizontal) or 0.7 (down) [W m-2 K-1].
+
+    References
+    ----------
+    ISO 6946:2017, annex on surface resistances (from memory).
+    """
+    codes = _flow_codes(tilt, np.asarray(air_temperature, dtype=float) - np.asarray(surface_temperature, dtype=float))
+    table = _ISO6946_INTERNAL
+    return np.where(codes > 0, table["up"], np.where(codes < 0, table["down"], table["horizontal"]))[()]
 
 
 def iso6946_external_convection(wind_speed: ArrayLike) -> np.ndarray:

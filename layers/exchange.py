@@ -24,7 +24,13 @@ Boundary kinds
     Convection plus linearised long-wave radiation at the surface
     temperature.  Planar: the ISO 6946:2017 convective coefficients (annex
     on surface resistances; inside by heat-flow direction, outside
-    4 + 4 v).  Pipes and vessels: free convection (Churchill-Chu horizontal
+    4 + 4 v).  The inside direction is ``heat_flow_direction`` when the
+    case gives it; otherwise it is derived at every evaluation from the
+    construction's tilt and the sign of air minus surface temperature
+    (:func:`layers.convection.iso6946_heat_flow_direction`): up under a
+    ceiling whose room is warmer, down over a floor whose room is warmer,
+    horizontal on a wall.  The outside coefficient is wind-driven and takes
+    no direction (ISO 6946 gives one hce for every orientation).  Pipes and vessels: free convection (Churchill-Chu horizontal
     cylinder, the vertical-plate form on the height of a vertical pipe,
     Churchill sphere) combined with forced convection in the wind
     (Churchill-Bernstein, Whitaker) by Churchill's cube rule
@@ -151,6 +157,63 @@ class Exchange:
             self.f_ground = float(view_factor_ground(spec.tilt))
             self._sky = spec.sky_temperature is not None or bool(spec.values.get("sky_auto"))
         self._table: _ConvectionTable | None = None
+        #: True when the inside convection's direction follows the sign of air minus
+        #: surface at each evaluation (an inside auto film on a roof or a floor
+        #: without an explicit heat_flow_direction).
+        self.derives_direction = bool(
+            self.auto and self.geometry == "planar" and self.side == "inside"
+            and spec.heat_flow_direction == "auto" and self._tilt_direction() != "horizontal"
+        )
+
+    def _tilt_direction(self) -> str:
+        """``"horizontal"`` where the tilt alone fixes it (a wall), else ``"up or down"``."""
+        from layers.convection import iso6946_heat_flow_direction
+
+        return "horizontal" if iso6946_heat_flow_direction(self.spec.tilt, 1.0) == "horizontal" else "up or down"
+
+    def heat_flow_direction(self, forcing: dict[str, np.ndarray], t_surface) -> np.ndarray | str:
+        """The ISO 6946 heat-flow direction the inside convection uses (``"up"``,
+        ``"horizontal"``, ``"down"``) at surface temperatures ``t_surface`` [degC]:
+        the case's ``heat_flow_direction``, or derived from the tilt and the sign
+        of air minus surface (see :attr:`derives_direction`)."""
+        from layers.convection import iso6946_heat_flow_direction
+
+        given = self.spec.heat_flow_direction
+        if given != "auto":
+            return given
+        return iso6946_heat_flow_direction(self.spec.tilt, np.asarray(forcing["air"], dtype=float) - np.asarray(t_surface, dtype=float))
+
+    def design_direction(self) -> tuple[str, str]:
+        """The heat-flow direction that stands for an inside auto film where one
+        fixed value is needed (U-value, ISO 13786), and how it was found [-].
+
+        Given: the case's ``heat_flow_direction``.  Derived: from the tilt and,
+        on a roof or floor, the sign of the inside air minus the other side's
+        temperature at the design time (``[sizing] design_time``, else the
+        start, as :func:`layers.steady.design_time`), which in a steady state
+        without sun is the sign of air minus surface; horizontal where the
+        other side fixes no temperature.
+        """
+        from layers.convection import iso6946_heat_flow_direction
+
+        spec = self.spec
+        if spec.heat_flow_direction != "auto":
+            return spec.heat_flow_direction, "given"
+        if self._tilt_direction() == "horizontal":
+            return "horizontal", f"tilt {spec.tilt:g} deg"
+        case = self.case
+        when = case.sizing.design_time if case.sizing is not None and case.sizing.design_time is not None else case.time.start
+        seconds = case.seconds(np.array([when]))
+        other = case.outside if self.side == "inside" else case.inside
+        if other.kind == "film":
+            t_other = in_seconds(case, other.air_temperature)(seconds)
+        elif other.kind == "temperature":
+            t_other = in_seconds(case, other.surface_temperature)(seconds)
+        else:
+            return "horizontal", f"tilt {spec.tilt:g} deg, no temperature on the other side"
+        air = in_seconds(case, spec.air_temperature)(seconds)
+        direction = str(iso6946_heat_flow_direction(spec.tilt, float(air[0] - t_other[0])))
+        return direction, f"tilt {spec.tilt:g} deg, air {float(air[0]):g} degC against {float(t_other[0]):g} degC on the other side"
 
     @property
     def has_sun_or_sky(self) -> bool:
@@ -171,7 +234,8 @@ class Exchange:
         A fixed film gives its own; an ``"auto"`` film on a wall its ISO 6946
         expression at the case's emissivity (inside by heat-flow direction,
         outside at :attr:`design_wind_speed`; ISO 6946:2017 annex on surface
-        resistances, from memory); a temperature boundary 0.  None where no
+        resistances, from memory; the direction of :meth:`design_direction`);
+        a temperature boundary 0.  None where no
         fixed value stands for it (auto films on pipes, flux, adiabatic,
         contents).
         """
@@ -187,7 +251,7 @@ class Exchange:
         if self.geometry != "planar":
             return None
         if self.side == "inside":
-            return float(iso6946_surface_resistance(spec.heat_flow_direction, spec.emissivity))
+            return float(iso6946_surface_resistance(self.design_direction()[0], spec.emissivity))
         return float(iso6946_external_surface_resistance(self.design_wind_speed, spec.emissivity))
 
     # ------------------------------------------------------------------ #
@@ -214,7 +278,7 @@ class Exchange:
                 wind = spec.wind_speed
                 default = ISO6946_REFERENCE_WIND_SPEED if (self.geometry == "planar" and self.side == "outside") else 0.0
                 out["wind"] = in_seconds(case, wind)(seconds) + zero if wind is not None else zero + default
-                if self.geometry == "planar":
+                if self.geometry == "planar" and not self.derives_direction:
                     out["hc"] = self._planar_convection(out["wind"]) + zero
                 radiant = spec.radiant_temperature
                 out["radiant"] = in_seconds(case, radiant)(seconds) + zero if radiant is not None else out["air"]
@@ -287,6 +351,10 @@ class Exchange:
     def convection(self, forcing: dict[str, np.ndarray], t_surface: np.ndarray, diameter) -> np.ndarray:
         """Convective coefficient h_c of an auto film [W m-2 K-1]."""
         if self.geometry == "planar":
+            if self.derives_direction:  # up or down by the sign of air minus surface, at every evaluation
+                from layers.convection import iso6946_internal_convection_derived
+
+                return iso6946_internal_convection_derived(self.spec.tilt, forcing["air"], t_surface)
             return forcing["hc"] + 0 * t_surface
         if self._table is not None:
             hc = self._table.lookup(t_surface, forcing["air"], forcing["wind"], diameter)
@@ -295,12 +363,15 @@ class Exchange:
         return self.body_convection(t_surface, forcing["air"], diameter, forcing["wind"])
 
     def _planar_convection(self, wind: np.ndarray) -> np.ndarray:
-        """ISO 6946 convective coefficient of a wall surface [W m-2 K-1]: inside
-        by heat-flow direction, outside 4 + 4 v (:mod:`layers.convection`)."""
+        """ISO 6946 convective coefficient of a wall surface where it does not
+        depend on the surface temperature [W m-2 K-1]: inside by the given
+        heat-flow direction (or horizontal, on a wall), outside 4 + 4 v
+        (:mod:`layers.convection`)."""
         from layers.convection import iso6946_external_convection, iso6946_internal_convection
 
         if self.side == "inside":
-            return np.full(np.shape(wind), float(iso6946_internal_convection(self.spec.heat_flow_direction)))
+            given = self.spec.heat_flow_direction
+            return np.full(np.shape(wind), float(iso6946_internal_convection("horizontal" if given == "auto" else given)))
         return np.asarray(iso6946_external_convection(wind), dtype=float)
 
     def body_convection(self, t_surface, t_air, diameter, wind) -> np.ndarray:

@@ -86,8 +86,62 @@ _KEYS = (
     "specific_heat",
     "max_temperature",
     "source",
+    "vapour_resistance_factor",
+    "vapour_resistance_factor_wet_cup",
 )
+#: Keys of a membrane entry of the library (``kind = "membrane"``).
+_MEMBRANE_KEYS = ("kind", "description", "category", "equivalent_air_thickness", "source")
+#: The smallest water vapour resistance factor a material may have: still air has 1 [-].
+MIN_VAPOUR_RESISTANCE_FACTOR = 1.0
 _NAME = re.compile(r"^[a-z0-9]+(-[a-z0-9]+)*$")
+
+
+# ---------------------------------------------------------------------- vapour
+
+
+def vapour_resistance_factor_problem(value: Any) -> str:
+    """What is wrong with a water vapour resistance factor mu [-] as written, or ''.
+
+    mu is a plain number (no unit), finite and at least 1: still air has
+    mu = 1 by definition (ISO 10456, ISO 13788), and no material resists
+    vapour less than still air.  A vapour-tight material (metal, glass) is
+    written as a large number (the library uses 1e6).
+    """
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        return f"must be a plain number (mu, no unit), got {value!r}"
+    if not math.isfinite(float(value)):
+        return f"must be a finite number (write a vapour-tight layer as a large number, e.g. 1e6), got {value!r}"
+    if float(value) < MIN_VAPOUR_RESISTANCE_FACTOR:
+        return f"must be at least 1 (still air has mu = 1), got {value!r}"
+    return ""
+
+
+@dataclass(frozen=True)
+class Membrane:
+    """A sheet that adds vapour resistance and nothing else (a vapour control
+    layer, a breather membrane, a felt): no thermal resistance, no heat capacity.
+
+    Parameters
+    ----------
+    name : str
+        Library name, e.g. ``"polyethylene-vcl"``.
+    equivalent_air_thickness : float
+        Water vapour diffusion-equivalent air layer thickness s_d [m].
+    description, source : str
+        What it is, and where the value comes from.
+    """
+
+    name: str
+    equivalent_air_thickness: float
+    description: str = ""
+    source: str = ""
+    category: str = "membrane"
+
+    def __post_init__(self) -> None:
+        value = float(self.equivalent_air_thickness)
+        if not (math.isfinite(value) and value > 0.0):
+            raise ValueError(f"membrane {self.name!r}: equivalent_air_thickness must be positive and finite, got {value!r}")
+        object.__setattr__(self, "equivalent_air_thickness", value)
 
 
 # ---------------------------------------------------------------------- k(T) laws
@@ -262,6 +316,14 @@ class Material:
         come from.
     max_temperature : float or None
         Upper service temperature [degC], where known.
+    vapour_resistance_factor : float or None
+        Water vapour resistance factor mu [-], the design value the ISO 13788
+        condensation method uses by default (ISO 10456 dry-cup value where the
+        standard gives two); None where the library has no value (a material
+        without one is refused by ``layers condensation`` only).
+    vapour_resistance_factor_wet_cup : float or None
+        The ISO 10456 wet-cup value [-] where it differs; None: the same as
+        ``vapour_resistance_factor``.
 
     Notes
     -----
@@ -278,6 +340,8 @@ class Material:
     category: str = ""
     source: str = ""
     max_temperature: float | None = None
+    vapour_resistance_factor: float | None = None
+    vapour_resistance_factor_wet_cup: float | None = None
 
     def __post_init__(self) -> None:
         for label in ("conductivity", "density", "specific_heat"):
@@ -285,6 +349,16 @@ class Material:
             if not (math.isfinite(value) and value > 0.0):
                 raise ValueError(f"material {self.name!r}: {label} must be positive and finite, got {value!r}")
             object.__setattr__(self, label, value)
+        for label in ("vapour_resistance_factor", "vapour_resistance_factor_wet_cup"):
+            value = getattr(self, label)
+            if value is None:
+                continue
+            problem = vapour_resistance_factor_problem(value)
+            if problem:
+                raise ValueError(f"material {self.name!r}: {label} {problem}")
+            object.__setattr__(self, label, float(value))
+        if self.vapour_resistance_factor_wet_cup is not None and self.vapour_resistance_factor is None:
+            raise ValueError(f"material {self.name!r}: a wet-cup vapour_resistance_factor needs the (dry-cup) vapour_resistance_factor too")
         if self.max_temperature is not None:
             object.__setattr__(self, "max_temperature", float(self.max_temperature))
         if self.law is not None:
@@ -347,6 +421,14 @@ class Material:
         [kg m-3], ``specific_heat`` [J kg-1 K-1]).
         """
         return cls.with_law(name, ConductivityPolynomial(coefficients), density, specific_heat, **attributes)
+
+    def vapour_factor(self, cup: str = "dry-cup") -> float | None:
+        """The water vapour resistance factor mu [-] for ``cup`` (``"dry-cup"``
+        or ``"wet-cup"``; the wet-cup value falls back on the dry-cup one where
+        the library gives only one), or None where the material has none."""
+        if cup == "wet-cup" and self.vapour_resistance_factor_wet_cup is not None:
+            return self.vapour_resistance_factor_wet_cup
+        return self.vapour_resistance_factor
 
     @property
     def is_constant(self) -> bool:
@@ -584,6 +666,8 @@ def material_from_table(
             "category": base.category,
             "source": base.source,
             "max_temperature": base.max_temperature,
+            "vapour_resistance_factor": base.vapour_resistance_factor,
+            "vapour_resistance_factor_wet_cup": base.vapour_resistance_factor_wet_cup,
         }
     else:
         for required in ("conductivity", "density", "specific_heat"):
@@ -599,6 +683,17 @@ def material_from_table(
             fields[kind] = _positive(table[kind], kind, file=file, key=f"{key}.{kind}")
     if "max_temperature" in table:
         fields["max_temperature"] = parse_temperature(table["max_temperature"], file=file, key=f"{key}.max_temperature")
+    for label in ("vapour_resistance_factor", "vapour_resistance_factor_wet_cup"):
+        if label in table:
+            problem = vapour_resistance_factor_problem(table[label])
+            if problem:
+                raise CaseError(file, f"{key}.{label}", problem)
+            fields[label] = float(table[label])
+    if base is not None and "vapour_resistance_factor" in table and "vapour_resistance_factor_wet_cup" not in table:
+        fields["vapour_resistance_factor_wet_cup"] = None  # one value given: it stands for both
+    if "vapour_resistance_factor_wet_cup" in table and fields.get("vapour_resistance_factor") is None:
+        raise CaseError(file, f"{key}.vapour_resistance_factor_wet_cup",
+                        "needs vapour_resistance_factor (the dry-cup value) as well")
     for text in ("description", "category", "source"):
         if text in table:
             if not isinstance(table[text], str):
@@ -608,6 +703,8 @@ def material_from_table(
     fields.setdefault("category", "")
     fields.setdefault("source", "")
     fields.setdefault("max_temperature", None)
+    fields.setdefault("vapour_resistance_factor", None)
+    fields.setdefault("vapour_resistance_factor_wet_cup", None)
     if fields["category"] and fields["category"] not in CATEGORIES:
         raise CaseError(
             file,
@@ -649,13 +746,14 @@ def material_from_table(
 
 
 @functools.lru_cache(maxsize=1)
-def _library() -> dict[str, Material]:
+def _library_files() -> tuple[dict[str, Material], dict[str, Membrane]]:
     text = resources.files("layers").joinpath("data").joinpath("materials.toml").read_text(encoding="utf-8")
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise CaseError(LIBRARY_FILE, "?", f"not valid TOML ({exc})") from exc
     materials: dict[str, Material] = {}
+    membranes: dict[str, Membrane] = {}
     for name, table in data.items():
         if not _NAME.match(name):
             raise CaseError(LIBRARY_FILE, name, "library names are lower-case words joined by hyphens")
@@ -664,8 +762,53 @@ def _library() -> dict[str, Material]:
                 raise CaseError(LIBRARY_FILE, f"{name}.{required}", "every library material needs one")
         if "base" in table:
             raise CaseError(LIBRARY_FILE, f"{name}.base", "library materials give their own values")
+        if table.get("kind") == "membrane":
+            membranes[name] = _membrane_from_table(name, table)
+            continue
         materials[name] = material_from_table(name, table, file=LIBRARY_FILE, key=name)
-    return materials
+    return materials, membranes
+
+
+def _membrane_from_table(name: str, table: Mapping[str, Any]) -> Membrane:
+    for k in table:
+        if k not in _MEMBRANE_KEYS:
+            raise CaseError(LIBRARY_FILE, f"{name}.{k}", f"a membrane entry takes {', '.join(_MEMBRANE_KEYS)} only")
+    if table.get("category") != "membrane":
+        raise CaseError(LIBRARY_FILE, f"{name}.category", "a membrane entry has category = \"membrane\"")
+    sd = parse_quantity(table.get("equivalent_air_thickness"), "length", file=LIBRARY_FILE, key=f"{name}.equivalent_air_thickness")
+    return Membrane(name, sd, description=table["description"], source=table["source"])
+
+
+def _library() -> dict[str, Material]:
+    return _library_files()[0]
+
+
+def load_membranes() -> dict[str, Membrane]:
+    """The membranes of the packaged library (entries with ``kind = "membrane"``).
+
+    Returns
+    -------
+    dict of str to Membrane
+        A new dict on each call.
+    """
+    return dict(_library_files()[1])
+
+
+def resolve_membrane(name: Any, *, file: str, key: str) -> Membrane:
+    """Find a membrane of the library by name (case-insensitive).
+
+    Raises
+    ------
+    CaseError
+        For an unknown name (a solid material named here gets a hint).
+    """
+    membranes = _library_files()[1]
+    if isinstance(name, str) and name.strip().lower() in membranes:
+        return membranes[name.strip().lower()]
+    if isinstance(name, str) and name.strip().lower() in _library():
+        raise CaseError(file, key, f"{name!r} is a solid material, not a membrane; a membrane layer names one of "
+                                   f"{', '.join(sorted(membranes))} or gives equivalent_air_thickness")
+    raise CaseError(file, key, f"unknown membrane {name!r}; the library has {', '.join(sorted(membranes))}")
 
 
 def load_library() -> dict[str, Material]:
@@ -733,6 +876,9 @@ def resolve(
         return library[name]
     if name.strip().lower() in library and name.strip().lower() not in overrides:
         return library[name.strip().lower()]
+    if name.strip().lower() in _library_files()[1]:
+        raise CaseError(file, key, f"{name!r} is a membrane (vapour resistance only): give it its own layer with "
+                                   f"kind = \"membrane\" and material = {name.strip().lower()!r}")
     raise CaseError(file, key, _unknown_message(name, set(library) | set(overrides)))
 
 

@@ -66,7 +66,7 @@ GAP_HATCH = "////"
 #: Longest subtitle [characters] that fits on one line across the figure.
 SUBTITLE_CHARS = 175
 
-KINDS = ("carpet", "surfaces", "profiles", "sizing", "sweep")
+KINDS = ("carpet", "surfaces", "profiles", "sizing", "sweep", "condensation")
 FORMATS = {".png": "png", ".svg": "svg", ".pdf": "pdf"}
 
 _TEMPERATURE_UNITS = {"degC": "°C", "degree_Celsius": "°C", "degrees_Celsius": "°C", "celsius": "°C",
@@ -344,6 +344,8 @@ def _layer_names(ds: xr.Dataset, count: int) -> list[tuple[str, str]] | None:
         layers = tomllib.loads(str(ds.attrs["case"]))["layers"]
     except Exception:  # noqa: BLE001 - no or unreadable case text: label by the material coordinate
         return None
+    if isinstance(layers, list):  # membranes carry no cells: the run's layers are the others
+        layers = [s for s in layers if not (isinstance(s, dict) and s.get("kind") == "membrane")]
     if not isinstance(layers, list) or len(layers) != count or not all(isinstance(s, dict) for s in layers):
         return None
     return [(str(s.get("name") or "").strip(), str(s.get("material") or "").strip()) for s in layers]
@@ -1562,11 +1564,135 @@ def _sweep_map(fig, ax, ds: xr.Dataset, shown: list[str], values: np.ndarray, un
 
 
 # --------------------------------------------------------------------------- #
+# ISO 13788 condensation
+
+_MONTHS = ("Jan", "Feb", "Mar", "Apr", "May", "Jun", "Jul", "Aug", "Sep", "Oct", "Nov", "Dec")
+
+
+def _condensation_months(ds: xr.Dataset) -> list[int]:
+    """The months drawn in the pressure panel (0-based): the coldest, the
+    starting month, the month of the largest accumulation and the warmest,
+    each once, in the order of the calculation year."""
+    t_e = np.asarray(ds["air_temperature_outside"].values, dtype=float)
+    first = int(ds.attrs.get("first_month", 0) or 0)
+    chosen = [int(np.argmin(t_e))]
+    if first:
+        chosen.append(first - 1)
+    peak = int(ds.attrs.get("max_accumulated_moisture_month", 0) or 0)
+    if peak:
+        chosen.append(peak - 1)
+    chosen.append(int(np.argmax(t_e)))
+    start = first - 1 if first else 0
+    unique = sorted(set(chosen), key=lambda m: (m - start) % 12)
+    return unique
+
+
+def plot_condensation(ds: xr.Dataset) -> Any:
+    """ISO 13788 Glaser diagram and the moisture balance by month.
+
+    Top: vapour pressure (solid) and saturation vapour pressure (dashed)
+    against the cumulative diffusion-equivalent air layer thickness s_d from
+    the inside surface, for a few months (the coldest, the starting month,
+    the month of the largest accumulation, the warmest); the layers are
+    shaded bands named at the top, condensation planes marked.  Bottom: the
+    moisture accumulated at each condensing interface at the end of each
+    month [g/m2], months in the order of the calculation from the starting
+    month, with the verdict.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        From ``layers condensation`` (``product = "condensation"``).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    source = str(ds.encoding.get("source", "condensation"))
+    need = ("vapour_pressure", "saturation_vapour_pressure", "accumulated_moisture", "equivalent_air_thickness")
+    for name in need:
+        if name not in ds.variables:
+            raise CaseError(source, name, "missing: is this a Dataset written by 'layers condensation'?")
+    fig, axes = new_figure(ds, "ISO 13788 monthly interstitial condensation (Glaser method)", nrows=2)
+    ax, bx = axes
+    s = np.asarray(ds["equivalent_air_thickness"].values, dtype=float)
+    p = np.asarray(ds["vapour_pressure"].values, dtype=float)
+    psat = np.asarray(ds["saturation_vapour_pressure"].values, dtype=float)
+    acc = np.asarray(ds["accumulated_moisture"].values, dtype=float) * 1000.0
+    rate = np.asarray(ds["condensation_rate"].values, dtype=float)
+    names = [str(v) for v in ds["layer_name"].values] if "layer_name" in ds.variables else [""] * (s.size - 1)
+    # layer bands, named where there is room, numbered where not
+    span = s[-1] - s[0] if s[-1] > s[0] else 1.0
+    narrow = []
+    for k in range(s.size - 1):
+        ax.axvspan(s[k], s[k + 1], color=BAND_FILLS[k % 2], zorder=0, linewidth=0)
+        middle = 0.5 * (s[k] + s[k + 1])
+        if (s[k + 1] - s[k]) / span >= 0.12:
+            text = names[k]
+        else:
+            text = str(k + 1)
+            narrow.append(f"{k + 1} {names[k]}")
+        ax.text(middle, 1.01, text, transform=ax.get_xaxis_transform(), ha="center", va="bottom", fontsize=7.5,
+                color="#444444", clip_on=False)
+    months = _condensation_months(ds)
+    for i, m in enumerate(months):
+        colour = PALETTE[i % len(PALETTE)]
+        ax.plot(s, p[m], color=colour, linewidth=1.8, marker=MARKERS[i % len(MARKERS)], markersize=4)
+        ax.plot(s, psat[m], color=colour, linewidth=1.3, linestyle=(0, (5, 2)))
+        planes = np.flatnonzero(np.abs(rate[m]) > 0)
+        if planes.size:
+            ax.plot(s[planes], p[m, planes], linestyle="none", marker="o", markersize=9, markerfacecolor="none",
+                    markeredgecolor=colour, markeredgewidth=1.6)
+    ax.set_xlim(s[0], s[-1])
+    ax.set_xlabel(axis_label("cumulative diffusion-equivalent air layer thickness s_d from the inside", "m"))
+    ax.set_ylabel(axis_label("water vapour pressure", "Pa"))
+    from matplotlib.lines import Line2D
+
+    handles = [Line2D([], [], color=PALETTE[i % len(PALETTE)], marker=MARKERS[i % len(MARKERS)], markersize=4,
+                      linewidth=1.8, label=_MONTHS[m]) for i, m in enumerate(months)]
+    handles += [Line2D([], [], color="#555555", linewidth=1.8, label="vapour pressure p"),
+                Line2D([], [], color="#555555", linewidth=1.3, linestyle=(0, (5, 2)), label="saturation p_sat")]
+    if any(np.abs(rate[m]).max() > 0 for m in months):
+        handles.append(Line2D([], [], linestyle="none", marker="o", markersize=9, markerfacecolor="none",
+                              markeredgecolor="#333333", label="condensation plane"))
+    ax.legend(handles=handles, fontsize=7.5, loc="best", ncol=2, framealpha=0.9)
+    if narrow:
+        ax.text(0.005, 0.02, "layers: " + ";  ".join(narrow), transform=ax.transAxes, fontsize=7, color="#444444",
+                va="bottom", ha="left", bbox={"facecolor": "white", "alpha": 0.8, "linewidth": 0})
+
+    first = int(ds.attrs.get("first_month", 0) or 0)
+    order = [(first - 1 + k) % 12 for k in range(12)] if first else list(range(12))
+    active = [k for k in range(acc.shape[1]) if (acc[:, k] > 0).any()]
+    labels = [str(v) for v in ds["interface_name"].values] if "interface_name" in ds.variables else [str(k) for k in range(s.size)]
+    positions = np.arange(12)
+    if active:
+        width = 0.8 / len(active)
+        for j, k in enumerate(active):
+            bx.bar(positions - 0.4 + width * (j + 0.5), acc[order, k], width=width * 0.95, color=PALETTE[j % len(PALETTE)],
+                   hatch=("", "//", "..", "xx", "\\\\")[j % 5], edgecolor="white", label=f"interface {k}: {labels[k]}")
+        bx.legend(fontsize=7.5, loc="upper right", framealpha=0.9)
+    else:
+        bx.text(0.5, 0.5, "no interface condenses in any month", transform=bx.transAxes, ha="center", va="center",
+                fontsize=10, color="#444444")
+        bx.set_ylim(0, 1)
+    bx.set_xticks(positions, [_MONTHS[m] for m in order])
+    bx.set_xlim(-0.6, 11.6)
+    bx.set_xlabel("month (from the ISO 13788 starting month)" if first else "month")
+    bx.set_ylabel(axis_label("accumulated moisture", "g m-2"))
+    verdict = str(ds.attrs.get("verdict", ""))
+    peak = float(ds.attrs.get("max_accumulated_moisture", 0.0)) * 1000.0
+    note = f"verdict: {verdict}" + (f"; largest {peak:.0f} g/m²" if peak > 0 else "")
+    bx.text(0.01, 0.96, note, transform=bx.transAxes, ha="left", va="top", fontsize=9, fontweight="bold",
+            color=PALETTE[3] if verdict == "accumulates" else "#222222")
+    return fig
+
+
+# --------------------------------------------------------------------------- #
 # command line
 
 
 PLOTTERS = {"carpet": plot_carpet, "surfaces": plot_surfaces, "profiles": plot_profiles, "sizing": plot_sizing,
-            "sweep": plot_sweep}
+            "sweep": plot_sweep, "condensation": plot_condensation}
 
 
 def plot(ds: xr.Dataset, kind: str, times: list[str] | None = None, variable: str | None = None,
@@ -1690,6 +1816,20 @@ def plot_file(
         raise CaseError(str(run), "(file)", "is a comparison Dataset; draw it with `layers compare RUN_A.nc RUN_B.nc -o OUT.png`")
     if product == "periodic":
         raise CaseError(str(run), "(file)", "holds ISO 13786 characteristics (numbers, no time series); `layers periodic CASE.toml` prints them")
+    if product == "condensation" or kind == "condensation":
+        if product != "condensation":
+            raise CaseError(str(run), "--kind", "condensation needs a Dataset from 'layers condensation'")
+        if (kind or "condensation") != "condensation":
+            raise CaseError(str(run), "--kind", "this is an ISO 13788 condensation Dataset; use --kind condensation")
+        for option, value in (("--times", times), ("--variable", variable), ("--from", start), ("--to", end)):
+            if value:
+                raise CaseError(str(run), option, "does not apply to --kind condensation")
+        target = output_path(run, "condensation", out)
+        fig = plot_condensation(ds)
+        try:
+            return save_figure(fig, target, {"title": str(ds.attrs.get("title", "")), "caution": _caution(ds)})
+        except FileExistsError:
+            raise exists_error(target) from None
     sweep = is_sweep(ds)
     kind = kind or ("sweep" if sweep else "sizing" if _is_sizing(ds) else "surfaces")
     if kind not in KINDS:
@@ -1723,7 +1863,7 @@ def plot_file(
 __all__ = [
     "CARPET_CMAP", "DPI", "FIGSIZE", "KINDS", "LINESTYLES", "MARKERS", "PALETTE",
     "LayerBand", "axis_label", "cell_bounds", "is_sweep", "layer_bands", "new_figure", "open_run", "output_path",
-    "plot", "plot_carpet", "plot_comparison", "plot_file", "plot_profiles", "plot_sizing", "plot_surfaces", "plot_sweep",
+    "plot", "plot_carpet", "plot_comparison", "plot_condensation", "plot_file", "plot_profiles", "plot_sizing", "plot_surfaces", "plot_sweep",
     "DAILY_BANDS_FROM", "SURFACE_COLOURS", "DailyBands", "daily_bands", "leading_spike", "select_window",
     "pretty_units", "save_figure", "select_times", "sweep_dimensions", "sweep_variables",
 ]

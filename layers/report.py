@@ -103,8 +103,11 @@ def check_report(case: Case) -> str:
             lines.append(f"           resistance per metre, fluid to air: {total:.4g} m*K/W (films as given; k at 10 degC)")
     except CaseError:
         pass  # flux or adiabatic boundaries: no steady heat flow to report
-    for spec in (case.inside, case.outside):
+    for spec, ex in zip((case.inside, case.outside), exchanges(case)):
         lines.append(f"{spec.side + ':':<10} {_describe_boundary(spec)}")
+        direction = _direction_note(case, ex)
+        if direction:
+            lines.append(f"           {direction}")
     plan = case.time
     end = plan.start + np.timedelta64(int(round(plan.duration)), "s")
     lines.append("")
@@ -113,13 +116,17 @@ def check_report(case: Case) -> str:
         f"({format_duration(plan.duration)}), step {format_duration(plan.step)} x {plan.n_steps}, "
         f"kept every {format_duration(plan.output_every)} ({plan.n_steps // plan.output_stride + 1} records)"
     )
-    if plan.start_zone:
+    if case.time_zones:
+        lines.append("zones:     every time here is UTC (Z); each time of the case was read so:")
+        lines.extend(f"           {key}: {how}" for key, how in case.time_zones.items())
+    elif plan.start_zone:
         lines.append(f"           start: {plan.start_zone}; every time here is UTC (Z)")
     lines.append(f"scheme:    {plan.scheme}; initial state: {plan.initial if isinstance(plan.initial, str) else f'{plan.initial:g} degC'}")
     if case.series is not None:
         filled = {k: v for k, v in case.series.filled.items() if v}
         note = "; filled by fill_gaps: " + ", ".join(f"{k} {v}" for k, v in filled.items()) if filled else ""
         lines.append(f"series:    {case.series.file} ({len(case.series.time)} rows{note})")
+        lines.extend(f"           gaps: {gap.describe()}" for gap in case.series.gaps)
     if case.sweep:
         points = int(np.prod([len(d.values) for d in case.sweep]))
         lines.append(f"sweep:     {points} points (`layers sweep`): " + "; ".join(
@@ -131,6 +138,27 @@ def check_report(case: Case) -> str:
     lines.append("")
     lines.append(f"caution: {CAUTION}")
     return "\n".join(lines)
+
+
+def _direction_note(case: Case, ex) -> str | None:
+    """How an inside ``"auto"`` film on a wall or roof takes its ISO 6946
+    heat-flow direction, for ``layers check`` (None where none applies)."""
+    spec = ex.spec
+    if not (ex.kind == "film" and ex.auto and case.geometry == "planar" and ex.side == "inside"):
+        return None
+    if spec.heat_flow_direction != "auto":
+        return f"heat flow {spec.heat_flow_direction} (heat_flow_direction as given; ISO 6946 inside convection)"
+    if not ex.derives_direction:
+        return f"heat flow horizontal (derived: tilt {spec.tilt:g} deg is within 30 deg of vertical; ISO 6946)"
+    design, how = ex.design_direction()
+    turned = {"up": "down", "down": "up"}.get(design)
+    when = "surface is warmer than the air" if design == "up" and spec.tilt < 90 or design == "down" and spec.tilt > 90 else "air is warmer than the surface"
+    text = f"heat flow {design} at the design conditions (derived: {how}; ISO 6946)"
+    if turned:
+        text += f"; it varies with the sign of air minus surface and turns {turned} while the {when}"
+    else:
+        text += "; up or down by the sign of air minus surface at each step"
+    return text
 
 
 def _describe_boundary(spec) -> str:
@@ -474,7 +502,7 @@ def auto_film_note(case: Case) -> str | None:
     for ex in exchanges(case):
         spec = ex.spec
         if ex.kind == "film" and ex.auto:
-            how = f"heat flow {spec.heat_flow_direction}" if ex.side == "inside" else f"wind {ex.design_wind_speed:g} m/s"
+            how = f"heat flow {ex.design_direction()[0]}" if ex.side == "inside" else f"wind {ex.design_wind_speed:g} m/s"
             parts.append(f"{ex.side}: ISO 6946 expression, emissivity {spec.emissivity:g}, {how}")
         if ex.kind == "film" and ex.has_sun_or_sky:
             parts.append(f"{ex.side}: sun and sky do not enter the dynamic characteristics")

@@ -169,6 +169,10 @@ def to_dataset(
         filled = {k: v for k, v in case.series.filled.items() if v}
         if filled:
             ds.attrs["series_filled"] = ", ".join(f"{k}: {v} values" for k, v in filled.items())
+        if case.series.gaps:  # every gap filled or bridged, as the warning said it
+            ds.attrs["series_gaps"] = "; ".join(gap.describe() for gap in case.series.gaps)
+    if case.time_zones:  # how each time of the case was read (layers check prints the same)
+        ds.attrs["time_zones"] = "; ".join(f"{key}: {how}" for key, how in case.time_zones.items())
     if case.record_paths:
         ds.attrs["case_path"] = str(Path(case.path).resolve())
     if case.provenance:

@@ -29,6 +29,15 @@ Gaps and missing values
     filled the same way.  Missing values at the start or end of the file are
     never filled (there is nothing to interpolate from).  :attr:`Series.filled`
     counts the filled values per column.
+Missing rows
+    An interval between rows longer than :data:`MISSING_ROW_FACTOR` (1.5)
+    times the median interval but within ``max_interval`` is accepted and
+    bridged by the linear interpolation every series gets between rows.
+Every fill is said
+    Each kind of fill (missing values filled, missing rows bridged, rows
+    inserted into a gap) is one :class:`FilledGaps` in :attr:`Series.gaps`
+    and one warning naming the file, the column, how many gaps and values,
+    and the first few places (UTC stamps and file rows).
 Plausible ranges
     After conversion: temperature -273.15 to 2000 degC, irradiance 0 to
     1500 W/m2, fraction (relative humidity) 0 to 1, speed 0 to 100 m/s.
@@ -68,7 +77,9 @@ from layers.formatting import format_duration
 from layers.units import KINDS, unit_factor
 
 __all__ = [
+    "MISSING_ROW_FACTOR",
     "RANGES",
+    "FilledGaps",
     "ColumnSpec",
     "Forcing",
     "Series",
@@ -84,6 +95,12 @@ RANGES: dict[str, tuple[float, float, str]] = {
     "fraction": (0.0, 1.0, "1"),
     "speed": (0.0, 100.0, "m/s"),
 }
+
+#: An interval between rows longer than this many times the median interval holds
+#: missing rows (reported; within ``max_interval`` they are bridged, not refused).
+MISSING_ROW_FACTOR = 1.5
+#: How many places a gap report lists before "and N more".
+GAPS_SHOWN = 3
 
 _NETCDF_SUFFIXES = {".nc", ".nc4", ".netcdf", ".cdf"}
 _MISSING_TOKENS = {"", "nan", "na", "n/a", "#n/a", "null", "none"}
@@ -121,6 +138,47 @@ class ColumnSpec:
     kind: str
 
 
+@dataclass(frozen=True)
+class FilledGaps:
+    """Gaps of one kind that reading a series filled by linear interpolation in time.
+
+    Attributes
+    ----------
+    file : str
+        The series file.
+    column : str
+        What was filled: ``"column T_out"`` (missing values), or the time
+        column for missing rows (every column is interpolated across them).
+    kind : str
+        ``"missing values"`` or ``"missing rows"``.
+    gaps : int
+        How many separate gaps.
+    values : int
+        How many values were filled (missing values), or about how many rows
+        were missing (missing rows).
+    places : tuple of str
+        One text per gap: its first UTC stamp and where it is in the file.
+    """
+
+    file: str
+    column: str
+    kind: str
+    gaps: int
+    values: int
+    places: tuple[str, ...]
+
+    def describe(self) -> str:
+        """One line: file, column, counts and the first :data:`GAPS_SHOWN` places."""
+        shown = ", ".join(self.places[:GAPS_SHOWN])
+        more = f", and {len(self.places) - GAPS_SHOWN} more" if len(self.places) > GAPS_SHOWN else ""
+        plural = "s" if self.gaps != 1 else ""
+        if self.kind == "missing rows":
+            what = f"{self.gaps} gap{plural} of missing rows (about {self.values} row{'s' if self.values != 1 else ''}) bridged"
+        else:
+            what = f"{self.gaps} gap{plural} of missing values ({self.values} value{'s' if self.values != 1 else ''}) filled"
+        return f"{self.file}: {self.column}: {what} by linear interpolation in time: {shown}{more}"
+
+
 @dataclass
 class Series:
     """A checked time series in SI on a UTC time axis.
@@ -141,6 +199,13 @@ class Series:
         How many values of each column were filled by interpolation.
     units : dict[str, str]
         The unit each column was written in, in the file.
+    gaps : tuple of FilledGaps
+        Every gap filled or bridged, by kind and column (also warned).
+    time_form : str
+        How the file writes its stamps: ``"naive"``, ``"offsets +01:00, ..."``
+        (the distinct offsets) or ``"cf"`` (netCDF CF times, UTC).
+    timezone : str
+        The zone naive stamps were read in.
     """
 
     time: np.ndarray
@@ -151,6 +216,9 @@ class Series:
     embedded: str | None = field(default=None, kw_only=True)  # the file's text, when the case embeds it
     filled: dict[str, int] = field(default_factory=dict)
     units: dict[str, str] = field(default_factory=dict)
+    gaps: tuple[FilledGaps, ...] = ()
+    time_form: str = "naive"
+    timezone: str = "UTC"
 
     def seconds_since(self, start: np.datetime64) -> np.ndarray:
         """Time of each row after ``start`` [s] (negative before it)."""
@@ -320,16 +388,28 @@ class _Raw:
     columns: dict[str, np.ndarray]  # file column -> float64, unconverted
     row: Callable[[int], str]  # index -> "row 14" / "time[13]"
     column: Callable[[str], str]  # name -> "column T_out" / "variable T_out"
+    form: str = "naive"  # how the stamps were written: "naive", "offsets +01:00, ..." or "cf" (netCDF, UTC)
 
 
-def _parse_times(texts: list[str], clock: Clock, where: Callable[[int], tuple[str, str]]) -> np.ndarray:
-    """ISO 8601 strings -> UTC seconds since 1970 (int64), within :data:`YEARS`."""
-    seconds = _iso_seconds(texts, clock, where)
+def _offset_text(seconds: int) -> str:
+    """A UTC offset [s] as ``+01:00`` (``Z`` for zero)."""
+    if seconds == 0:
+        return "Z"
+    sign = "+" if seconds > 0 else "-"
+    hours, minutes = divmod(abs(int(seconds)) // 60, 60)
+    return f"{sign}{hours:02d}:{minutes:02d}"
+
+
+def _parse_times(texts: list[str], clock: Clock, where: Callable[[int], tuple[str, str]]) -> tuple[np.ndarray, str]:
+    """ISO 8601 strings -> UTC seconds since 1970 (int64), within :data:`YEARS`,
+    and how the stamps were written: ``"naive"`` or ``"offsets ..."`` (the
+    distinct offsets).  A column that mixes the two is refused."""
+    seconds, form = _iso_seconds(texts, clock, where)
     check_years(seconds, where)
-    return seconds
+    return seconds, form
 
 
-def _iso_seconds(texts: list[str], clock: Clock, where: Callable[[int], tuple[str, str]]) -> np.ndarray:
+def _iso_seconds(texts: list[str], clock: Clock, where: Callable[[int], tuple[str, str]]) -> tuple[np.ndarray, str]:
     if texts and all(_NUMBER.fullmatch(t) for t in texts[:3]):
         raise SeriesError(
             *where(0),
@@ -347,7 +427,7 @@ def _iso_seconds(texts: list[str], clock: Clock, where: Callable[[int], tuple[st
             stamps = None
         if stamps is not None and not np.isnat(stamps).any():
             seconds = (stamps.astype(np.int64) + 500) // 1000
-            return seconds if clock.is_utc else clock.to_utc(seconds, where)
+            return (seconds if clock.is_utc else clock.to_utc(seconds, where)), "naive"
     n = len(texts)
     bases: list[str] = [""] * n
     offsets = np.zeros(n, dtype=np.int64)
@@ -376,13 +456,27 @@ def _iso_seconds(texts: list[str], clock: Clock, where: Callable[[int], tuple[st
             except ValueError:
                 raise SeriesError(*where(i), f"cannot read {texts[i]!r} as a time ({hint})") from None
         raise
+    if naive.any() and not naive.all():
+        # one file, one convention: a mix is a sign of files joined from two sources,
+        # and the zone of the naive stamps beside the offsets would be a guess
+        first_naive, first_offset = int(np.argmax(naive)), int(np.argmax(~naive))
+        i, j = max(first_naive, first_offset), min(first_naive, first_offset)
+        file, key = where(i)
+        other = where(j)[1].split(",")[0]
+        has, lacks = ("has no UTC offset", "has one") if naive[i] else ("has a UTC offset", "has none")
+        raise SeriesError(
+            file, key,
+            f"{texts[i].strip()!r} {has} while {other} ({texts[j].strip()!r}) {lacks}: write every time stamp "
+            f"of the column with an offset or every one without (then series.timezone says their zone)",
+        )
     ms = stamps.astype(np.int64)
     seconds = (ms + 500) // 1000  # round sub-second stamps to the nearest second
     seconds = seconds - offsets
-    if naive.any() and not clock.is_utc:
-        index = np.flatnonzero(naive)
-        seconds[index] = clock.to_utc(seconds[index], lambda j: where(int(index[j])))
-    return seconds
+    if naive.any():
+        if not clock.is_utc:
+            seconds = clock.to_utc(seconds, where)
+        return seconds, "naive"
+    return seconds, "offsets " + ", ".join(_offset_text(int(o)) for o in np.unique(offsets)[::-1])
 
 
 def _to_floats(texts: list[str], decimal_comma: bool, where: Callable[[int], tuple[str, str]]) -> np.ndarray:
@@ -487,12 +581,12 @@ def _read_csv(data: bytes, file: str, time: str, columns: list[str], clock: Cloc
         raise SeriesError(file, f"row {header_row + 1}", "the file has a header but no data rows")
     line_numbers = np.asarray(lines)
     decimal_comma = delimiter != ","
-    seconds = _parse_times(times, clock, lambda i: (file, f"row {lines[i]}, column {time}"))
+    seconds, form = _parse_times(times, clock, lambda i: (file, f"row {lines[i]}, column {time}"))
     raw = {
         name: _to_floats(store, decimal_comma, lambda i, name=name: (file, f"row {lines[i]}, column {name}"))
         for name, store in zip(wanted, cells)
     }
-    return _Raw(seconds, raw, lambda i: f"row {line_numbers[i]}", lambda c: f"column {c}")
+    return _Raw(seconds, raw, lambda i: f"row {line_numbers[i]}", lambda c: f"column {c}", form)
 
 
 def _check_declared_unit(declared: object, spec: ColumnSpec, factor: tuple[float, float], file: str, case_file: str) -> None:
@@ -561,7 +655,7 @@ def _read_netcdf(path: Path, file: str, time: str, specs: Sequence[ColumnSpec], 
                 raw[spec.column] = np.asarray(var.values, dtype=np.float64)
             except (TypeError, ValueError):
                 raise SeriesError(file, f"variable {spec.column}", f"is not numeric (dtype {var.dtype})") from None
-    return _Raw(seconds, raw, lambda i: f"{time}[{i}]", lambda c: f"variable {c}")
+    return _Raw(seconds, raw, lambda i: f"{time}[{i}]", lambda c: f"variable {c}", "cf")
 
 
 def _is_netcdf(path: Path, data: bytes) -> bool:
@@ -587,6 +681,24 @@ def _check_order(t: np.ndarray, raw: _Raw, file: str, time: str) -> None:
         f"time {_iso(t[i] + _EPOCH64)} is earlier than {_iso(t[i - 1] + _EPOCH64)} in {raw.row(i - 1)}: "
         "rows must be in time order",
     )
+
+
+def _missing_rows(t: np.ndarray, raw: _Raw, file: str, time: str) -> FilledGaps | None:
+    """The intervals between rows longer than :data:`MISSING_ROW_FACTOR` times the
+    median (rows missing from a regular file), or None; call before
+    :func:`_bridge_gaps`, on the file's own rows."""
+    step = np.diff(t)
+    median = float(np.median(step))
+    long = np.flatnonzero(step > MISSING_ROW_FACTOR * median)
+    if not long.size or median <= 0:
+        return None
+    rows = [max(int(round(step[g] / median)) - 1, 1) for g in long]
+    places = tuple(
+        f"after {_iso(t[g] + _EPOCH64)} ({raw.row(int(g))}, {format_duration(float(step[g]), approximate=True)} to the next row)"
+        for g in long
+    )
+    column = f"{raw.column(time)} (usual interval {format_duration(median, approximate=True)})"
+    return FilledGaps(file, column, "missing rows", int(long.size), int(sum(rows)), places)
 
 
 def _bridge_gaps(t: np.ndarray, raw: _Raw, file: str, time: str, fill_gaps: float | None, max_interval: float | None) -> tuple[np.ndarray, np.ndarray]:
@@ -634,11 +746,13 @@ def _bridge_gaps(t: np.ndarray, raw: _Raw, file: str, time: str, fill_gaps: floa
 
 def _fill_missing(
     t: np.ndarray, v: np.ndarray, origin: np.ndarray, raw: _Raw, file: str, column: str, fill_gaps: float | None
-) -> int:
-    """Fill NaN runs in place by linear interpolation in time; return how many were filled."""
+) -> tuple[int, FilledGaps | None]:
+    """Fill NaN runs in place by linear interpolation in time; return how many
+    values were filled (rows inserted into bridged gaps included) and the
+    report of the runs that hold values missing from the file's own rows."""
     missing = np.isnan(v)
     if not missing.any():
-        return 0
+        return 0, None
 
     def row(i: int) -> str:
         if origin[i] >= 0:
@@ -676,7 +790,18 @@ def _fill_missing(
             )
     valid = ~missing
     v[missing] = np.interp(t[missing].astype(np.float64), t[valid].astype(np.float64), v[valid])
-    return int(missing.sum())
+    places: list[str] = []
+    count = 0
+    for s, e in zip(starts, ends):
+        real = origin[s:e + 1] >= 0  # cells of the file's own rows (not rows inserted into a gap)
+        if not real.any():
+            continue
+        count += int(real.sum())
+        first = s + int(np.argmax(real))
+        n = int(real.sum())
+        places.append(f"{_iso(t[first] + _EPOCH64)} ({raw.row(int(origin[first]))}{f', {n} values in a row' if n > 1 else ''})")
+    report = FilledGaps(file, where, "missing values", len(places), count, tuple(places)) if places else None
+    return int(missing.sum()), report
 
 
 def _check_range(v: np.ndarray, spec: ColumnSpec, raw_values: np.ndarray, raw: _Raw, file: str) -> None:
@@ -779,19 +904,25 @@ def read_series(
     if t.size < 2:
         raise SeriesError(file, f"{raw.row(0)}, {raw.column(time)}", "a series needs at least two rows")
     _check_order(t, raw, file, time)
+    rows_report = _missing_rows(t, raw, file, time)
     t, origin = _bridge_gaps(t, raw, file, time, fill_gaps, max_interval)
     real = origin >= 0
 
     values: dict[str, np.ndarray] = {}
     filled: dict[str, int] = {}
+    reports: list[FilledGaps] = [rows_report] if rows_report is not None else []
     for spec in columns:
         a, b = factors[spec.name]
         file_values = raw.columns[spec.column]
         _check_range(a * file_values + b, spec, file_values, raw, file)
         v = np.full(t.size, np.nan)
         v[real] = a * file_values + b
-        filled[spec.name] = _fill_missing(t, v, origin, raw, file, spec.column, fill_gaps)
+        filled[spec.name], report = _fill_missing(t, v, origin, raw, file, spec.column, fill_gaps)
+        if report is not None and all(r.column != report.column for r in reports):  # a column used twice: once
+            reports.append(report)
         values[spec.name] = v
+    for report in reports:
+        warnings.warn(report.describe(), UserWarning, stacklevel=2)
     return Series(
         time=t.astype("datetime64[s]"),
         values=values,
@@ -800,6 +931,9 @@ def read_series(
         sha256=digest,
         filled=filled,
         units={spec.name: spec.unit for spec in columns},
+        gaps=tuple(reports),
+        time_form=raw.form,
+        timezone=clock.text,
     )
 
 

@@ -97,7 +97,7 @@ def size(case: Case, progress: Callable[[int, int], None] | None = None) -> xr.D
             "sample the steady criteria, or run the freeze sizing at the worst plausible values",
         )
     if case.uncertainty is not None:
-        sized = f"layers.{s.layer}.thickness"
+        sized = f"layers.{s.listed}.thickness"
         if any(v.key == sized for v in case.uncertainty.vary):
             raise CaseError(
                 case.path, f"uncertainty.vary.{sized}",
@@ -123,7 +123,7 @@ def size(case: Case, progress: Callable[[int, int], None] | None = None) -> xr.D
         attrs.update(extra)
     ds = xr.Dataset(
         data,
-        coords={"thickness": ("thickness", thick, {"units": "m", "long_name": f"thickness of layer {s.layer} ({case.layers[s.layer - 1].name})"})},
+        coords={"thickness": ("thickness", thick, {"units": "m", "long_name": f"thickness of layer {s.listed} ({case.layers[s.layer - 1].name})"})},
     )
     ds.attrs = {
         "Conventions": "CF-1.10",
@@ -134,7 +134,7 @@ def size(case: Case, progress: Callable[[int, int], None] | None = None) -> xr.D
         "software_version": __version__,
         "created": utc_now(),
         "geometry": case.geometry,
-        "sized_layer": s.layer,
+        "sized_layer": s.listed,
         "recommended_thickness": recommended,
         "design_conditions": f"boundary values at {np.datetime_as_string(design_time(case), unit='m')}Z"
         + (" ([sizing] design_time)" if s.design_time is not None else " (the run's start)"),

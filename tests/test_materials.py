@@ -376,6 +376,8 @@ def test_material_is_immutable_and_compares_by_value(library):
         category=material.category,
         source=material.source,
         max_temperature=material.max_temperature,
+        vapour_resistance_factor=material.vapour_resistance_factor,
+        vapour_resistance_factor_wet_cup=material.vapour_resistance_factor_wet_cup,
     )
     assert twin == material and hash(twin) == hash(material)
     assert material != library["pur-pipe"]

@@ -257,7 +257,7 @@ def test_offsets_convert_to_utc(tmp_path):
         "2026-07-01T02:00+01:00,11,100\n"  # 01:00Z
         "2026-07-01T02:00:00+0000,12,200\n"  # 02:00Z
         "2026-06-30T22:00-05:00,13,300\n"  # 03:00Z
-        "2026-07-01 04:00,14,400\n"  # naive, read as UTC
+        "2026-07-01 04:00Z,14,400\n"  # a space for the T (a naive stamp among these is refused: test_first_hour)
     )
     path = write(tmp_path, text)
     s = read_series(path, [T_OUT, SOLAR], timezone="UTC")

@@ -371,3 +371,57 @@ def test_steady_surface_balance_with_a_radiant_temperature_apart_from_the_air(wr
     assert float(st.surface_temperature_outside[0]) == pytest.approx(ts, abs=1e-6)
     ds = simulate(case)
     assert float(ds.surface_temperature_outside[0]) == pytest.approx(ts, abs=1e-4)
+
+
+def test_a_membrane_before_the_sized_layer_keeps_the_case_files_numbering(write_case):
+    """[sizing] layer counts the case file's [[layers]] tables, membranes included
+    (they have no thermal part): the sizing result names that number, and an
+    uncertainty on the sized thickness is refused under that same key."""
+    text = """
+        [[layers]]
+        material = "plasterboard"
+        thickness = "12.5 mm"
+        [[layers]]
+        kind = "membrane"
+        material = "polyethylene-vcl"
+        [[layers]]
+        material = "mineral-wool"
+        thickness = "100 mm"
+        [inside]
+        type = "film"
+        air_temperature = "20 degC"
+        surface_resistance = "0.13 m2*K/W"
+        [outside]
+        type = "film"
+        air_temperature = "-5 degC"
+        surface_resistance = "0.04 m2*K/W"
+        [sizing]
+        layer = 3
+        thicknesses = ["50 mm", "100 mm", "150 mm"]
+        max_heat_loss = "10 W/m2"
+        [time]
+        duration = "1 d"
+        step = "1 h"
+        """
+    case = load_case(write_case(text))
+    assert case.sizing.layer == 2 and case.sizing.listed == 3
+    ds = size(case)
+    assert ds.attrs["sized_layer"] == 3
+    assert "layer 3 (mineral-wool" in ds["thickness"].attrs["long_name"]
+    # U = 1 / (0.13 + 0.0125/0.25 + d/0.035 + 0.04) (ISO 6946 sum; library values for the two materials)
+    from layers.materials import resolve
+
+    k_board = float(resolve("plasterboard", file="t", key="k").conductivity)
+    k_wool = float(resolve("mineral-wool", file="t", key="k").conductivity)
+    for d, q in zip((0.05, 0.10, 0.15), ds["heat_flow"].values):
+        assert float(q) == pytest.approx(25.0 / (0.13 + 0.0125 / k_board + d / k_wool + 0.04), rel=1e-6)
+    from layers.errors import CaseError
+
+    varied = text + """
+        [uncertainty]
+        samples = 16
+        [uncertainty.vary]
+        "layers.3.thickness" = {relative_sd = "5 %"}
+        """
+    with pytest.raises(CaseError, match="layers.3.thickness"):
+        size(load_case(write_case(varied)))
