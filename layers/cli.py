@@ -149,7 +149,7 @@ def cmd_size(args: argparse.Namespace) -> int:
     written = archive(ds, f"{case.stem}-size", args.archive)
     extra = write_output(ds, args.out)
     layer = case.sizing.layer
-    print(f"{case.title}: sizing layer {layer} ({case.layers[layer - 1].name})")
+    print(f"{case.title}: sizing layer {case.sizing.listed} ({case.layers[layer - 1].name})")
     print(f"design conditions: {ds.attrs['design_conditions']}")
     print(criteria_table(ds))
     rec = ds.attrs["recommended_thickness"]
@@ -170,6 +170,32 @@ def cmd_size(args: argparse.Namespace) -> int:
     for line in cautions(case):
         print(f"caution: {line}")
     return EXIT_OK if math.isfinite(rec) else EXIT_FAILED
+
+
+def cmd_condensation(args: argparse.Namespace) -> int:
+    """``layers condensation CASE [-o OUT.nc] [--archive DIR]``: ISO 13788 monthly method; exit 1 when moisture accumulates."""
+    from layers.api import condensation
+    from layers.case import load_case
+    from layers.iso13788 import CAUTION_GLASER, VERDICTS, condensation_table, summary_lines
+    from layers.results import archive, archive_dir, refuse_existing, usable_folder, write_output
+
+    refuse_existing(args.out)
+    usable_folder(archive_dir(args.archive), make=False)
+    case = load_case(args.case)
+    _say_warnings(args)
+    ds = condensation(case)
+    written = archive(ds, f"{case.stem}-condensation", args.archive)
+    extra = write_output(ds, args.out)
+    print(f"{case.title}: ISO 13788 monthly interstitial condensation")
+    print(condensation_table(ds))
+    for line in summary_lines(ds):
+        print(line)
+    print(f"archived: {written}")
+    if extra:
+        print(f"written:  {extra}")
+    print(f"caution: {CAUTION_GLASER}")
+    print(f"caution: {CAUTION}")
+    return EXIT_FAILED if ds.attrs["verdict"] == VERDICTS[2] else EXIT_OK
 
 
 #: Most local worker processes ``--workers`` starts.
@@ -325,6 +351,49 @@ def cmd_compare(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def cmd_report(args: argparse.Namespace) -> int:
+    """``layers report RUN.nc [RUN2.nc ...] [-o OUT.html]``."""
+    from layers.html_report import write_report
+
+    written = write_report(args.runs, args.out, tuple(args.series_dir or ()))
+    print(f"written: {written.path}")
+    for line in written.cautions:
+        print(f"caution: {line}")
+    return EXIT_OK
+
+
+def cmd_verify(args: argparse.Namespace) -> int:
+    """``layers verify [-o OUT.html] [--markdown FILE.md]``: the shipped checks against published sources.
+
+    Exit 0 when every check passes, 1 when one fails, 2 for an output that would overwrite a file.
+    """
+    import time
+
+    from layers import verification
+    from layers.results import refuse_existing
+
+    refuse_existing(args.out, suffixes=(".html", ".htm"))
+    if args.markdown:
+        verification.check_markdown_target(args.markdown)
+    terminal = sys.stderr.isatty() and not args.quiet
+
+    def progress(done: int, total: int, result) -> None:
+        if terminal:
+            verdict = "pass" if result.passed else "FAIL"
+            print(f"[{done:2d}/{total}] {verdict}  {result.check.id} ({result.seconds:.1f} s)", file=sys.stderr, flush=True)
+
+    start = time.perf_counter()
+    results = verification.run_checks(progress=progress)
+    seconds = time.perf_counter() - start
+    print(verification.text_report(results))
+    print(f"time: {seconds:.1f} s")
+    if args.out:
+        print(f"written: {verification.write_html(args.out, results, seconds=seconds)}")
+    if args.markdown:
+        print(f"written: {verification.write_markdown(args.markdown, results)}")
+    return EXIT_OK if all(r.passed for r in results) else EXIT_FAILED
+
+
 def cmd_list(args: argparse.Namespace) -> int:
     """``layers list [DIR] [--json]``."""
     import json
@@ -386,6 +455,12 @@ def build_parser() -> argparse.ArgumentParser:
     s.add_argument("-q", "--quiet", action="store_true", help="no progress bar")
     s.set_defaults(func=cmd_size)
 
+    co = sub.add_parser("condensation", help="ISO 13788 monthly interstitial condensation (needs [condensation])")
+    co.add_argument("case")
+    co.add_argument("-o", "--out", help="also write the result to this netCDF file (never overwritten)")
+    co.add_argument("--archive", help="archive folder (default: $LAYERS_ARCHIVE or runs/)")
+    co.set_defaults(func=cmd_condensation)
+
     d = sub.add_parser("periodic", help="ISO 13786 dynamic thermal characteristics")
     d.add_argument("case")
     d.add_argument("--period", default="24 h", help="period of the cycle (default 24 h)")
@@ -396,7 +471,7 @@ def build_parser() -> argparse.ArgumentParser:
     pl.add_argument("run", help="a run's netCDF file (or one from layers size or layers sweep)")
     pl.add_argument("-o", "--out")
     pl.add_argument("--kind", default=None, help="default: sweep for a sweep file, sizing for a sizing file, else surfaces",
-                    choices=["carpet", "surfaces", "profiles", "sizing", "sweep"])
+                    choices=["carpet", "surfaces", "profiles", "sizing", "sweep", "condensation"])
     pl.add_argument("--times", nargs="*", help="profiles: times to draw (ISO 8601)")
     pl.add_argument("--variable", metavar="NAME", help="sweep: the result per point to map (default heat_flow_inside_mean)")
     pl.add_argument("--from", dest="start", metavar="WHEN", help="surfaces: first time to draw (ISO 8601, UTC)")
@@ -408,6 +483,13 @@ def build_parser() -> argparse.ArgumentParser:
     cp.add_argument("-o", "--out", help="overlay plot (PNG, SVG, PDF) or combined Dataset (.nc)")
     cp.set_defaults(func=cmd_compare)
 
+    rp = sub.add_parser("report", help="a calculation report for a client (one self-contained HTML page)")
+    rp.add_argument("runs", nargs="+", metavar="RUN.nc", help="result files of run, size, periodic, sweep or condensation")
+    rp.add_argument("-o", "--out", help="the page (.html; default <first file's stem>-report.html here; never overwritten)")
+    rp.add_argument("--series-dir", action="append", metavar="DIR",
+                    help="a folder to look in for the cases' series files, to describe the inputs (repeatable)")
+    rp.set_defaults(func=cmd_report)
+
     ls = sub.add_parser("list", help="list the archived runs")
     ls.add_argument("dir", nargs="?")
     ls.add_argument("--json", action="store_true")
@@ -416,6 +498,13 @@ def build_parser() -> argparse.ArgumentParser:
     m = sub.add_parser("materials", help="the material library")
     m.add_argument("word", nargs="?")
     m.set_defaults(func=cmd_materials)
+
+    vf = sub.add_parser("verify", help="re-run the checks against published sources")
+    vf.add_argument("-o", "--out", metavar="OUT.html", help="also write the checks as an HTML page (never overwritten)")
+    vf.add_argument("--markdown", metavar="FILE.md", help="write the table as Markdown: a new file, or regenerate the "
+                    "section between the `layers verify` markers of an existing one (docs/validation.md)")
+    vf.add_argument("-q", "--quiet", action="store_true", help="no progress lines")
+    vf.set_defaults(func=cmd_verify)
     return p
 
 
