@@ -17,6 +17,8 @@ temporary folder; none of it is measured data.
     * the default path: ``scheme = "auto"`` takes the exact modal path here
       (:func:`layers.exact.exact_march`; ``simulate`` end to end is printed too),
     * the stepping march, :func:`layers.march.march` with backward Euler and TR-BDF2,
+      and :func:`layers.march.march_batch` with 256 walls together (as sweeps and
+      uncertainty samples march; kept daily, to bound memory),
     * the plain baseline: a loop of one ``scipy.linalg.solve_banded`` call per
       backward-Euler step, on matrices built here from the mesh,
     * the floor of any Python-level loop: LAPACK ``dpttrs`` per step on a
@@ -45,6 +47,8 @@ temporary folder; none of it is measured data.
     file included).  Baseline: the case of
     each of 20 grid points read from its own file and run with ``simulate``,
     extrapolated to 1,000.  The 20 points must equal the sweep's to 1e-6 K.
+    Then a nonlinear sweep: 64 wall-years with automatic films (the stepping
+    path, TR-BDF2), marched together, against two points run alone.
 
 (c) Sizing with 10,000 candidate thicknesses (the hot-oil line of
     ``cases/hot-oil-line-touch.toml`` with ``thicknesses = {from = "20 mm",
@@ -110,7 +114,7 @@ from scipy.linalg import lapack  # noqa: E402
 from bench_startup import layers_command, wall_time  # noqa: E402
 from layers.api import load_case, sweep  # noqa: E402
 from layers.exact import exact_march  # noqa: E402
-from layers.march import march  # noqa: E402
+from layers.march import march, march_batch  # noqa: E402
 from layers.simulation import initial_state, simulate, system_for  # noqa: E402
 from layers.sizing import size  # noqa: E402
 
@@ -129,6 +133,8 @@ SIZING_AGREEMENT = 1e-3
 WINDOW_HOURS = 30 * 24
 #: (a) BDF tolerances tried (rtol = atol), loosest first.
 BDF_TOLERANCES = (1e-4, 5e-5, 2e-5, 1e-5, 5e-6, 2e-6, 1e-6)
+#: (a) walls marched together by the batched stepping path.
+BATCH = 256
 #: (a) a step's run over the full year is made only when it is expected to take less than this [s].
 YEAR_CHECK_BUDGET = 8.0
 
@@ -466,6 +472,11 @@ def section_a(repeat: int, quick: bool, air: np.ndarray, sun: np.ndarray) -> Non
         sim_diff = float(np.max(np.abs(ds["temperature"].values - ref)))
         t_be, be = timed(lambda: march(system, initial, HOUR, n, output_every=1, scheme="backward-euler"), repeat, warm=True)
         t_tr, tr = timed(lambda: march(system, initial, HOUR, n, output_every=1, scheme="tr-bdf2"), repeat, warm=True)
+        # the stepping path as sweeps and samples use it: BATCH walls marched together (one tridiagonal
+        # system; the cost does not depend on the members being alike), kept daily to bound memory
+        t_batch, batch = timed(lambda: march_batch([system] * BATCH, [initial] * BATCH, HOUR, n, output_every=24,
+                                                   scheme="backward-euler"), max(1, repeat // 2), warm=True)
+        batch_diff = float(np.max(np.abs(batch[-1].temperature - be.temperature[::24][: batch[-1].temperature.shape[0]])))
         t_band, band = timed(lambda: banded_loop(hs, initial, n), repeat, warm=True)
         t_floor, floor = timed(lambda: floor_loop(hs, initial, n), repeat, warm=True)
         c_function, c_how = compiled_loop()
@@ -524,6 +535,8 @@ def section_a(repeat: int, quick: bool, air: np.ndarray, sun: np.ndarray) -> Non
         row("default, surfaces and layer faces only (no field)", t_surf, surf_diff, "(surface temperatures vs exact_march)")
         row("march backward Euler, 1 h", t_be, surface_error(be.temperature, ref))
         row("march TR-BDF2, 1 h (2 stage solves per step)", t_tr, surface_error(tr.temperature, ref))
+        row(f"march_batch backward Euler, {BATCH} walls, per wall", t_batch / BATCH, None,
+            f"(kept daily; a member vs the lone march: {batch_diff:.1e} K)")
         row("plain loop: solve_banded per step, BE 1 h", t_band, surface_error(band, ref), "(baseline)")
         row("floor: dpttrs per step, factorised once, BE", t_floor, surface_error(floor, ref))
         if c_function is not None:
@@ -569,11 +582,15 @@ def section_a(repeat: int, quick: bool, air: np.ndarray, sun: np.ndarray) -> Non
                    f"BE {be_ns:.0f} ns, TR-BDF2 {tr_ns:.0f} ns per cell-step", "within 3x of C", None)
         else:
             c_ns = t_c * per_cell
+            batch_ns = t_batch / BATCH * per_cell
             print(f"    stepping path per cell-step: backward Euler {be_ns:.0f} ns ({be_ns / c_ns:.1f}x the C loop), TR-BDF2 {tr_ns:.0f} ns "
-                  f"({tr_ns / c_ns:.1f}x); compiled C loop {c_ns:.1f} ns; dpttrs floor of a Python loop {floor_ns:.0f} ns ({floor_ns / c_ns:.1f}x); "
+                  f"({tr_ns / c_ns:.1f}x); {BATCH} walls marched together {batch_ns:.1f} ns ({batch_ns / c_ns:.1f}x); compiled C loop {c_ns:.1f} ns; "
+                  f"dpttrs floor of a Python loop {floor_ns:.0f} ns ({floor_ns / c_ns:.1f}x); "
                   f"the default path {t_surf * per_cell:.1f} ns ({t_surf / t_c:.2f}x) with surfaces and faces only")
-            target(f"(a) N={cells}: stepping path (backward Euler) within 3x of a compiled C loop per cell-step",
+            target(f"(a) N={cells}: stepping path (backward Euler), one wall, within 3x of a compiled C loop per cell-step",
                    f"BE {be_ns:.0f} ns = {be_ns / c_ns:.1f}x C ({c_ns:.1f} ns); TR-BDF2 {tr_ns / c_ns:.1f}x", "within 3x of C", be_ns <= 3.0 * c_ns)
+            target(f"(a) N={cells}: stepping path (backward Euler), {BATCH} walls together, within 3x of a compiled C loop per cell-step",
+                   f"{batch_ns:.1f} ns = {batch_ns / c_ns:.1f}x C ({c_ns:.1f} ns)", "within 3x of C", batch_ns <= 3.0 * c_ns)
 
 
 # --------------------------------------------------------------------------- (b)
@@ -648,6 +665,44 @@ def section_b(repeat: int) -> None:
     print(f"    agreement: the {chosen.size} lone runs vs their sweep points (surface temperatures, heat flows): "
           + check("(b) sweep points vs lone simulate", diff, SWEEP_AGREEMENT, "K or W m-2"))
     print(f"    target: 1,000 wall-years under 3 s: {t_sweep:.2f} s ({target('(b) 1,000 wall-years in one sweep', f'{t_sweep:.2f} s', 'under 3 s', t_sweep < 3.0)})")
+    section_b_nonlinear()
+
+
+#: (b) the nonlinear sweep: automatic films on both sides (ISO 6946 inside, wind and sky outside)
+AUTO_WEATHER = WEATHER.replace('surface_resistance = "0.13 m2*K/W"', 'film_coefficient = "auto"\nheat_flow_direction = "horizontal"').replace(
+    'surface_resistance = "0.04 m2*K/W"', 'film_coefficient = "auto"\nwind_speed = "3 m/s"\nemissivity = 0.9')
+AUTO_POINTS = 64
+
+
+def section_b_nonlinear() -> None:
+    """64 wall-years whose films depend on the surface temperature: the stepping path (TR-BDF2),
+    marched together by the sweep, against the same points run one by one."""
+    tables = SWEEP_TABLES.replace("count = 40", "count = 8").replace("count = 25", "count = 8")
+    path = FOLDER / "sweep-auto.toml"
+    path.write_text(SWEEP_WALL.format(thickness="120 mm", conductivity="0.036 W/(m*K)") + AUTO_WEATHER + tables, encoding="utf-8")
+    print(f"    nonlinear: {AUTO_POINTS} wall-years with automatic films on both sides (8 thicknesses x 8 conductivities), TR-BDF2")
+    began = time.perf_counter()
+    ds = sweep(load_case(path))
+    t_sweep = time.perf_counter() - began
+    chosen = [(0, 0), (7, 7)]
+    start = time.perf_counter()
+    diff = 0.0
+    for i, j in chosen:
+        one = FOLDER / f"auto-{i}-{j}.toml"
+        thickness = float(ds["wool_thickness"].values[i])
+        conductivity = float(ds["wool_conductivity"].values[j])
+        one.write_text(SWEEP_WALL.format(thickness=f"{thickness:.15g} mm", conductivity=f"{conductivity:.15g} W/(m*K)") + AUTO_WEATHER,
+                       encoding="utf-8")
+        alone = simulate(load_case(one))
+        member = ds.isel(wool_thickness=i, wool_conductivity=j)
+        for name in ("surface_temperature_inside", "surface_temperature_outside"):
+            diff = max(diff, float(np.max(np.abs(member[name].values - alone[name].values))))
+    t_one = (time.perf_counter() - start) / len(chosen)
+    print(f"    layers.sweep (stepping points marched together)  {t_sweep:7.2f} s  ({t_sweep / AUTO_POINTS * 1e3:.0f} ms per wall-year, "
+          f"scheme {ds.attrs.get('scheme')}); one by one: {t_one:.2f} s per point (1 run each of {len(chosen)}), "
+          f"{t_one * AUTO_POINTS:.1f} s for {AUTO_POINTS}: the sweep is {t_one * AUTO_POINTS / t_sweep:.1f}x faster")
+    print(f"    agreement: lone runs vs their sweep points (surface temperatures): "
+          + check("(b) nonlinear sweep points vs lone simulate", diff, SWEEP_AGREEMENT, "K"))
 
 
 # --------------------------------------------------------------------------- (c)

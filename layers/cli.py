@@ -131,7 +131,7 @@ def cmd_size(args: argparse.Namespace) -> int:
 
     from layers.case import load_case
     from layers.results import archive, archive_dir, refuse_existing, usable_folder, write_output
-    from layers.sizing import cautions, criteria_table, size
+    from layers.sizing import cautions, criteria_table, sizing_table
 
     refuse_existing(args.out)
     usable_folder(archive_dir(args.archive), make=False)
@@ -143,7 +143,7 @@ def cmd_size(args: argparse.Namespace) -> int:
     _say_warnings(args)
     progress = _Progress(args.quiet, f"{case.stem} sizing")
     try:
-        ds = size(case, progress=progress)
+        ds = sizing_table(case, progress=progress)  # printed and archived without xarray (a short command)
     finally:
         progress.close()
     written = archive(ds, f"{case.stem}-size", args.archive)

@@ -12,17 +12,20 @@ import math
 import os
 import tempfile
 from collections.abc import Callable
+from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any, NamedTuple
 
 import numpy as np
-import xarray as xr
 
 from layers.about import CAUTION, __version__
 from layers.catalogue import headline_attributes
 from layers.case import Case
 from layers.errors import CaseError
 from layers.mesh import Mesh
+
+if TYPE_CHECKING:
+    import xarray as xr
 
 ARCHIVE_ENV = "LAYERS_ARCHIVE"
 DEFAULT_ARCHIVE = "runs"
@@ -124,6 +127,8 @@ def to_dataset(
     }
     if case.geometry != "planar":
         coords["radius"] = ("x", mesh.radius, {"units": "m", "long_name": "radius of the cell centre"})
+    import xarray as xr
+
     ds = xr.Dataset(data_vars=data_vars, coords=coords)
     # CF cell bounds: the faces of each cell, as the solver used them
     ds["x_bounds"] = (("x", "nv"), np.stack([mesh.x_lo, mesh.x_hi], axis=1), {"units": "m", "long_name": "faces of each cell (distance from the inside surface)"})
@@ -287,9 +292,106 @@ class FieldSink(FieldExtremes):
         self.path.unlink(missing_ok=True)
 
 
-def cf_encoding(ds: xr.Dataset, history: str | None = None) -> xr.Dataset:
+class Column(NamedTuple):
+    """One variable of a :class:`Table`: its values and attributes."""
+
+    values: np.ndarray
+    attrs: dict
+
+
+@dataclass
+class Table:
+    """A small result on one dimension (a sizing: candidates x criteria), kept
+    as plain arrays so that a command can print and archive it without
+    importing xarray (about 0.2 s of a short command); :meth:`to_dataset` gives
+    the labelled Dataset the API returns, and :meth:`to_netcdf` writes the file
+    that Dataset would write (the same variables, attributes and CF encoding:
+    float NaN as ``_FillValue``, booleans as ``int8`` with ``dtype = "bool"``,
+    no ``_FillValue`` on the coordinate; ``tests/test_sizing.py`` reads both
+    back and compares them).
+
+    Attributes
+    ----------
+    dim : str
+        The dimension (and its coordinate variable's name).
+    coordinate : Column
+        The coordinate's values and attributes.
+    variables : dict
+        name -> (dimension, values, attributes), as ``xarray.Dataset`` takes them.
+    attrs : dict
+        Global attributes.
+    """
+
+    dim: str
+    coordinate: Column
+    variables: dict[str, tuple[str, np.ndarray, dict]]
+    attrs: dict[str, Any]
+    encoding: dict[str, Any] = field(default_factory=dict)
+
+    # the few reads of a Dataset the text reports make
+    @property
+    def data_vars(self) -> list[str]:
+        return list(self.variables)
+
+    def __contains__(self, name: str) -> bool:
+        return name in self.variables or name == self.dim
+
+    def __getitem__(self, name: str) -> Column:
+        if name == self.dim:
+            return self.coordinate
+        _, values, attrs = self.variables[name]
+        return Column(np.asarray(values), attrs)
+
+    def to_dataset(self) -> xr.Dataset:
+        """The same result as an ``xarray.Dataset`` (with :func:`cf_encoding`'s encoding)."""
+        import xarray as xr
+
+        ds = xr.Dataset(
+            {name: (dim, np.asarray(values), dict(attrs)) for name, (dim, values, attrs) in self.variables.items()},
+            coords={self.dim: (self.dim, np.asarray(self.coordinate.values), dict(self.coordinate.attrs))},
+        )
+        ds.attrs = dict(self.attrs)
+        ds[self.dim].encoding["_FillValue"] = None
+        return ds
+
+    def to_netcdf(self, path: str | os.PathLike, engine: str = "netcdf4") -> None:
+        """Write the table as a netCDF-4 file, with netCDF4 directly (see the class docstring)."""
+        import netCDF4
+
+        with netCDF4.Dataset(path, "w", format="NETCDF4") as nc:
+            nc.createDimension(self.dim, len(self.coordinate.values))
+            coordinate = nc.createVariable(self.dim, "f8", (self.dim,))
+            coordinate.setncatts(_netcdf_attrs(self.coordinate.attrs))
+            coordinate[:] = np.asarray(self.coordinate.values, dtype=float)
+            for name, (dim, values, attrs) in self.variables.items():
+                values = np.asarray(values)
+                if values.dtype == bool:
+                    var = nc.createVariable(name, "i1", (dim,))
+                    var.setncatts({**_netcdf_attrs(attrs), "dtype": "bool"})
+                    var[:] = values.astype(np.int8)
+                else:
+                    var = nc.createVariable(name, "f8", (dim,), fill_value=np.nan)
+                    var.setncatts(_netcdf_attrs(attrs))
+                    var.set_auto_mask(False)
+                    var[:] = values.astype(float)
+            nc.setncatts(_netcdf_attrs(self.attrs))
+
+
+def _netcdf_attrs(attrs: dict[str, Any]) -> dict[str, Any]:
+    """Attribute values as netCDF stores them (numpy scalars, str, arrays)."""
+    out = {}
+    for key, value in attrs.items():
+        if isinstance(value, bool | np.bool_):
+            value = np.int8(value)
+        elif isinstance(value, int) and not isinstance(value, bool):
+            value = np.int64(value)
+        out[key] = value
+    return out
+
+
+def cf_encoding(ds: xr.Dataset | Table, history: str | None = None) -> xr.Dataset | Table:
     """CF details every written Dataset needs: no _FillValue on coordinates, a history line."""
-    for name in ds.coords:
+    for name in getattr(ds, "coords", ()):  # a Table writes its coordinate without one
         ds[name].encoding["_FillValue"] = None
     if history is not None or not ds.attrs.get("history"):
         ds.attrs["history"] = f"{utc_now()} {history or 'layers'}"
@@ -342,6 +444,8 @@ def read_netcdf(path: str | os.PathLike, key: str = "(file)") -> xr.Dataset:
     path = Path(path)
     if not path.is_file():
         raise CaseError(str(path), key, "no such file")
+    import xarray as xr
+
     try:
         with xr.open_dataset(path, engine="netcdf4") as ds:
             ds = ds.load()

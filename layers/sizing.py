@@ -13,16 +13,18 @@ from __future__ import annotations
 import dataclasses
 import math
 from collections.abc import Callable
-from typing import NamedTuple
+from typing import TYPE_CHECKING, NamedTuple
 
 import numpy as np
-import xarray as xr
 
 from layers.about import CAUTION, __version__
 from layers.case import Case
 from layers.errors import CaseError
-from layers.results import HEAT_FLOW_UNITS, utc_now, cf_encoding
+from layers.results import HEAT_FLOW_UNITS, Column, Table, cf_encoding, utc_now
 from layers.steady import design_time, steady_state
+
+if TYPE_CHECKING:
+    import xarray as xr
 
 CAUTION_TOUCH = (
     "Touch limits depend on the contact time and the surface material (ISO 13732-1:2006; "
@@ -87,6 +89,12 @@ def size(case: Case, progress: Callable[[int, int], None] | None = None) -> xr.D
         ``margin_<criterion>``; ``freeze_time`` and ``time_to_freezing`` [h]
         where asked; attribute ``recommended_thickness`` [m] (NaN if none passes).
     """
+    return sizing_table(case, progress).to_dataset()
+
+
+def sizing_table(case: Case, progress: Callable[[int, int], None] | None = None) -> Table:
+    """:func:`size` as a :class:`layers.results.Table` (what ``layers size``
+    prints and archives without importing xarray)."""
     s = case.sizing
     if s is None:
         raise CaseError(case.path, "sizing", "the case has no [sizing] table")
@@ -121,9 +129,11 @@ def size(case: Case, progress: Callable[[int, int], None] | None = None) -> xr.D
             what = "every criterion" if name == "all" else name.replace("_", " ")
             data[key] = ("thickness", p, {"units": "1", "long_name": f"share of the {n} uncertainty samples in which the candidate meets {what}"})
         attrs.update(extra)
-    ds = xr.Dataset(
+    ds = Table(
+        "thickness",
+        Column(thick, {"units": "m", "long_name": f"thickness of layer {s.listed} ({case.layers[s.layer - 1].name})"}),
         data,
-        coords={"thickness": ("thickness", thick, {"units": "m", "long_name": f"thickness of layer {s.listed} ({case.layers[s.layer - 1].name})"})},
+        {},
     )
     ds.attrs = {
         "Conventions": "CF-1.10",
@@ -253,7 +263,7 @@ def _rows_shown(passes: dict[str, np.ndarray], n: int) -> list[int | None]:
     return out
 
 
-def criteria_table(ds: xr.Dataset) -> str:
+def criteria_table(ds: xr.Dataset | Table) -> str:
     """Text table: one row per candidate, one column per criterion (pass/fail and margin)."""
     names = [v[len("passes_"):] for v in ds.data_vars if v.startswith("passes_") and v != "passes_all"]
     labels = {

@@ -425,3 +425,38 @@ def test_a_membrane_before_the_sized_layer_keeps_the_case_files_numbering(write_
         """
     with pytest.raises(CaseError, match="layers.3.thickness"):
         size(load_case(write_case(varied)))
+
+
+@pytest.mark.parametrize("name", ["hot-oil-line-touch.toml", "chilled-water-condensation.toml", "outdoor-water-freeze.toml"])
+def test_the_sizing_file_written_without_xarray_reads_as_the_dataset_would(name, tmp_path):
+    """`layers size` archives its result from plain arrays (results.Table) so that it
+    need not import xarray; the file must read back exactly as the Dataset that
+    `layers.size` returns reads after xarray writes it (same variables, values,
+    dtypes, attributes and CF decoding)."""
+    from pathlib import Path
+
+    from layers.sizing import sizing_table
+
+    case = load_case(Path(__file__).resolve().parents[1] / "cases" / name)
+    table = sizing_table(case)
+    table.to_netcdf(tmp_path / "table.nc")
+    table.to_dataset().to_netcdf(tmp_path / "xarray.nc")
+    with xr.open_dataset(tmp_path / "table.nc") as a, xr.open_dataset(tmp_path / "xarray.nc") as b:
+        xr.testing.assert_identical(a.load(), b.load())
+        assert a["passes_all"].dtype == bool
+
+
+def test_layers_size_does_not_import_xarray(tmp_path):
+    """The sizing command prints and archives without xarray (and pandas under it),
+    about 0.2 s of a command that otherwise takes about as long as `layers check`."""
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    case = Path(__file__).resolve().parents[1] / "cases" / "hot-oil-line-touch.toml"
+    code = ("import sys; from layers.cli import main; "
+            f"rc = main(['size', {str(case)!r}, '--archive', {str(tmp_path / 'runs')!r}, '--quiet']); "
+            "print(rc, 'xarray' in sys.modules, 'pandas' in sys.modules)")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, cwd=tmp_path, check=True)
+    assert out.stdout.strip().splitlines()[-1] == "0 False False"
+    assert len(list((tmp_path / "runs").glob("*.nc"))) == 1
