@@ -495,7 +495,7 @@ def _inputs(result: Result, section: Section) -> None:
         if case.sizing is not None and result.kind == "sizing":
             spec = case.layers[case.sizing.layer - 1]
             section.input_notes.append(
-                f"The thickness of layer {case.sizing.layer} ({spec.name or spec.material.name}) is varied over the candidates "
+                f"The thickness of layer {case.sizing.listed} ({spec.name or spec.material.name}) is varied over the candidates "
                 f"below; the layer table shows the thickness written in the case.")
     else:
         if result.ds.attrs.get("geometry"):
@@ -538,7 +538,8 @@ def _method_run(ds: xr.Dataset, case: Case | None) -> list[str]:
              + (f"{a['cells']} cells, " if "cells" in a else "") + f"{a.get('geometry', '?')} geometry."]
     line = f"Time scheme: {_SCHEME_TEXT.get(scheme, scheme)}"
     if a.get("scheme_requested") == "auto":
-        line += " (chosen automatically: the case is linear)"
+        line += " (chosen automatically: " + (
+            "the case is linear)" if scheme == "exact" else f"the case is nonlinear{_nonlinear_because(case)}, so it steps)")
     if "time_step" in a:
         line += f"; time step {_duration(float(a['time_step']))}"
     lines.append(line + ".")
@@ -556,13 +557,10 @@ def _method_run(ds: xr.Dataset, case: Case | None) -> list[str]:
     if "nonlinear_unconverged_steps" in a:
         lines.append(f"Temperature-dependent properties or films: chord iteration to {float(a.get('nonlinear_tolerance_K', 1e-6)):g} K, "
                      f"{a['nonlinear_unconverged_steps']} steps not converged.")
-    if case is not None and any(sp.kind == "film" and sp.auto_film for sp in (case.inside, case.outside)):
-        lines.append("Automatic film coefficients: convection correlations by regime (Churchill & Chu; Churchill & Bernstein) "
-                     "plus linearised long-wave radiation (layers method guide, section 7).")
-    if case is not None and any(sp.kind == "film" and not sp.auto_film for sp in (case.inside, case.outside)):
-        lines.append("Fixed films as given in the case; where a planar film gives none, the conventional surface resistances "
-                     "of ISO 6946:2017 Table 7 (R_si 0.13, R_se 0.04 m²·K/W).")
-    if any(str(v).startswith("sol_air_temperature_") for v in ds.data_vars):
+    if case is not None:
+        lines += _film_lines(case)
+    if any(str(v).startswith("sol_air_temperature_") for v in ds.data_vars) and (
+            case is None or any(sp.kind == "film" and not sp.auto_film and sp.solar_irradiance is not None for sp in (case.inside, case.outside))):
         lines.append("Sun on a fixed film: sol-air temperature θ_air + a·I·R_s (ASHRAE Handbook of Fundamentals 2017, ch. 18).")
     if a.get("solar_model"):
         lines.append(f"Sun on the surface from horizontal data: {a['solar_model']}")
@@ -573,6 +571,49 @@ def _method_run(ds: xr.Dataset, case: Case | None) -> list[str]:
     if a.get("uncertainty_samples"):
         lines.append(f"Input tolerances of [uncertainty]: {a['uncertainty_samples']} samples (scrambled Halton points); "
                      "the 5 %, 50 % and 95 % quantiles are reported.")
+    return lines
+
+
+def _nonlinear_because(case: Case | None) -> str:
+    """Why a case is nonlinear, in words (empty when the case is not at hand)."""
+    if case is None:
+        return ""
+    why = []
+    if any(sp.kind == "film" and sp.auto_film for sp in (case.inside, case.outside)):
+        why.append("automatic films")
+    if any(not spec.is_gap and not spec.material.is_constant for spec in case.layers):
+        why.append("a temperature-dependent conductivity")
+    if case.inside.kind == "contents":
+        why.append("contents that freeze")
+    return f" ({', '.join(why)})" if why else ""
+
+
+def _film_lines(case: Case) -> list[str]:
+    """How each film of the case was modelled, with its sources (the models of the exchange room)."""
+    lines = []
+    for sp in (case.inside, case.outside):
+        if sp.kind != "film":
+            continue
+        if not sp.auto_film:
+            lines.append(f"{sp.side.capitalize()} film: fixed, as given in the case ("
+                         f"{1.0 / sp.surface_resistance if sp.surface_resistance else float('inf'):.3g} W/(m²·K)).")
+            continue
+        if case.geometry == "planar" and sp.side == "inside":
+            convection = ("convection by the heat-flow direction of ISO 6946:2017 Annex C (h_c 5.0 up, 2.5 horizontal, 0.7 down "
+                          "W/(m²·K), from memory)" + (", the direction derived at every step from the tilt and the sign of air "
+                                                       "minus surface" if sp.heat_flow_direction == "auto" else
+                                                       f", heat flow {sp.heat_flow_direction}"))
+        elif case.geometry == "planar":
+            convection = "convection h_c = 4 + 4 v from the wind speed (ISO 6946:2017 Annex C, from memory)"
+        else:
+            convection = ("convection by regime for a " + ("cylinder" if case.geometry == "cylinder" else "sphere")
+                          + " (free: Churchill & Chu; forced: Churchill & Bernstein; mixed by their combination; layers method guide, section 7)")
+        radiation = "linearised long-wave radiation to the surroundings at the surface's emissivity"
+        if sp.side == "outside" and (sp.sky_temperature is not None or sp.values.get("sky_auto")):
+            radiation += (" (to the sky and the ground by their view factors; sky temperature "
+                          + ("from the case" if sp.sky_temperature is not None else "by Swinbank (1963), from the air temperature") + ")")
+        sun = ("; absorbed sun a·I added at the surface" if sp.solar_irradiance is not None and sp.solar_absorptance else "")
+        lines.append(f"{sp.side.capitalize()} film: automatic, {convection}, plus {radiation}{sun}.")
     return lines
 
 
@@ -859,6 +900,11 @@ def _condensation_section(result: Result, anchor: str) -> Section:
     first = int(ds.attrs["first_month"]) if str(ds.attrs.get("first_month", "")).strip().lstrip("-").isdigit() else None
     s.job = f"Monthly check of interstitial condensation by vapour diffusion (ISO 13788) in “{s.title}”."
     _inputs(result, s)
+    # the thermal boundaries' air temperatures are not what this check uses: the monthly climate is
+    s.boundaries = []
+    climate = _monthly_climate(ds)
+    if climate is not None:
+        s.inputs.append(climate)
     s.method = [str(ds.attrs.get("method") or "ISO 13788:2012 monthly method for interstitial condensation (Glaser method)")
                 + ": steady vapour diffusion through the layers at each month's mean conditions; vapour condenses where its "
                   "pressure would exceed saturation, and the condensate is carried from month to month."]
@@ -928,6 +974,11 @@ def _condensation_section(result: Result, anchor: str) -> Section:
         s.results.append(Table("Month by month, in calculation order, at the interfaces where vapour condenses", head, body,
                                note="From condensation_rate × the month's length and accumulated_moisture (kg/m² in the file, "
                                     "g/m² here).", wide=True))
+    if "interface_temperature" in ds:
+        t = np.asarray(ds["interface_temperature"].transpose("month", "interface").values, dtype=float)
+        body = [[Cell(_month_name(months[i]))] + [Cell(_num(t[i, k], ".2f"), "num") for k in range(t.shape[1])] for i in order]
+        s.results.append(Table("Interface temperatures [°C] at each month's mean conditions (steady, the case's films)",
+                               ["month"] + [str(n) for n in names], body, wide=True))
     if "vapour_pressure" in ds and "saturation_vapour_pressure" in ds:
         p = np.asarray(ds["vapour_pressure"].transpose("month", "interface").values, dtype=float)
         ps = np.asarray(ds["saturation_vapour_pressure"].transpose("month", "interface").values, dtype=float)
@@ -956,6 +1007,21 @@ def _condensation_section(result: Result, anchor: str) -> Section:
     s.cautions = _dedupe([*condensation_cautions(), str(ds.attrs.get("caution", CAUTION)), CAUTION])
     _provenance(result, s)
     return s
+
+
+def _monthly_climate(ds: xr.Dataset) -> Table | None:
+    """The monthly climate the ISO 13788 check used, as a table (None where the file lacks it)."""
+    names = ("air_temperature_inside", "vapour_pressure_inside", "air_temperature_outside", "relative_humidity_outside",
+             "vapour_pressure_outside")
+    if not all(name in ds for name in names):
+        return None
+    months = [int(m) for m in ds["month"].values]
+    ti, pi, te, rh, pe = (np.asarray(ds[name].values, dtype=float) for name in names)
+    body = [[Cell(_month_name(m)), Cell(_num(ti[i], ".1f"), "num"), Cell(_num(pi[i], ".0f"), "num"), Cell(_num(te[i], ".1f"), "num"),
+             Cell(_num(100.0 * rh[i], ".0f"), "num"), Cell(_num(pe[i], ".0f"), "num")] for i, m in enumerate(months)]
+    return Table("Monthly mean climate of the check ([condensation] of the case)",
+                 ["month", "inside air [°C]", "inside vapour pressure [Pa]", "outside air [°C]", "outside RH [%]",
+                  "outside vapour pressure [Pa]"], body)
 
 
 def condensation_cautions() -> list[str]:

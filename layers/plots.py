@@ -1112,6 +1112,18 @@ def _per_thickness(da: xr.DataArray) -> tuple[np.ndarray, str]:
     return np.asarray(da.values, dtype=float), ""
 
 
+def _flow_word(values: np.ndarray) -> str:
+    """"heat loss" for heat flowing out through the construction (positive, from
+    inside to outside), "heat gain" where it flows in (a chilled line or a cold
+    store), "heat flow" where the candidates differ in direction."""
+    finite = np.asarray(values, dtype=float)[np.isfinite(values)]
+    if finite.size and np.all(finite <= 0.0) and np.any(finite < 0.0):
+        return "heat gain"
+    if finite.size and np.any(finite < 0.0):
+        return "heat flow (magnitude)"
+    return "heat loss"
+
+
 def plot_sizing(ds: xr.Dataset) -> Any:
     """Outside surface temperature, heat loss (and freeze time) against insulation thickness.
 
@@ -1196,13 +1208,15 @@ def plot_sizing(ds: xr.Dataset) -> Any:
             da = ds[panel]
             values, note = _per_thickness(da)
             f_units = _units(da)
-            # the budget bounds the magnitude (a chilled line gains heat: negative flow)
+            # the budget bounds the magnitude; a chilled line gains heat (negative flow, inward)
+            flow_word = _flow_word(values)
             values = np.abs(values)
-            draw(ax, values, "heat loss" + note, 1, 1)
+            draw(ax, values, flow_word + note, 1, 1)
             cap = _number(ds.attrs.get("max_heat_loss"))
-            limit(ax, cap, f"heat-loss budget {cap:g} {pretty_units(f_units)}" if cap is not None else "", 3,
+            budget = {"heat loss": "heat-loss budget", "heat gain": "heat-gain budget"}.get(flow_word, "heat-flow budget")
+            limit(ax, cap, f"{budget} {cap:g} {pretty_units(f_units)}" if cap is not None else "", 3,
                   (0, (6, 2)))
-            ax.set_ylabel(axis_label("heat loss", f_units))
+            ax.set_ylabel(axis_label(flow_word, f_units))
         else:
             shown = False
             for k, name in enumerate(freeze):
@@ -1655,10 +1669,10 @@ def plot_condensation(ds: xr.Dataset) -> Any:
     if any(np.abs(rate[m]).max() > 0 for m in months):
         handles.append(Line2D([], [], linestyle="none", marker="o", markersize=9, markerfacecolor="none",
                               markeredgecolor="#333333", label="condensation plane"))
-    ax.legend(handles=handles, fontsize=7.5, loc="best", ncol=2, framealpha=0.9)
-    if narrow:
-        ax.text(0.005, 0.02, "layers: " + ";  ".join(narrow), transform=ax.transAxes, fontsize=7, color="#444444",
-                va="bottom", ha="left", bbox={"facecolor": "white", "alpha": 0.8, "linewidth": 0})
+    if narrow:  # layers too thin on the s_d axis for their name above the frame
+        handles.append(Line2D([], [], linestyle="none", label="thin layers: " + "; ".join(narrow)))
+    # beside the frame, where no pressure line runs
+    ax.legend(handles=handles, fontsize=7.5, loc="upper left", bbox_to_anchor=(1.01, 1.0), framealpha=0.9)
 
     first = int(ds.attrs.get("first_month", 0) or 0)
     order = [(first - 1 + k) % 12 for k in range(12)] if first else list(range(12))
@@ -1670,7 +1684,7 @@ def plot_condensation(ds: xr.Dataset) -> Any:
         for j, k in enumerate(active):
             bx.bar(positions - 0.4 + width * (j + 0.5), acc[order, k], width=width * 0.95, color=PALETTE[j % len(PALETTE)],
                    hatch=("", "//", "..", "xx", "\\\\")[j % 5], edgecolor="white", label=f"interface {k}: {labels[k]}")
-        bx.legend(fontsize=7.5, loc="upper right", framealpha=0.9)
+        bx.legend(fontsize=7.5, loc="upper left", bbox_to_anchor=(1.01, 1.0), framealpha=0.9)
     else:
         bx.text(0.5, 0.5, "no interface condenses in any month", transform=bx.transAxes, ha="center", va="center",
                 fontsize=10, color="#444444")
@@ -1682,8 +1696,7 @@ def plot_condensation(ds: xr.Dataset) -> Any:
     verdict = str(ds.attrs.get("verdict", ""))
     peak = float(ds.attrs.get("max_accumulated_moisture", 0.0)) * 1000.0
     note = f"verdict: {verdict}" + (f"; largest {peak:.0f} g/m²" if peak > 0 else "")
-    bx.text(0.01, 0.96, note, transform=bx.transAxes, ha="left", va="top", fontsize=9, fontweight="bold",
-            color=PALETTE[3] if verdict == "accumulates" else "#222222")
+    bx.set_title(note, loc="left", fontsize=9, fontweight="bold", color=PALETTE[3] if verdict == "accumulates" else "#222222")
     return fig
 
 

@@ -630,3 +630,22 @@ def test_comparison_figure_has_units_caution_and_a_line_per_run(runs, tmp_path):
     assert_labels_have_units(fig)
     assert any(CAUTION[:40] in text for text in figure_texts(fig))
     assert all(len(ax.lines) == 2 for ax in fig.axes)
+
+
+def test_a_chilled_line_s_sizing_plot_says_heat_gain(tmp_path):
+    """A chilled-water line takes heat in (heat_flow < 0, the contract's sign:
+    positive from inside to outside): its sizing panel and budget say heat gain,
+    not heat loss (the budget bounds the magnitude either way)."""
+    from pathlib import Path
+
+    from layers.case import load_case
+    from layers.sizing import size
+
+    ds = size(load_case(Path(__file__).resolve().parents[1] / "cases" / "chilled-water-condensation.toml"))
+    assert (ds["heat_flow"].values < 0).all()
+    fig = plots.plot_sizing(ds)
+    labels = [ax.get_ylabel() for ax in fig.axes]
+    assert "heat gain [W/m]" in labels and not any("loss" in text for text in labels)
+    legend_texts = [t.get_text() for ax in fig.axes if ax.get_legend() for t in ax.get_legend().get_texts()]
+    assert not any("loss" in text for text in legend_texts)
+    fig.savefig(tmp_path / "chilled.png")
