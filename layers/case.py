@@ -289,6 +289,13 @@ class Case:
     def stem(self) -> str:
         return Path(self.path).stem
 
+    def listed(self, thermal_number: int) -> int:
+        """The case file's number (membranes counted) of thermal layer ``thermal_number`` (1-based in ``layers``)."""
+        for vl in self.vapour_layers:
+            if vl.thermal_index == thermal_number:
+                return vl.number
+        return thermal_number
+
     def mesh(self) -> Mesh:
         """The finite-volume mesh of this case (:func:`layers.mesh.build_mesh`), built once."""
         key = (self.layers, self.mesh_rule, self.geometry, self.inner_radius)
@@ -473,6 +480,7 @@ def parse_case(
         raise CaseError(file, "uncertainty", "a case sweeps or samples, not both at once (run the sweep, then sample the chosen design)")
     if geometry == "planar":  # a pipe's process temperatures may well be 263 to 374 degC
         _warn_kelvin_looking(data, file)
+        _warn_unclimatic_air(file, inside, outside)
     sizing = None
     if top.has("sizing"):
         sizing = _parse_sizing(_Table(top.get("sizing"), file, "sizing"), layers, geometry, inside, outside, time, timezone,
@@ -510,6 +518,35 @@ def parse_case(
 
 #: Bare numbers in this range [degC] look like room or weather temperatures written in kelvin.
 KELVIN_LOOKING = (263.0, 374.0)
+
+
+#: The air temperatures any building's climate stays within [degC]: the lowest
+#: and highest air temperatures measured on Earth are about -89 and +57 degC
+#: (World Meteorological Organization archive, from memory), with a margin.
+CLIMATE_AIR_RANGE = (-90.0, 70.0)
+
+
+def _warn_unclimatic_air(file: str, *sides: BoundarySpec) -> None:
+    """Warn when a wall's air temperature series leaves any climate: a weather
+    column in kelvin declared as degC reads as 250 to 310 degC, and nothing
+    else would say so (a process or an oven is a cylinder, a sphere, or a held
+    surface temperature)."""
+    import warnings
+
+    low, high = CLIMATE_AIR_RANGE
+    for spec in sides:
+        forcing = spec.values.get("air_temperature") if spec.kind == "film" else None
+        values = getattr(forcing, "_v", None)
+        if values is None or not np.isfinite(values).any():
+            continue
+        lo, hi = float(np.nanmin(values)), float(np.nanmax(values))
+        if lo < low or hi > high:
+            hint = " (a column in kelvin declared as degC?)" if 200.0 < lo and hi < 340.0 else ""
+            warnings.warn(
+                f"{file}: {spec.side}.air_temperature: the series runs from {lo:.4g} to {hi:.4g} degC, outside any "
+                f"climate ({low:g} to {high:g} degC){hint}: check the column and its unit",
+                UserWarning, stacklevel=4,
+            )
 
 
 def _warn_kelvin_looking(data: dict, file: str) -> None:

@@ -966,14 +966,16 @@ def _condensation_section(result: Result, anchor: str) -> Section:
         for k in active:
             head += [f"{names[k]}: condensed (+) or dried (−) in the month [g/m²]", f"{names[k]}: at the month's end [g/m²]"]
         body = []
+        before = np.zeros(a.shape[1])  # the calculation starts dry
         for i in order:
             row = [Cell(_month_name(months[i]))]
             for k in active:
-                row += [Cell(_num(r[i, k] * days[i] * 86400.0 * 1000.0, ".1f"), "num"), Cell(_num(a[i, k] * 1000.0, ".1f"), "num")]
+                row += [Cell(_num((a[i, k] - before[k]) * 1000.0, ".1f"), "num"), Cell(_num(a[i, k] * 1000.0, ".1f"), "num")]
+            before = a[i]
             body.append(row)
         s.results.append(Table("Month by month, in calculation order, at the interfaces where vapour condenses", head, body,
-                               note="From condensation_rate × the month's length and accumulated_moisture (kg/m² in the file, "
-                                    "g/m² here).", wide=True))
+                               note="The month's change of accumulated_moisture (what condensed or dried out; the calculation "
+                                    "starts dry) and the amount at the month's end (kg/m² in the file, g/m² here).", wide=True))
     if "interface_temperature" in ds:
         t = np.asarray(ds["interface_temperature"].transpose("month", "interface").values, dtype=float)
         body = [[Cell(_month_name(months[i]))] + [Cell(_num(t[i, k], ".2f"), "num") for k in range(t.shape[1])] for i in order]

@@ -35,7 +35,15 @@ The method, month by month, as ISO 13788:2012 clause 6 describes it
    moisture collected at a plane keeps the vapour pressure there at
    saturation while any remains, so the line is pinned at every wet plane
    and the balance there may be negative (drying); the amount is carried to
-   the next month and never falls below zero.
+   the next month and never falls below zero.  Where a plane dries out
+   before the month ends, the month is split at that moment: the plane is no
+   longer pinned, the line is redrawn, and the other planes go on at the
+   redrawn line's rates for the rest of the month.  Setting the amount to
+   zero at the month's end instead (the rule as usually stated, from memory)
+   gives the same answer with one plane, but with two it credits the
+   neighbouring plane with a whole month of flux from a plane that had
+   already dried, creating water (our reading, derived: mass is conserved
+   this way).  The month's reported rate and line are those at its start.
 5. **Starting month** (ISO 13788:2012 clause 6, from memory, not checked
    against the clause text): the calculation starts, with a dry
    construction, in the first month in which condensation is predicted
@@ -245,6 +253,13 @@ def moisture_year(
 ) -> MoistureYear:
     """Run twelve months from ``start`` (1-12) with a dry construction at its beginning.
 
+    Each month starts from the line of :func:`vapour_profile` with every wet
+    plane pinned; its pressures and rates are the ones reported for the
+    month.  Where a plane dries out before the month ends, the month is split
+    there: the plane is dry (no longer pinned) from that moment, the line is
+    redrawn, and the other planes go on at the redrawn line's rates for the
+    rest of the month (see the module docstring, item 4).
+
     Parameters
     ----------
     cumulative_sd : (interfaces,) [m]
@@ -257,16 +272,31 @@ def moisture_year(
     Returns
     -------
     MoistureYear
+        ``rate`` and ``pressure`` from the line at the start of each month;
+        ``accumulated`` from the split month.
     """
     n = np.size(cumulative_sd)
     moisture = np.zeros(n)
     rate, accumulated, pressure = np.zeros((12, n)), np.zeros((12, n)), np.zeros((12, n))
     for k in range(12):
         m = (start - 1 + k) % 12
-        p, g = vapour_profile(cumulative_sd, saturation[m], inside[m], outside[m], wet=moisture > DRY)
-        moisture = np.maximum(moisture + g * seconds[m], 0.0)
-        moisture[moisture <= DRY] = 0.0
-        rate[m], accumulated[m], pressure[m] = g, moisture, p
+        left = float(seconds[m])
+        parts = 4 * n + 4  # each part but the last ends with a plane drying out; a bound, never reached in practice
+        for part in range(parts):
+            p, g = vapour_profile(cumulative_sd, saturation[m], inside[m], outside[m], wet=moisture > 0.0)
+            if part == 0:
+                rate[m], pressure[m] = g, p
+            drying = (moisture > 0.0) & (g < 0.0)
+            until = np.full(n, np.inf)
+            until[drying] = moisture[drying] / -g[drying]  # time to dry out at this rate [s]
+            step = left if part == parts - 1 else min(left, float(until.min()))
+            moisture = np.maximum(moisture + g * step, 0.0)
+            moisture[drying & (until <= step)] = 0.0
+            moisture[moisture <= DRY] = 0.0
+            left -= step
+            if left <= 0.0:
+                break
+        accumulated[m] = moisture
     return MoistureYear(start, rate, accumulated, pressure, moisture.copy())
 
 
@@ -508,7 +538,7 @@ def _dataset(case, stack, s, temperature, saturation, p_in, p_out, year, first, 
     where = np.unravel_index(int(np.argmax(year.accumulated)), year.accumulated.shape) if peak > 0 else None
     data = {
         "condensation_rate": (mi, year.rate, {"units": "kg m-2 s-1", "long_name": "condensation rate at the interface "
-                              "(positive condensing, negative drying; while moisture remains)"}),
+                              "at the start of the month (positive condensing, negative drying; while moisture remains)"}),
         "accumulated_moisture": (mi, year.accumulated, {"units": "kg m-2", "long_name": "moisture accumulated at the "
                                  "interface at the end of the month"}),
         "vapour_pressure": (mi, year.pressure, {"units": "Pa", "long_name": "water vapour pressure at the interface"}),
@@ -590,14 +620,16 @@ def _film_words(case: Case) -> str:
 
 def condensation_table(ds) -> str:
     """The monthly table ``layers condensation`` prints: climate, then per
-    condensing interface the month's condensation (+) or drying (-) and the
-    amount at the month's end [g/m2], in calculation order from the first month."""
+    condensing interface the moisture the month added (+) or took away (-)
+    and the amount at the month's end [g/m2], in calculation order from the
+    first month (the year starts dry, so each M is the sum of the g above it)."""
     first = int(ds.attrs.get("first_month", 0))
     order = [(first - 1 + k) % 12 for k in range(12)] if first else list(range(12))
     acc = np.asarray(ds["accumulated_moisture"].values) * 1000.0
     rate = np.asarray(ds["condensation_rate"].values)
-    days = np.asarray(ds["month_length"].values)
-    amount = rate * days[:, None] * 86400.0 * 1000.0
+    amount = np.zeros_like(acc)
+    for i, m in enumerate(order):
+        amount[m] = acc[m] - (acc[order[i - 1]] if i else 0.0)
     active = [k for k in range(acc.shape[1]) if (acc[:, k] > 0).any() or (rate[:, k] > 0).any()]
     names = [str(v) for v in ds["interface_name"].values]
     head = f"{'month':<6}{'T_i':>6}{'T_e':>6}{'RH_e':>6}{'p_i':>7}{'p_e':>7}"
@@ -617,7 +649,7 @@ def condensation_table(ds) -> str:
             row += f"{amount[m, k]:>13.1f}{acc[m, k]:>13.1f}"
         lines.append(row)
     if active:
-        lines.append("g: condensation (+) or drying (-) in the month while moisture remains; M: moisture at the month's end")
+        lines.append("g: moisture condensed (+) or dried out (-) in the month; M: moisture at the month's end")
     else:
         margin = np.asarray(ds["saturation_vapour_pressure"].values - ds["vapour_pressure"].values)[:, 1:-1]
         if margin.size:

@@ -66,15 +66,23 @@ def check_report(case: Case) -> str:
     lines.append(f"{'#':>2}  {'layer':<22} {'thickness':>10} {'k':>8} {'rho':>7} {'c':>6} {'cells':>5} {'min cell':>9} {'max cell':>9}")
     lines.append(f"{'':>2}  {'':<22} {'[mm]':>10} {'[W/mK]':>8} {'[kg/m3]':>7} {'[J/kgK]':>6} {'':>5} {'[mm]':>9} {'[mm]':>9}")
     widths = mesh.x_hi - mesh.x_lo
-    for number, spec in enumerate(case.layers, start=1):
+    membranes = {vl.number: vl for vl in case.vapour_layers if vl.thermal_index is None}
+    rows = sorted([(case.listed(i), i) for i in range(1, len(case.layers) + 1)] + [(n, None) for n in membranes])
+    for listed, number in rows:
+        if number is None:  # numbered as the case file counts, with no thermal part
+            vl = membranes[listed]
+            sd = f"s_d {vl.equivalent_air_thickness:g} m" if vl.equivalent_air_thickness else "s_d from its material"
+            lines.append(f"{listed:>2}  {vl.name[:22]:<22} {'membrane':>10}   {sd}: vapour resistance only, no thermal part")
+            continue
+        spec = case.layers[number - 1]
         if spec.is_gap:
-            lines.append(f"{number:>2}  {'air gap':<22} {spec.thickness * 1000:>10.1f}   R = {spec.resistance:g} m2K/W, no heat capacity")
+            lines.append(f"{listed:>2}  {'air gap':<22} {spec.thickness * 1000:>10.1f}   R = {spec.resistance:g} m2K/W, no heat capacity")
             continue
         sel = mesh.layer == number
         m = spec.material
         k = f"{m.conductivity:.4g}" + ("*" if not m.is_constant else "")
         lines.append(
-            f"{number:>2}  {spec.name[:22]:<22} {spec.thickness * 1000:>10.1f} {k:>8} {m.density:>7.0f} {m.specific_heat:>6.0f} "
+            f"{listed:>2}  {spec.name[:22]:<22} {spec.thickness * 1000:>10.1f} {k:>8} {m.density:>7.0f} {m.specific_heat:>6.0f} "
             f"{int(sel.sum()):>5} {widths[sel].min() * 1000:>9.3f} {widths[sel].max() * 1000:>9.3f}"
         )
         if spec.contact_resistance:
@@ -122,6 +130,21 @@ def check_report(case: Case) -> str:
     elif plan.start_zone:
         lines.append(f"           start: {plan.start_zone}; every time here is UTC (Z)")
     lines.append(f"scheme:    {plan.scheme}; initial state: {plan.initial if isinstance(plan.initial, str) else f'{plan.initial:g} degC'}")
+    co = case.condensation
+    if co is not None:
+        inside = (f"humidity class {co.humidity_class} (ISO 13788 Annex A)" if co.humidity_class is not None
+                  else f"relative humidity {100 * float(np.min(co.inside_relative_humidity)):.0f} to "
+                       f"{100 * float(np.max(co.inside_relative_humidity)):.0f} %")
+        from layers.iso13788 import vapour_stack
+
+        try:
+            stack = vapour_stack(case, co.vapour_data)
+            layers_sd = f"s_d {float(np.sum(stack.sd)):.4g} m in all ({', '.join(f'{v:.3g}' for v in stack.sd)} m by layer)"
+        except CaseError as exc:
+            layers_sd = f"not computable: {exc.reason}"
+        lines.append(f"vapour:    [condensation] monthly climate read: outside {float(np.min(co.outside_temperature)):.1f} to "
+                     f"{float(np.max(co.outside_temperature)):.1f} degC, inside {inside}; {co.vapour_data} vapour data")
+        lines.append(f"           {layers_sd}; `layers condensation` runs the ISO 13788 check")
     if case.series is not None:
         filled = {k: v for k, v in case.series.filled.items() if v}
         note = "; filled by fill_gaps: " + ", ".join(f"{k} {v}" for k, v in filled.items()) if filled else ""

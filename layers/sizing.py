@@ -214,7 +214,7 @@ def _evaluate(case: Case, thick: np.ndarray, progress) -> tuple[dict, dict, dict
         passes["service_temperature"] = worst <= 0
         data["margin_service_temperature"] = ("thickness", -worst, {"units": "K", "long_name": "smallest margin of a layer's hottest face below its material's maximum service temperature"})
         attrs["service_temperature_limits"] = "; ".join(
-            f"layer {j + 1} {spec.material.name} {spec.material.max_temperature:g} degC" for j, spec in limited
+            f"layer {case.listed(j + 1)} {spec.material.name} {spec.material.max_temperature:g} degC" for j, spec in limited
         )
     if s.min_freeze_time is not None:
         if case.time.duration < s.min_freeze_time:

@@ -185,8 +185,9 @@ def brute_force_profile(s, saturation, p_in, p_out, wet):
 
 def independent_year(thicknesses, conductivities, mus, r_si, r_se, t_i, t_e, rh_i, rh_e):
     """ISO 13788 month by month written independently: temperatures by the
-    resistance sum, psat written out, planes by brute force, the starting-month
-    rule by scanning the calendar. Returns (first_month, verdict, rate, accumulated)."""
+    resistance sum, psat written out, planes by brute force, a month split
+    where a wet plane dries out, the starting-month rule by scanning the
+    calendar. Returns (first_month, verdict, rate, accumulated)."""
     r_layers = np.array(thicknesses) / np.array(conductivities)
     r_cum = np.concatenate([[r_si], r_si + np.cumsum(r_layers)])  # resistance from the inside air to each interface
     r_total = r_si + r_layers.sum() + r_se
@@ -209,9 +210,16 @@ def independent_year(thicknesses, conductivities, mus, r_si, r_se, t_i, t_e, rh_
         acc = np.zeros((12, len(s)))
         for step in range(12):
             m = (start + step) % 12
-            _, r = brute_force_profile(s, sat[m], p_in[m], p_out[m], [x > 1e-9 for x in moisture])
-            moisture = [max(0.0, x + g * DAYS[m] * 86400.0) for x, g in zip(moisture, r)]
-            moisture = [0.0 if x <= 1e-9 else x for x in moisture]
+            left = DAYS[m] * 86400.0
+            r = None
+            while left > 0:  # the month in parts, each ending where a wet plane dries out (or at the month's end)
+                _, g = brute_force_profile(s, sat[m], p_in[m], p_out[m], [x > 1e-9 for x in moisture])
+                r = g if r is None else r  # the month reports the line at its start
+                ends = [x / -y for x, y in zip(moisture, g) if x > 1e-9 and y < 0]
+                part = min([left, *ends])
+                moisture = [max(0.0, x + y * part) for x, y in zip(moisture, g)]
+                moisture = [0.0 if x <= 1e-9 else x for x in moisture]
+                left -= part
             rate[m], acc[m] = r, moisture
         key = (sum(moisture), acc.max())
         if best is None or key > best[0]:
@@ -282,6 +290,67 @@ def test_several_condensation_planes_at_once():
     np.testing.assert_allclose(pressure, line, rtol=1e-12)
     np.testing.assert_allclose(rate, expected, rtol=1e-9, atol=1e-20)
     assert (rate > 0).sum() >= 2
+
+
+def test_a_plane_that_dries_out_mid_month_splits_the_month():
+    """Two planes, A (s_d 0.2 m from inside) and B (2.2 m), total 4.2 m; pressures
+    made up for the check, the formulas as in the module docstring (computed here).
+
+    January (31 d): p_i 1100, p_sat,A 1000, p_sat,B 500, p_e 350 Pa. The slopes
+    -500, -250, -75 Pa/m rise, so both planes condense:
+      g_A = delta_0 (500 - 250) = 5e-8, g_B = delta_0 (250 - 75) = 3.5e-8 kg/(m2 s).
+    February (28 d) and later: p_i 1050, p_sat,A 1100, p_sat,B 700, p_e 600 Pa.
+    Both wet, pinned: g_A = delta_0 (-250 - 200) = -9e-8 (drying), g_B =
+    delta_0 (200 - 50) = 3e-8. A holds 5e-8 x 31 d = 0.13392 kg/m2 and is dry
+    after t_A = 0.13392/9e-8 = 1.488e6 s (17.2 d). From then the line runs
+    straight from p_i to B (A lies 82 Pa below it) and
+      g_B' = delta_0 [(1050 - 700)/2.2 - 50] = 2.1818e-8 kg/(m2 s)
+    for the rest of February. Setting A to zero at the month's end instead
+    would credit B with 3e-8 for the whole month: 7.6 g/m2 that no plane
+    ever gave up.
+    """
+    from layers.iso13788 import moisture_year
+
+    s = np.array([0.0, 0.2, 2.2, 4.2])
+    sat = np.tile([2000.0, 1100.0, 700.0, 600.0], (12, 1))
+    sat[0] = [2000.0, 1000.0, 500.0, 350.0]
+    p_in, p_out = np.full(12, 1050.0), np.full(12, 600.0)
+    p_in[0], p_out[0] = 1100.0, 350.0
+    year = moisture_year(s, sat, p_in, p_out, 1)
+    jan, feb = 31 * 86400.0, 28 * 86400.0
+    m_a, m_b = 5e-8 * jan, 3.5e-8 * jan
+    t_a = m_a / 9e-8
+    g_b2 = DELTA_0 * ((1050.0 - 700.0) / 2.2 - 50.0)
+    assert t_a / 86400.0 == pytest.approx(17.22, abs=0.01) and g_b2 == pytest.approx(2.1818e-8, rel=1e-4)
+    np.testing.assert_allclose(year.accumulated[0, 1:3], [m_a, m_b], rtol=1e-12)
+    np.testing.assert_allclose(year.rate[1, 1:3], [-9e-8, 3e-8], rtol=1e-9)  # the line at the start of February
+    assert year.accumulated[1, 1] == 0.0
+    assert year.accumulated[1, 2] == pytest.approx(m_b + 3e-8 * t_a + g_b2 * (feb - t_a), rel=1e-12)
+    clipped = m_b + 3e-8 * feb
+    assert (clipped - year.accumulated[1, 2]) * 1000.0 == pytest.approx(7.6, abs=0.05)  # what the split saves
+    # mass: February's gain at B is what came in at the inside surface minus what left outside
+    into = DELTA_0 * ((1050.0 - 1100.0) / 0.2 * t_a + (1050.0 - 700.0) / 2.2 * (feb - t_a))
+    out = DELTA_0 * (700.0 - 600.0) / 2.0 * feb
+    assert year.accumulated[1, 1:3].sum() - (m_a + m_b) == pytest.approx(into - out, rel=1e-12)
+    assert (year.accumulated[2:, 1] == 0.0).all() and (year.rate[2:, 1] == 0.0).all()  # A stays dry
+
+
+def test_the_table_amounts_add_up_to_the_moisture():
+    """The printed g column is each month's change in M, so M is the running sum
+    of g (from a dry start), including the month in which the plane dries out."""
+    from layers.iso13788 import condensation_table
+
+    text = (CASES / "timber-frame-wall-no-vcl.toml").read_text()
+    text = text.replace('material = "osb"', 'material = "wood-fibre-board"').replace("humidity_class = 3", "humidity_class = 2")
+    ds = layers.condensation(layers.parse_case(text))
+    assert ds.attrs["verdict"] == "dries out within the year"
+    rows = [line.split() for line in condensation_table(ds).splitlines() if line[:3] in MONTH_ABBR]
+    g, m = np.array([[float(r[-2]), float(r[-1])] for r in rows]).T
+    assert g.min() < 0 and m[-1] == 0.0
+    np.testing.assert_allclose(np.cumsum(g), m, atol=0.15)  # printed to 0.1 g/m2
+
+
+MONTH_ABBR = ("Jan", "Feb", "Mar", "Apr", "May", "Jun", "Jul", "Aug", "Sep", "Oct", "Nov", "Dec")
 
 
 # --------------------------------------------------------------------------- (d) starting month and verdicts

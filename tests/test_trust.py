@@ -258,3 +258,44 @@ def test_a_bare_temperature_that_reads_like_kelvin_is_warned_about(tmp_path):
     with warnings.catch_warnings():
         warnings.simplefilter("error")
         parse_case(tomllib.loads(text), text=text)
+
+
+def test_a_weather_column_in_kelvin_declared_as_degc_is_warned_about(tmp_path):
+    """An outside air column holding kelvin (271-278) but declared degC would run a
+    wall at 275 degC outside air without a word: the reader warns, naming the key
+    and the likely cause; the same column declared in K reads quietly. The bound is
+    the range of air temperatures measured on Earth, about -89 to +57 degC (WMO
+    archive, from memory), widened to -90 to 70 degC."""
+    import textwrap
+    import warnings
+
+    from layers.case import load_case
+
+    rows = ["time,T_out"] + [f"2026-01-01T{h:02d}:00Z,{271.15 + 0.3 * h:.2f}" for h in range(24)]
+    (tmp_path / "weather.csv").write_text("\n".join(rows) + "\n", encoding="utf-8")
+    wall = textwrap.dedent("""
+        [[layers]]
+        material = "brick"
+        thickness = "200 mm"
+        [inside]
+        type = "film"
+        air_temperature = "20 degC"
+        [outside]
+        type = "film"
+        air_temperature = "series:t_out"
+        [series]
+        file = "weather.csv"
+        [series.columns]
+        t_out = {{column = "T_out", unit = "{unit}"}}
+        [time]
+        duration = "12 h"
+        step = "1 h"
+        """)
+    case_file = tmp_path / "case.toml"
+    case_file.write_text(wall.format(unit="degC"), encoding="utf-8")
+    with pytest.warns(UserWarning, match=r"outside.air_temperature: the series runs from 271.1 to 278.1 degC.*kelvin declared as degC"):
+        load_case(case_file)
+    case_file.write_text(wall.format(unit="K"), encoding="utf-8")
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        load_case(case_file)
