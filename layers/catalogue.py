@@ -47,7 +47,7 @@ RUN_VARIABLES = ("time", "surface_temperature_outside", "heat_flow_inside")
 #: Environment variable naming the folder of the ``layers list`` header cache.
 CACHE_ENV = "LAYERS_CACHE_DIR"
 #: Version of the cache file layout; a cache of another version is ignored.
-CACHE_FORMAT = 3
+CACHE_FORMAT = 4
 
 # --------------------------------------------------------------------------- #
 # headline attributes (written with each run)
@@ -226,6 +226,7 @@ OTHER_PRODUCTS = {
     "sizing": ("passes_all", "a sizing result (layers size), not a run"),
     "periodic": ("periodic_transmittance", "dynamic characteristics (layers periodic), not a run"),
     "comparison": (None, "a comparison of runs (layers compare), not a run"),  # only by its attribute
+    "condensation": ("accumulated_moisture", "an interstitial condensation check (layers condensation), not a run"),
 }
 
 
@@ -240,7 +241,7 @@ def not_a_run(attrs: Sequence[str], variables: Sequence[str], product: str | Non
         The names of its variables.
     product : str, optional
         Its ``product`` attribute (``run``, ``sizing``, ``periodic``,
-        ``comparison``); files written before the attribute are told by a
+        ``condensation``, ``comparison``); files written before the attribute are told by a
         variable only that product has.
 
     Returns
@@ -256,7 +257,7 @@ def not_a_run(attrs: Sequence[str], variables: Sequence[str], product: str | Non
         return "not a layers run (no " + ", ".join(repr(a) for a in missing_attrs) + " attribute)"
     missing_vars = [v for v in RUN_VARIABLES if v not in variables]
     if missing_vars:
-        return "not a layers run: no " + ", ".join(repr(v) for v in missing_vars) + " variable (a sizing or periodic result?)"
+        return "not a layers run: no " + ", ".join(repr(v) for v in missing_vars) + " variable (a sizing, periodic or condensation result?)"
     return None
 
 

@@ -472,16 +472,44 @@ def materials_table(word: str | None) -> tuple[str, int]:
     """The material library as a table, filtered by ``word``."""
     from layers.materials import search
 
+    from layers.materials import load_membranes
+
     rows = search(word)
     lines = [
-        f"{'name':<22} {'k [W/(m*K)]':>12} {'rho [kg/m3]':>12} {'c [J/(kg*K)]':>13}  description; source",
+        f"{'name':<22} {'k [W/(m*K)]':>12} {'rho [kg/m3]':>12} {'c [J/(kg*K)]':>13} {'mu [-]':>10}  description; source",
     ]
     for m in rows:
         k = f"{m.conductivity:.4g}" + ("(T)" if not m.is_constant else "")
-        lines.append(f"{m.name:<22} {k:>12} {m.density:>12.0f} {m.specific_heat:>13.0f}  {m.description}; {m.source}")
-    if any(not m.is_constant for m in rows):
-        lines.append("(T): temperature-dependent conductivity; the value shown is at 10 degC")
-    return "\n".join(lines), len(rows)
+        lines.append(f"{m.name:<22} {k:>12} {m.density:>12.0f} {m.specific_heat:>13.0f} {_mu_text(m):>10}  {m.description}; {m.source}")
+    curves = [m for m in rows if not m.is_constant]
+    if curves:
+        lines.append("(T): temperature-dependent conductivity; the value shown is at 10 degC, the law at other temperatures:")
+        for m in curves:
+            top = m.max_temperature if m.max_temperature is not None else 400.0
+            at = [t for t in (-20.0, 10.0, 50.0, 100.0, 200.0, 300.0, 400.0, 600.0, 800.0) if t <= top]
+            values = np.asarray(m.law.at(np.array(at)), dtype=float)
+            lines.append(f"  {m.name}: " + ", ".join(f"{v:.4g} at {t:g}" for t, v in zip(at, values)) + " degC [W/(m*K)]")
+    if any(m.vapour_resistance_factor is not None for m in rows):
+        lines.append("mu: water vapour resistance factor, dry cup / wet cup where they differ (ISO 10456 where the source says so)")
+    needle = (word or "").lower()
+    membranes = [mb for name, mb in sorted(load_membranes().items())
+                 if not needle or needle in name.lower() or needle in mb.description.lower()]
+    if membranes:
+        lines.append("")
+        lines.append(f"{'membrane':<22} {'s_d [m]':>12}  description; source   (layer kind = \"membrane\": vapour resistance only)")
+        for mb in membranes:
+            lines.append(f"{mb.name:<22} {mb.equivalent_air_thickness:>12.4g}  {mb.description}; {mb.source}")
+    return "\n".join(lines), len(rows) + len(membranes)
+
+
+def _mu_text(m) -> str:
+    """A material's vapour resistance factor for the library table: dry/wet cup, or - when not known."""
+    dry, wet = m.vapour_resistance_factor, m.vapour_resistance_factor_wet_cup
+    if dry is None:
+        return "-"
+    if wet is None or wet == dry:
+        return f"{dry:.4g}"
+    return f"{dry:.4g}/{wet:.4g}"
 
 
 def periodic_elements(case: Case):

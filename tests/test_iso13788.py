@@ -515,6 +515,11 @@ def test_cli_exit_statuses_and_archive(tmp_path, capsys):
     assert "condensation: is required" in capsys.readouterr().err
     assert main(["condensation", str(CASES / "timber-frame-wall-vcl.toml"), "--archive", str(archive), "-o", str(out_file)]) == 2
     assert len(sorted(archive.glob("*-condensation-*.nc"))) == 2
+    # `layers list` names what the files are (not a run, not a sizing)
+    capsys.readouterr()
+    assert main(["list", str(archive)]) == 0
+    listed = capsys.readouterr().out
+    assert listed.count("an interstitial condensation check (layers condensation), not a run") == 2
 
 
 def test_plot_kind_condensation(tmp_path, capsys):
