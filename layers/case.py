@@ -756,7 +756,9 @@ def _monthly(t: _Table, name: str, kind: str, required: bool = True) -> np.ndarr
         else:
             number = parse_quantity(value, "fraction", file=t.file, key=key)
             if not 0.0 < number <= 1.0:
-                raise CaseError(t.file, key, f"relative humidity must be above 0 and at most 100 %, got {value!r}")
+                hint = (f"; a bare number is a fraction: write \"{value:g} %\" for {value:g} percent"
+                        if isinstance(value, (int, float)) and 1.0 < value <= 100.0 else "")
+                raise CaseError(t.file, key, f"relative humidity must be above 0 and at most 100 %, got {value!r}{hint}")
         if not math.isfinite(number):
             raise CaseError(t.file, key, f"{value!r} is not a finite number")
         out.append(number)
@@ -778,7 +780,11 @@ def _parse_condensation(t: _Table) -> CondensationSpec:
         if isinstance(humidity_class, bool) or humidity_class not in HUMIDITY_CLASSES:
             raise t.error("humidity_class", f"must be an ISO 13788 internal humidity class 1 to 5, got {humidity_class!r}")
     elif inside_rh is None:
-        raise t.error("inside_relative_humidity", "is required (or give humidity_class = 1 to 5, ISO 13788 Annex A)")
+        import difflib
+
+        typo = difflib.get_close_matches("inside_relative_humidity", [k for k in t.data if k not in t.known], n=1)
+        hint = f"; is {typo[0]!r} a misspelling of it?" if typo else ""
+        raise t.error("inside_relative_humidity", f"is required (or give humidity_class = 1 to 5, ISO 13788 Annex A){hint}")
     vapour_data = t.get("vapour_data", "dry-cup")
     if vapour_data not in VAPOUR_DATA:
         raise t.error("vapour_data", f"must be \"dry-cup\" or \"wet-cup\" (which ISO 10456 mu to use), got {vapour_data!r}")

@@ -399,6 +399,11 @@ def run_summary(ds: xr.Dataset, case: Case | None = None) -> str:
             f"   min {q[lo_i]:.3g} {flow_units} at {np.datetime_as_string(stamp[lo_i], unit='m')}Z"
             + (" (kept samples after the start)" if first else "")
         )
+        if not q[lo_i] - 1e-9 * abs(mean) <= mean <= q[hi_i] + 1e-9 * abs(mean):
+            # the mean is the energy over the whole run, the extremes are of the kept samples
+            lines.append(f"          (the mean is the energy through the surface over the run divided by its duration: it "
+                         f"includes the start transient{' and the steps between the kept samples' if first else ''}, "
+                         "which the kept samples miss)")
     if "surface_temperature_outside_quantile" in ds:
         n = ds.attrs.get("uncertainty_samples", "?")
         lines.append(f"  with the input tolerances of [uncertainty] ({n} samples): the extremes over the run of the")

@@ -146,12 +146,25 @@ def sizing_table(case: Case, progress: Callable[[int, int], None] | None = None)
         "geometry": case.geometry,
         "sized_layer": s.listed,
         "recommended_thickness": recommended,
-        "design_conditions": f"boundary values at {np.datetime_as_string(design_time(case), unit='m')}Z"
-        + (" ([sizing] design_time)" if s.design_time is not None else " (the run's start)"),
+        "design_conditions": _design_conditions(case),
         "caution": " ".join(cautions(case)),
         **attrs,
     }
     return cf_encoding(ds, f"layers size {case.path}")
+
+
+def _design_conditions(case: Case) -> str:
+    """Which boundary values the steady criteria use, in words: a moment only
+    where some boundary value changes with time."""
+    from layers.series import Forcing
+
+    varying = [f"{spec.side}.{name}" for spec in (case.inside, case.outside) for name, forcing in spec.values.items()
+               if isinstance(forcing, Forcing) and forcing.value is None]
+    if not varying:
+        return "the case's constant boundary values"
+    when = np.datetime_as_string(design_time(case), unit="m") + "Z"
+    return (f"boundary values at {when}" + (" ([sizing] design_time)" if case.sizing.design_time is not None else " (the run's start)")
+            + f" ({', '.join(varying)} vary with time)")
 
 
 def _evaluate(case: Case, thick: np.ndarray, progress) -> tuple[dict, dict, dict[str, np.ndarray]]:

@@ -590,3 +590,18 @@ def test_auto_films_use_the_iso_6946_design_values():
     assert ds.attrs["surface_resistance_inside"] == pytest.approx(0.13, abs=0.002)
     assert ds.attrs["surface_resistance_outside"] == pytest.approx(0.04, abs=0.002)
     assert "ISO 6946" in ds.attrs["surface_resistances"]
+
+
+def test_condensation_messages_point_at_the_likely_slip(tmp_path, capsys):
+    """A misspelt humidity key is named as a likely misspelling, and a bare 55 for
+    a relative humidity (a fraction in SI) gets the fix "55 %"."""
+    base = (CASES / "timber-frame-wall-vcl.toml").read_text()
+    typo = tmp_path / "typo.toml"
+    typo.write_text(base.replace("humidity_class = 3", 'inside_relative_humidty = "50 %"'))
+    assert main(["condensation", str(typo), "--archive", str(tmp_path / "runs")]) == 2
+    err = capsys.readouterr().err
+    assert "condensation.inside_relative_humidity: is required" in err and "'inside_relative_humidty' a misspelling" in err
+    bare = tmp_path / "bare.toml"
+    bare.write_text(base.replace("humidity_class = 3", "inside_relative_humidity = 55"))
+    assert main(["condensation", str(bare), "--archive", str(tmp_path / "runs")]) == 2
+    assert 'write "55 %"' in capsys.readouterr().err
