@@ -135,6 +135,15 @@ def _series_bytes(run: Path, attrs: dict, series_name: str, series_dirs: tuple[P
         return data, "the copy embedded in the run"
     name = base_name(series_name)
     candidates = [run.parent / name, *(Path(d) / name for d in series_dirs)]
+    # the usual layout: runs in runs/, the case and its series in a folder beside it
+    # (cases/), the command given from the project folder; a copy is used only
+    # when its SHA-256 is the run's
+    here = Path.cwd()
+    candidates.append(here / name)
+    try:
+        candidates += sorted(p / name for p in here.iterdir() if p.is_dir() and not p.name.startswith("."))
+    except OSError:
+        pass
     # Older runs (and runs made with --record-paths) say where the files were;
     # these are only read, and only used when their hash matches.
     recorded = str(attrs.get("series_path", ""))
@@ -157,5 +166,6 @@ def _series_bytes(run: Path, attrs: dict, series_name: str, series_dirs: tuple[P
         raise CaseError(str(run), "series", f"{changed} has changed since the run (SHA-256 differs)")
     raise CaseError(
         str(run), "series",
-        f"the series {name} was not embedded and is not beside the run; give its folder with --series-dir DIR",
+        f"the series {name} was not embedded and is not beside the run, in this folder or in a folder within it; "
+        "give its folder with --series-dir DIR",
     )

@@ -453,14 +453,23 @@ def test_case_text_that_does_not_read_falls_back_to_the_dataset(results, tmp_pat
         assert f"{(faces[number] - faces[number - 1]) * 1000:.1f}" in text
 
 
-def test_series_dir_lets_a_series_case_be_described(results, tmp_path):
+def test_series_dir_lets_a_series_case_be_described(results, tmp_path, monkeypatch):
     """wool-grid.toml reads weather-synthetic-site.csv, which is not beside the
-    result: without --series-dir the page falls back, with it the case reads."""
+    result: from a folder that does not hold it (in it or one folder down) the
+    page falls back, with --series-dir the case reads, and so it does from the
+    project folder, whose cases/ holds it (a copy is used only when its SHA-256
+    is the run's)."""
+    elsewhere = tmp_path / "elsewhere"
+    elsewhere.mkdir()
+    monkeypatch.chdir(elsewhere)
     text = _text(pages_text(results["sweep"], tmp_path / "without.html"))
     assert "could not be read again" in text and "Sources of the material properties" not in text
     text = _text(pages_text(results["sweep"], tmp_path / "with.html", "--series-dir", CASES))
     assert "could not be read again" not in text
     assert "Sources of the material properties" in text and "defined in the case file" in text  # [materials.site-wool]
+    monkeypatch.chdir(CASES.parent)
+    text = _text(pages_text(results["sweep"], tmp_path / "from-project.html"))
+    assert "could not be read again" not in text and "Sources of the material properties" in text
 
 
 def pages_text(result: Path, out: Path, *options) -> str:

@@ -120,6 +120,22 @@ def test_again_finds_the_series_beside_the_run_or_in_series_dir(tmp_path, capsys
     assert main(["run", "--again", str(first), "--archive", str(runs), "--quiet"]) == 0
 
 
+def test_again_finds_the_series_in_the_project_folder(tmp_path, monkeypatch):
+    """The usual layout: runs in runs/, the case and its series in data/, the
+    command given from the project folder: the series is found one folder down
+    from the current folder, by name, and used because its hash matches; a
+    changed copy is refused."""
+    case = _setup(tmp_path, embed=False)
+    runs = tmp_path / "runs"
+    monkeypatch.chdir(tmp_path)
+    assert main(["run", str(case), "--archive", str(runs), "--quiet"]) == 0
+    (first,) = list(runs.glob("*.nc"))
+    assert main(["run", "--again", str(first), "--archive", str(runs), "--quiet"]) == 0
+    with open(tmp_path / "data" / "weather.csv", "a") as fh:
+        fh.write("2026-02-02T00:00,5.0\n")
+    assert main(["run", "--again", str(first), "--archive", str(runs), "--quiet"]) == 2
+
+
 def _crafted_run(tmp_path, case_file: str, series_file: str, embedded: str | None) -> Path:
     """A run file whose stored names point outside any private folder."""
     import hashlib
