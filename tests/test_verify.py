@@ -26,7 +26,7 @@ ROOT = Path(__file__).resolve().parents[1]
 #: The physics paths the brief names; each must have at least one check.
 REQUIRED_PATHS = {
     "steady-planar", "steady-cylinder", "semi-infinite", "slab-series", "periodic", "films", "dew-point",
-    "k-of-t", "freezing", "order", "exact", "condensation",
+    "k-of-t", "freezing", "order", "exact", "condensation", "films-planar", "sun", "sizing",
 }
 
 
