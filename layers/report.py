@@ -404,6 +404,7 @@ def run_summary(ds: xr.Dataset, case: Case | None = None) -> str:
             lines.append(f"          (the mean is the energy through the surface over the run divided by its duration: it "
                          f"includes the start transient{' and the steps between the kept samples' if first else ''}, "
                          "which the kept samples miss)")
+    lines.append("  heat flows are positive from inside to outside: max is the largest outward flow, min the largest inward one")
     if "surface_temperature_outside_quantile" in ds:
         n = ds.attrs.get("uncertainty_samples", "?")
         lines.append(f"  with the input tolerances of [uncertainty] ({n} samples): the extremes over the run of the")

@@ -422,3 +422,25 @@ def test_a_run_says_a_fixed_film_ignores_tilt_before_it_starts(tmp_path, capsys,
     assert main(["run", str(case), "--quiet"]) == 0
     assert len(seen) == 1 and FIXED_WARNING in seen[0]
     assert FIXED_WARNING not in capsys.readouterr().err  # said once
+
+
+def test_every_output_says_the_heat_flow_sign_alike(tmp_path, capsys):
+    """One convention for heat flows (the contract's: positive from inside to
+    outside), said in every place a user reads one: the run summary, the
+    variables' long_name, and compare's metrics (max = the largest outward flow)."""
+    from pathlib import Path
+
+    cases = Path(__file__).resolve().parents[1] / "cases"
+    runs = tmp_path / "runs"
+    assert main(["run", str(cases / "masonry-wall-hot-week.toml"), "--archive", str(runs), "-o", str(tmp_path / "a.nc")]) == 0
+    summary = capsys.readouterr().out
+    assert "heat flows are positive from inside to outside: max is the largest outward flow" in summary
+    with xr.open_dataset(tmp_path / "a.nc") as ds:
+        assert "positive outward" in ds["heat_flow_inside"].attrs["long_name"]
+        assert "positive outward" in ds["heat_flow_outside"].attrs["long_name"]
+    assert main(["run", str(cases / "masonry-wall-hot-week.toml"), "--archive", str(runs), "-o", str(tmp_path / "b.nc"), "-q"]) == 0
+    capsys.readouterr()
+    assert main(["compare", str(tmp_path / "a.nc"), str(tmp_path / "b.nc")]) == 0
+    compared = capsys.readouterr().out
+    flow_lines = [line for line in compared.splitlines() if line.startswith("heat flow") and ", max" in line]
+    assert flow_lines and all("(outward)" in line for line in flow_lines)
