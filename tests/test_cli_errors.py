@@ -295,3 +295,12 @@ scheme = "{scheme}"
     assert main(["run", str(case), "--archive", str(tmp_path / "runs"), "--quiet"]) == 0
     err = capsys.readouterr().err
     assert ("rings" in err) == warned and err.count("\n") == int(warned)
+
+
+def test_periodic_says_nothing_of_auto_films_where_there_are_none(capsys):
+    """A wall with fixed films (the hot-week demo: surface resistances given) gets
+    no line about automatic films in its ISO 13786 table."""
+    wall = Path(__file__).resolve().parents[1] / "cases" / "masonry-wall-hot-week.toml"
+    assert main(["periodic", str(wall)]) == 0
+    out = capsys.readouterr().out
+    assert "ISO 13786" in out and "auto films" not in out
