@@ -61,7 +61,7 @@ import numpy as np
 
 from layers.constants import ABSOLUTE_ZERO_CELSIUS, HIGHEST_PHYSICAL_TEMPERATURE
 from layers.contents import WaterNode
-from layers.errors import ConvergenceWarning
+from layers.errors import CaseError, ConvergenceWarning
 from layers.exchange import Exchange, SurfaceFilm, thevenin
 from layers.mesh import Mesh
 
@@ -331,7 +331,13 @@ class _Drive:
             if i != self._index:  # the forcing of one stage, picked once for all its iterations
                 self._index, self._values = i, {name: float(values[i]) for name, values in self.forcing.items()}
             if self.each is not None:
-                films = [ex.film(self._values, t, d) for ex, t, d in zip(self.each, t_surface, self.diameter)]
+                films = []
+                for member, (ex, t, d) in enumerate(zip(self.each, t_surface, self.diameter)):
+                    try:
+                        films.append(ex.film(self._values, t, d))
+                    except CaseError as exc:  # a member's surface beyond its film's correlations
+                        exc.member = member
+                        raise
                 film = SurfaceFilm(*(np.array([float(getattr(f, name)) for f in films]) for name in ("h", "t_eq", "q_imposed")))
             else:
                 film = self.exchange.film(self._values, t_surface, self.diameter)
@@ -431,8 +437,10 @@ class _Stepper:
         self.drive_out = _Drive(batch.outside, batch.area_out, batch.diameter_out, [s.outside for s in batch.systems])
         self.factors: dict[float, _Factor] = {}
         self.factorisations = 0
-        self.unconverged = 0
         self.max_iter = 0
+        # whether a stage of the current step stopped at MAX_ITERATIONS before the
+        # tolerance: a bool for a batch of one, else one per member (the march counts the steps)
+        self.stalled = False if batch.size == 1 else np.zeros(batch.size, dtype=bool)
         self.fixed_matrix = not batch.depends_on_temperature
         if batch.constant_k:
             # the interior of K never changes: only the two boundary conductances can
@@ -555,7 +563,8 @@ class _Stepper:
                 new_h = water.solve(a * gw_f * (1.0 - tb[0]), rhs_water)
                 new_tw = float(water.state(new_h)[0])
                 new_t = temp + delta + (new_tw - tw) * tb
-            change = float(np.max(np.abs(new_t - temp)))
+            moved = np.abs(new_t - temp)
+            change = float(np.max(moved))
             if water is not None:
                 change = max(change, abs(new_tw - tw))
             # The chord step solved with the factorised boundary conductances:
@@ -572,7 +581,10 @@ class _Stepper:
             if (self.fixed_matrix and iteration >= 1) or change < TOLERANCE:
                 break
         else:
-            self.unconverged += 1
+            if self.s.size == 1:
+                self.stalled = True
+            else:  # the members whose own last change was still above the tolerance
+                self.stalled |= np.maximum.reduceat(moved, self.s.start) >= TOLERANCE
         self.max_iter = max(self.max_iter, iteration)
         return temp, h_w, c, surfaces, q_in + chord_in, q_out + chord_out
 
@@ -677,9 +689,11 @@ class _Records:
 
     def __init__(self, batch: _Batch, n_out: int, sink=None) -> None:
         self.batch = batch
-        self.sink = sink  # where kept cell fields go (``sink.write(rows)``) instead of memory
-        if sink is not None and batch.size != 1:
-            raise ValueError("a field sink takes the fields of a batch of one")
+        # where kept cell fields go (``sink.write(rows)``) instead of memory: one sink for a
+        # batch of one, else a list with one per member (each takes its own cells)
+        self.sink = sink
+        if sink is not None and batch.size != 1 and (not isinstance(sink, (list, tuple)) or len(sink) != batch.size):
+            raise ValueError("the fields of a batch go to one sink per member")
         rows = n_out if sink is None else min(n_out, self.SINK_BLOCK)
         self.temperature = np.empty((rows, batch.capacity.size))
         self.faces = [np.empty((n_out, s.mesh.interfaces.size)) for s in batch.systems]
@@ -712,7 +726,11 @@ class _Records:
         """Layer faces of the rows held (where k is constant), then the rows to the sink."""
         rows = self._faces(self.flushed, self.count)
         if self.sink is not None:
-            self.sink.write(rows)
+            if isinstance(self.sink, (list, tuple)):
+                for sink, part in zip(self.sink, self.batch.slices):
+                    sink.write(rows[:, part])
+            else:
+                self.sink.write(rows)
             self.flushed = self.count
 
     def _faces(self, start: int, stop: int) -> np.ndarray:
@@ -903,15 +921,26 @@ def march_batch(
     """March several constructions together (see :func:`march` for the arguments):
     members that share their boundaries' forcing (the exchange models of the
     first are evaluated, with each member's own areas, diameters and surface
-    temperatures), cell counts free, one member at most with contents.  They
+    temperatures), cell counts free, contents only in a batch of one.  They
     are one tridiagonal system with no coupling between members, so every
     factorisation and solve is one LAPACK call for all of them; a stage
     iterates until every member has converged.
 
+    ``field_sink``: for a batch of more than one, a list with one sink per
+    member (each takes its own cells), so that the members' fields never fill
+    memory together.  A batch of more than one gives no
+    :class:`ConvergenceWarning` itself: each result's ``unconverged_steps``
+    counts that member's steps, for the caller to warn member by member
+    (:func:`warn_unconverged`).
+
     Raises
     ------
-    UnphysicalState
-        With ``member``: the index of the member that left the physical range.
+    UnphysicalState, BadConductivity
+        With ``member``: the index of the member that left the physical range
+        or its k(T) law.
+    layers.errors.CaseError
+        An automatic film of a pipe or vessel beyond its correlations, with
+        ``member`` (for a batch of more than one).
     """
     batch = _Batch(list(systems))
     st = _Stepper(batch, scheme if isinstance(scheme, Scheme) else resolve_scheme(scheme))
@@ -934,6 +963,8 @@ def march_batch(
     # three separate arrays otherwise, added to in place)
     heat_in, heat_out, heat_abs = (0.0, 0.0, 0.0) if batch.size == 1 else (np.zeros(batch.size), np.zeros(batch.size), np.zeros(batch.size))
     smoothed = 0
+    # steps in which a stage stopped at MAX_ITERATIONS: an int for a batch of one, else per member
+    unconverged = 0 if batch.size == 1 else np.zeros(batch.size, dtype=int)
     previous = None
     report = max(1, n_steps // 200)
     if batch.size == 1:
@@ -946,12 +977,14 @@ def march_batch(
             ends = t[batch.ends]
             return ends.min() > ABSOLUTE_ZERO_CELSIUS and ends.max() < HIGHEST_PHYSICAL_TEMPERATURE
     for k in range(n_steps):
+        st.stalled = False if batch.size == 1 else np.zeros(batch.size, dtype=bool)
         if forcing.smooth(k):
             smoothed += 1
             solved, e_in, e_out = _smoothed_step(st, forcing, state, k, h)
         else:
             solved, e_in, e_out = _scheme_step(st, forcing, state, previous, k, h)
         temp, enthalpy, c, surfaces, q_in, q_out = solved
+        unconverged += st.stalled
         previous = state.temperature
         freeze.update(t0 + k * h, h, state.enthalpy, enthalpy)
         state = _settled_state(st, temp, enthalpy, c, surfaces)
@@ -972,13 +1005,8 @@ def march_batch(
             records.add(state, q_in, q_out)
         if progress is not None and ((k + 1) % report == 0 or k == 0 or k == n_steps - 1):
             progress(k + 1)
-    if st.unconverged:
-        warnings.warn(
-            f"{st.unconverged} of {n_steps} steps stopped at {MAX_ITERATIONS} iterations "
-            f"before the {TOLERANCE:g} K tolerance",
-            ConvergenceWarning,
-            stacklevel=3 if batch.size == 1 else 2,
-        )
+    if batch.size == 1:  # a batch's caller warns member by member (each result's unconverged_steps)
+        warn_unconverged(unconverged, n_steps, stacklevel=3)
     records.finish()
     v = records.values
     times = np.minimum(t0 + h * output_every * np.arange(records.count), t0 + h * n_steps)
@@ -1009,7 +1037,7 @@ def march_batch(
             final=state.temperature[part],
             final_enthalpy=state.enthalpy,
             initial_enthalpy=water.enthalpy(initial_water) if water is not None else 0.0,
-            unconverged_steps=st.unconverged,
+            unconverged_steps=int(np.atleast_1d(unconverged)[m]),
             max_iterations_used=st.max_iter,
             smoothed_steps=smoothed,
             drive_range=(min(forcing.low, float(np.min(start_cells))), max(forcing.high, float(np.max(start_cells)))),
@@ -1019,6 +1047,18 @@ def march_batch(
             scheme=st.scheme.name,
         ))
     return results
+
+
+def warn_unconverged(unconverged: int, n_steps: int, stacklevel: int = 2) -> None:
+    """The :class:`ConvergenceWarning` of a march in which ``unconverged`` of its
+    ``n_steps`` steps had a stage stop at :data:`MAX_ITERATIONS` iterations
+    before :data:`TOLERANCE` [K] (nothing when there were none)."""
+    if unconverged:
+        warnings.warn(
+            f"{unconverged} of {n_steps} steps stopped at {MAX_ITERATIONS} iterations before the {TOLERANCE:g} K tolerance",
+            ConvergenceWarning,
+            stacklevel=stacklevel + 1,
+        )
 
 
 def settle(system: System, guess: np.ndarray, t0: float = 0.0, t_water: float | None = None) -> np.ndarray:

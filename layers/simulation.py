@@ -216,24 +216,37 @@ def stepping_key(case: Case, system: System) -> tuple | None:
             _starts_with_a_step(case, system) > 0.0)
 
 
-def march_together(cases: list[Case], meshes: list[Mesh], systems: list[System]) -> tuple[list[MarchResult], list[int]]:
+def march_together(cases: list[Case], meshes: list[Mesh], systems: list[System],
+                   starts: list[tuple[np.ndarray, int]] | None = None,
+                   field_sinks: list | None = None) -> tuple[list[MarchResult], list[int]]:
     """March cases with the same :func:`stepping_key` and the same boundaries
     together (one tridiagonal system, :func:`layers.march.march_batch`): each
     result is the one its case gets alone, to the stages' iteration tolerance.
     Returns the results and the periodic cycles each case's start used.
 
+    ``starts``: each case's :func:`initial_state` where the caller made them
+    (one case at a time, so that an error or a warning of a start is that
+    case's); made here otherwise.  ``field_sinks``: one per case
+    (:class:`layers.results.FieldExtremes` where the fields are not kept), so
+    that the cases' cell fields never fill memory together.  With more than one case the iteration's
+    :class:`layers.errors.ConvergenceWarning` is left to the caller, case by
+    case (:func:`layers.march.warn_unconverged` with each result's
+    ``unconverged_steps``).
+
     Raises
     ------
-    UnphysicalState
-        With ``member``, the index of the case that left the physical range.
+    UnphysicalState, BadConductivity
+        With ``member``, the index of the case that left the physical range
+        or its k(T) law while marching.
     """
     first = cases[0]
     scheme = scheme_for(first, systems[0])
-    starts = [initial_state(v, m, s, scheme) for v, m, s in zip(cases, meshes, systems)]
+    if starts is None:
+        starts = [initial_state(v, m, s, scheme) for v, m, s in zip(cases, meshes, systems)]
     step_size = _stepping_start(first, systems[0], scheme)
     plan = first.time
     results = march_batch(systems, [x for x, _ in starts], plan.step, plan.n_steps, output_every=plan.output_stride,
-                          scheme=scheme, smooth_start=step_size > 0.0)
+                          scheme=scheme, smooth_start=step_size > 0.0, field_sink=field_sinks)
     _warn_jumps(first, scheme, step_size, results[0])
     return results, [cycles for _, cycles in starts]
 

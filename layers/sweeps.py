@@ -36,7 +36,7 @@ from layers.catalogue import SUMMARY_PREFIX, headline_values
 from layers.errors import CaseError
 from layers.formatting import format_utc
 from layers.march import BadConductivity, UnphysicalState
-from layers.results import HEAT_FLOW_UNITS, cf_encoding, utc_now
+from layers.results import HEAT_FLOW_UNITS, FieldExtremes, cf_encoding, utc_now
 from layers.variation import SweepDim, with_values
 
 #: Most points marched together (and the size of a job on a cluster): fixed, so
@@ -178,6 +178,8 @@ def run_job(text: str, file: str, base_dir: str | None, job: Job, settings: list
             return [record]
         return _run_exact(cases, [list(g) for g in job.shared])
     except _MemberError as exc:
+        if isinstance(exc.cause, CaseError):
+            raise _at_point(exc.cause, labels[exc.member]) from None
         if isinstance(exc.cause, BadConductivity):
             raise _at_point(conductivity_error(cases[exc.member], exc.cause), labels[exc.member]) from None
         raise _at_point(unphysical_error(cases[exc.member], exc.system, exc.cause), labels[exc.member]) from None
@@ -186,9 +188,10 @@ def run_job(text: str, file: str, base_dir: str | None, job: Job, settings: list
 
 
 class _MemberError(Exception):
-    """A member of a batch left the physical range, or its k(T) law."""
+    """A member of a batch left the physical range or its k(T) law, or its case
+    was refused (a start that cannot be made)."""
 
-    def __init__(self, member: int, system, cause: UnphysicalState | BadConductivity) -> None:
+    def __init__(self, member: int, system, cause: UnphysicalState | BadConductivity | CaseError) -> None:
         super().__init__(str(cause))
         self.member, self.system, self.cause = member, system, cause
 
@@ -237,28 +240,46 @@ def _run_exact(cases: list[Case], groups: list[list[int]]) -> list[dict]:
 
 def _run_stepping(cases: list[Case]) -> list[dict]:
     """March points that share their boundaries and time plan together
-    (:func:`layers.simulation.march_together`, one tridiagonal system)."""
-    from layers.simulation import march_together, run_record, system_for
+    (:func:`layers.simulation.march_together`, one tridiagonal system).  Each
+    point's start is made on its own, so that its error names it and its
+    warnings are its own; the iteration's convergence warning is each point's."""
+    from layers.march import warn_unconverged
+    from layers.simulation import initial_state, march_together, run_record, scheme_for, system_for
 
     meshes = [v.mesh() for v in cases]
     systems = [v.__dict__.pop("_system", None) or system_for(v, m) for v, m in zip(cases, meshes)]
+    starts, own = [], []
+    for member, (v, mesh, system) in enumerate(zip(cases, meshes, systems)):
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            try:
+                starts.append(initial_state(v, mesh, system, scheme_for(v, system)))
+            except (UnphysicalState, BadConductivity, CaseError) as exc:
+                raise _MemberError(member, system, exc) from None
+        own.append(_texts(caught))
+    # the points' cell fields, unless kept, only as the extremes the checks need (a
+    # batch would otherwise hold every point's whole field at once)
+    sinks = None if cases[0].time.keep_temperature is True else [FieldExtremes(mesh) for mesh in meshes]
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         try:
-            results, cycles = march_together(cases, meshes, systems)
-        except UnphysicalState as exc:
+            results, cycles = march_together(cases, meshes, systems, starts, sinks)
+        except (UnphysicalState, BadConductivity) as exc:
             member = getattr(exc, "member", 0)
             raise _MemberError(member, systems[member], exc) from None
-        except BadConductivity as exc:
-            member = getattr(exc, "member", 0)
-            raise _MemberError(member, systems[member], exc) from None
+        except CaseError as exc:  # a member's auto film beyond its correlations: ``member`` names it
+            if not hasattr(exc, "member"):
+                raise
+            raise _MemberError(exc.member, systems[exc.member], exc) from None
     shared = _texts(caught)  # said once for the batch: each point would say them alone
     records = []
-    for v, mesh, system, res, n in zip(cases, meshes, systems, results, cycles):
+    for m, (v, mesh, system, res, n, texts) in enumerate(zip(cases, meshes, systems, results, cycles, own)):
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always")
-            record = _slim(run_record(v, mesh, system, res, n), v, mesh)
-        record["warnings"] = shared + [t for t in _texts(caught) if t not in shared]
+            warn_unconverged(res.unconverged_steps, v.time.n_steps)
+            record = _slim(run_record(v, mesh, system, res, n, field_sink=sinks[m] if sinks else None), v, mesh)
+        texts = texts + [t for t in shared if t not in texts]
+        record["warnings"] = texts + [t for t in _texts(caught) if t not in texts]
         records.append(record)
     return records
 
