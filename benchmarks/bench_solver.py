@@ -803,8 +803,8 @@ def section_c(repeat: int, rounds: int) -> None:
     ratio = statistics.median(a / b for a, b in zip(times["size"], times["check"]))
     print(f"    layers size takes {(med['size'] - med['check']) * 1e3:.0f} ms more than layers check. Beyond import numpy, "
           f"import xarray costs {(med['xarray'] - med['numpy']) * 1e3:.0f} ms, and import xarray with a first Dataset written "
-          f"to netCDF {(med['write'] - med['numpy']) * 1e3:.0f} ms;\n    layers check imports no xarray; layers size imports it, "
-          "builds a Dataset and archives it (with dask installed, xarray then also imports dask.array and dask.distributed)")
+          f"to netCDF {(med['write'] - med['numpy']) * 1e3:.0f} ms;\n    neither layers check nor layers size imports xarray: "
+          "size archives its table with netCDF4 directly (results.Table)")
     print(f"    target: layers size within 1.5x of layers check: {ratio:.2f}x "
           f"({target('(c) layers size vs layers check, command lines', f'{ratio:.2f}x', 'within 1.5x', ratio <= 1.5)})")
 

@@ -159,7 +159,7 @@ SLOW_LIMIT = 36.0
 #: Most drive values (members x steps x sides) and modal states (members x steps x slow
 #: modes) a batch holds at once: the march's memory does not grow with the run.
 BLOCK_VALUES = 1 << 22
-CHUNK_VALUES = 1 << 18
+CHUNK_VALUES = 1 << 20
 
 
 #: Below this many carried modes per step of a chunk the recurrence runs mode by
@@ -313,10 +313,8 @@ class ModalBatch:
             self.rows[i, :k] = part["rows"]
             self.start_rows[i, :k] = part["start_rows"]
             self.field[i, : self.cells[i], :k] = part["field"]
-        # per-step products in one matrix each: the drives at both ends of a step
-        # (B, [beta_i, beta_i+1] x sides, slow) and the rows read at every step
-        # (surface cells at the end, surface cells' integral from the start)
-        self.drive_both = np.concatenate([self.drive[:, :, 0, :], self.drive[:, :, 1, :]], axis=1)
+        # the rows read at every step in one matrix (surface cells at the end,
+        # the surface cells' integral from the start)
         self.every_rows = np.concatenate([self.rows[:, :, :2], self.start_rows], axis=2)     # (B, slow, 4)
         self.kept_rows = np.ascontiguousarray(self.rows[:, :, 2:])                          # (B, slow, R - 2)
         self.end_fast = np.stack([part["end_fast"] for part in parts])      # (B, R, ends, sides)
@@ -324,7 +322,8 @@ class ModalBatch:
         self.field_fast = np.stack([part["field_fast"] for part in parts])  # (B, n, ends, sides)
         self.faces_q = np.stack([part["faces_q"] for part in parts])        # (B, faces, sides)
         # the same, laid out for batched products with the drives (B, steps, sides)
-        self.end_fast_both = np.concatenate([self.end_fast[:, :, e].transpose(0, 2, 1) for e in (0, 1)], axis=1)  # (B, 4, R)
+        # the fast modes' part of the rows, per drive at a step's start and at its end (B, sides, R)
+        self.end_fast_start, self.end_fast_end = (np.ascontiguousarray(self.end_fast[:, :, e].transpose(0, 2, 1)) for e in (0, 1))
         self.lags_t = [np.ascontiguousarray(self.lags[:, :, lag].transpose(0, 2, 1)) for lag in (0, 1, 2)]    # (B, sides, 2)
         self.field_fast_t = [np.ascontiguousarray(self.field_fast[:, :, e].transpose(0, 2, 1)) for e in (0, 1)]  # (B, sides, n)
         self.g = np.array([[m.g_in, m.g_out] for m in modals])               # (B, sides)
@@ -462,13 +461,11 @@ class ModalBatch:
             nodes = t0 + h * (k0 + np.arange(nb + 1))
             recorded = np.flatnonzero((kept_steps > k0) & (kept_steps <= k0 + nb))
             beta_block, sources = self._drives(nodes, kept_steps[recorded] - k0, out, recorded, ranges)   # (B, nb + 1, sides)
-            both_block = np.concatenate([beta_block[:, :-1], beta_block[:, 1:]], axis=2)                # (B, nb, 4)
             ends_block = [np.concatenate([u[:-1], u[1:]], axis=1) for u in sources]                    # (nb, 4) each
             for c0 in range(0, nb, chunk):
                 k = k0 + c0
                 mm = min(chunk, nb - c0)
                 beta = beta_block[:, c0:c0 + mm + 1]
-                both = both_block[:, c0:c0 + mm]
                 # every slow mode of every member: z_(i+1) = decay z_i + drive, in place; the
                 # drives of a group of members sharing their boundaries in one product
                 if self.one_group:
@@ -481,7 +478,8 @@ class ModalBatch:
                 _recur(zs, self.decay, step_tmp)
                 by_member = zs.transpose(1, 0, 2)                                  # (B, mm, slow)
                 every = by_member @ self.every_rows                                # (B, mm, 4)
-                ends = every[:, :, :2] + both @ self.end_fast_both[:, :, :2]      # surface cells at each step's end
+                # surface cells at each step's end: the slow modes' part and the fast modes' (drives at both ends)
+                ends = every[:, :, :2] + beta[:, :-1] @ self.end_fast_start[:, :, :2] + beta[:, 1:] @ self.end_fast_end[:, :, :2]
                 if check:
                     self._check_surfaces(ends, by_member, beta, t0 + h * k)
                 # heat through each surface over each step: int beta - G int T_cell
@@ -505,7 +503,8 @@ class ModalBatch:
                     kq = beta[:, local] - g[:, None, :] * kept_cells
                     cells[:, keep_here] = kept_cells
                     q[:, keep_here] = kq
-                    rest = by_member[:, rows] @ self.kept_rows + both[:, rows] @ self.end_fast_both[:, :, 2:]
+                    rest = (by_member[:, rows] @ self.kept_rows + beta[:, rows] @ self.end_fast_start[:, :, 2:]
+                            + beta[:, rows + 1] @ self.end_fast_end[:, :, 2:])
                     stored[:, keep_here] = rest[:, :, 0]
                     face_t[:, keep_here] = rest[:, :, 1:] + kq @ self.faces_q.transpose(0, 2, 1)
                     if make_fields:
@@ -560,6 +559,25 @@ class ModalBatch:
         for i, c in enumerate(self.cells):
             out[i, :c] = np.asarray(states[i], dtype=float)[:c]
         return out
+
+    def steady_start(self, t0: float = 0.0) -> np.ndarray:
+        """Each member's steady state under its drives at ``t0`` [s] [degC] (B,
+        largest n; NaN beyond a member's cells): K T = e beta, mode by mode
+        z_j = (p_in,j beta_in + p_out,j beta_out) / lambda_j.  This is the mesh's
+        own steady state, which for constant conductivities is the exact steady
+        profile at the cell centres that :func:`layers.steady.cell_temperatures`
+        gives a lone run (they agree to round-off), for all members in one pass."""
+        b = len(self.modals)
+        out = {key: np.full((b, 1), math.nan) for key in ("t_eq_in", "t_eq_out", "film_in", "film_out")}
+        ranges = np.stack([np.full(b, math.inf), np.full(b, -math.inf)], axis=1)
+        beta, _ = self._drives(np.array([float(t0)]), np.zeros(0, dtype=int), out, np.zeros(0, dtype=int), ranges)
+        states = []
+        for i, modal in enumerate(self.modals):
+            if np.any(modal.lam <= 0.0):  # no side holds a temperature: no steady state (is_exact_ready refuses it)
+                raise ValueError("a member without a steady state")
+            z = (modal.p_in * beta[i, 0, 0] + modal.p_out * beta[i, 0, 1]) / modal.lam
+            states.append(modal.to_cells @ z)
+        return self.padded(states)
 
     def periodic_start(self, steps: int) -> np.ndarray:
         """The exact start of each member's periodic state of a period of ``steps``

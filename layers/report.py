@@ -54,6 +54,65 @@ def design_resistance(case: Case, mesh: Mesh) -> DesignResistance:
     return DesignResistance(films[0], mesh.steady_resistance(), films[1])
 
 
+#: Rough costs of the march on the 2-core machine of docs/benchmarks.md [s]:
+#: per step of the exact path, and per cell-step beside it; per stage of a
+#: stepping scheme, linear (one solve) and nonlinear (about three chord
+#: iterations with the films or k(T) evaluated each time).  Only for telling
+#: a user how long a run will take, to a factor of about three.
+COST_EXACT_STEP, COST_EXACT_CELL_STEP = 1.5e-6, 1.5e-8
+COST_LINEAR_STAGE, COST_NONLINEAR_STAGE = 1.5e-5, 1.2e-4
+#: Above this estimate [s] ``check`` says how long work is shown and stopped.
+LONG_WORK = 60.0
+
+
+def work_estimate(case: Case, mesh: Mesh) -> str:
+    """How much marching a case asks for and roughly how long it takes, in words
+    (empty when the case cannot say: a scheme refused, say)."""
+    from layers.schemes import resolve_scheme
+    from layers.simulation import scheme_for, system_for
+
+    plan = case.time
+    try:
+        system = system_for(case, mesh)
+        scheme = scheme_for(case, system)
+    except CaseError:
+        return ""
+    steps, cells = plan.n_steps, mesh.n
+    if scheme == "exact":
+        seconds = steps * (COST_EXACT_STEP + COST_EXACT_CELL_STEP * cells)
+        how = "the exact path"
+    else:
+        stages = len(resolve_scheme(scheme).stage_time)
+        nonlinear = system.depends_on_temperature or system.water is not None
+        seconds = steps * stages * (COST_NONLINEAR_STAGE if nonlinear else COST_LINEAR_STAGE)
+        how = f"stepping with {scheme}, {'nonlinear' if nonlinear else 'linear'}"
+    runs, what = 1, ""
+    if case.sweep:
+        runs = int(np.prod([len(d.values) for d in case.sweep]))
+        what = f", x {runs:,} sweep points"
+    elif case.uncertainty is not None:
+        runs = case.uncertainty.samples + 1
+        what = f", x {runs:,} runs (the samples and the nominal case)"
+    total = seconds * runs
+    text = (f"{steps:,} steps x {cells} cells, {how}{what}: "
+            + ("under a second" if total < 1.0 else f"roughly {_rough(total)}") + " on the machine of docs/benchmarks.md"
+            + (" (plus the periodic start)" if plan.initial == "periodic" and scheme != "exact" else ""))
+    if total > LONG_WORK:
+        text += "; a progress bar shows it on a terminal, and Ctrl-C stops it cleanly (nothing is written)"
+    return text
+
+
+def _rough(seconds: float) -> str:
+    """A duration to one or two figures, for an estimate."""
+    if seconds < 1.0:
+        return "under a second"
+    if seconds < 90.0:
+        return f"{seconds:.2g} s"
+    if seconds < 5400.0:
+        return f"{seconds / 60.0:.2g} min"
+    return f"{seconds / 3600.0:.2g} h"
+
+
 def check_report(case: Case) -> str:
     """What ``layers check`` prints: layers, mesh, steady transmittance, time plan."""
     mesh = case.mesh()
@@ -130,6 +189,9 @@ def check_report(case: Case) -> str:
     elif plan.start_zone:
         lines.append(f"           start: {plan.start_zone}; every time here is UTC (Z)")
     lines.append(f"scheme:    {plan.scheme}; initial state: {plan.initial if isinstance(plan.initial, str) else f'{plan.initial:g} degC'}")
+    work = work_estimate(case, mesh)
+    if work:
+        lines.append(f"work:      {work}")
     co = case.condensation
     if co is not None:
         inside = (f"humidity class {co.humidity_class} (ISO 13788 Annex A)" if co.humidity_class is not None

@@ -10,10 +10,9 @@ from __future__ import annotations
 import math
 import warnings
 from collections.abc import Callable
-from typing import NamedTuple
+from typing import TYPE_CHECKING, NamedTuple
 
 import numpy as np
-import xarray as xr
 
 from layers.case import Case
 from layers.series import Forcing
@@ -27,6 +26,9 @@ from layers.schemes import resolve_scheme
 from layers.mesh import Mesh
 from layers.results import FieldExtremes, to_dataset
 from layers.steady import cell_temperatures, steady_state
+
+if TYPE_CHECKING:
+    import xarray as xr
 
 #: Default ice fraction for the freeze time: a common design allowance (ISO 12241 and
 #: handbook practice allow a partly frozen pipe; 25 % is usual, common practice).

@@ -221,6 +221,8 @@ def _run_exact(cases: list[Case], groups: list[list[int]]) -> list[dict]:
         if plan.initial == "periodic":
             initial = batch.periodic_start(int(round(plan.period / plan.step)))
             cycles = 1
+        elif plan.initial == "steady":  # every member's steady state in one pass (exact.ModalBatch.steady_start)
+            initial = batch.steady_start()
         else:
             initial = batch.padded([initial_state(v, m, s, "exact")[0] for v, m, s in zip(cases, meshes, systems)])
         res = batch.run(initial, plan.n_steps, output_every=plan.output_stride, keep_fields=plan.keep_temperature is True)

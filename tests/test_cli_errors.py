@@ -304,3 +304,22 @@ def test_periodic_says_nothing_of_auto_films_where_there_are_none(capsys):
     assert main(["periodic", str(wall)]) == 0
     out = capsys.readouterr().out
     assert "ISO 13786" in out and "auto films" not in out
+
+
+def test_check_says_how_much_work_a_case_asks_for(tmp_path, capsys):
+    """`layers check` states the march's size and a rough duration before anything
+    runs, and for long work how it is shown and stopped (a freeze case at 10 ms
+    steps: 2.16 million steps)."""
+    demo = Path(__file__).resolve().parents[1] / "cases" / "outdoor-water-freeze.toml"
+    assert main(["check", str(demo)]) == 0
+    out = capsys.readouterr().out
+    work = [line for line in out.splitlines() if line.startswith("work:")]
+    assert len(work) == 1 and "steps x" in work[0] and "nonlinear" in work[0] and "Ctrl-C" not in work[0]
+    text = demo.read_text(encoding="utf-8")
+    import re
+
+    long_case = tmp_path / "long.toml"
+    long_case.write_text(re.sub(r'(?m)^step = ".*"$', 'step = "10 ms"', text), encoding="utf-8")
+    assert main(["check", str(long_case)]) == 0
+    work = [line for line in capsys.readouterr().out.splitlines() if line.startswith("work:")]
+    assert work and "Ctrl-C stops it cleanly" in work[0]
