@@ -55,12 +55,17 @@ def design_resistance(case: Case, mesh: Mesh) -> DesignResistance:
 
 
 #: Rough costs of the march on the 2-core machine of docs/benchmarks.md [s]:
-#: per step of the exact path, and per cell-step beside it; per stage of a
-#: stepping scheme, linear (one solve) and nonlinear (about three chord
-#: iterations with the films or k(T) evaluated each time).  Only for telling
-#: a user how long a run will take, to a factor of about three.
-COST_EXACT_STEP, COST_EXACT_CELL_STEP = 1.5e-6, 1.5e-8
+#: per step of the exact path, and per cell-step beside it (a lone run keeping
+#: its fields, 14 ns); per stage of a stepping scheme, linear (one solve) and
+#: nonlinear (about three chord iterations with the films or k(T) evaluated
+#: each time); per point of a sweep or sample (reading its case, its mesh and
+#: modes, its record), whose marches go together at about a quarter of the
+#: cost alone (measured: 2.6 ms per linear wall-year in a batch of 256, 0.2 s
+#: per nonlinear one in a batch of 64, 1.8 s alone).  Only for telling a user
+#: how long a run will take, to a factor of about three.
+COST_EXACT_STEP, COST_EXACT_CELL_STEP = 2e-7, 1.4e-8
 COST_LINEAR_STAGE, COST_NONLINEAR_STAGE = 1.5e-5, 1.2e-4
+COST_POINT, BATCH_GAIN = 1.5e-3, 4.0
 #: Above this estimate [s] ``check`` says how long work is shown and stopped.
 LONG_WORK = 60.0
 
@@ -93,7 +98,7 @@ def work_estimate(case: Case, mesh: Mesh) -> str:
     elif case.uncertainty is not None:
         runs = case.uncertainty.samples + 1
         what = f", x {runs:,} runs (the samples and the nominal case)"
-    total = seconds * runs
+    total = seconds if runs == 1 else runs * (seconds / BATCH_GAIN + COST_POINT)
     text = (f"{steps:,} steps x {cells} cells, {how}{what}: "
             + ("under a second" if total < 1.0 else f"roughly {_rough(total)}") + " on the machine of docs/benchmarks.md"
             + (" (plus the periodic start)" if plan.initial == "periodic" and scheme != "exact" else ""))

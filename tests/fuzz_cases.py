@@ -13,7 +13,12 @@ cache in a private folder, and :func:`classify` sorts the outcome:
                :func:`_sweep_problem`), and ``layers size``'s exit 1 "no
                candidate meets every criterion" is an answer, judged as exit 0
 * ``crash``    exit 3, any other status, or a traceback
-* ``hang``     over the time limit, or out of memory under the memory limit
+* ``hang``     over the time limit, or out of memory under the memory limit;
+               except ``long``: over the time limit, but ``layers check``
+               said beforehand that the work takes about that long (its
+               ``work`` line's estimate, to its factor of three, reaches the
+               limit): long work a user was told of, shown by a progress
+               bar and stopped cleanly by Ctrl-C, is not a hang
 * ``unsound``  exit 0 with non-finite or below-absolute-zero values archived,
                or a file left in the archive by a refused command
 * ``bad-message``  a refusal of more than one line, an echo of more than
@@ -53,7 +58,9 @@ ABSOLUTE_ZERO_C = -273.15
 ECHO_LIMIT = 80  # characters of the input a message may repeat
 LINE_LIMIT = 400  # characters of one message line, path included
 MEMORY_LIMIT = 3 * 1024**3  # bytes of address space per command
-SEVERITY = ["unsound", "hang", "crash", "bad-message", "refused", "sound"]
+SEVERITY = ["unsound", "hang", "crash", "bad-message", "long", "refused", "sound"]
+#: ``check``'s estimate is good to a factor of about this (layers.report.work_estimate).
+ESTIMATE_FACTOR = 3.0
 NUMPY_WARNINGS = ("divide by zero encountered", "invalid value encountered", "overflow encountered", "underflow encountered")
 
 
@@ -1490,12 +1497,33 @@ def run_case(case: FuzzCase, work: Path, timeout: float = 20.0) -> Outcome:
                 verdict, detail = "unsound", "check archived a file"
             else:
                 verdict, detail = classify(code, err, new, case, command != "check")
+            if verdict == "hang" and code is None and command != "check":
+                predicted = _predicted_seconds(work, timeout)
+                if predicted is not None and predicted * ESTIMATE_FACTOR >= timeout:
+                    verdict, detail = "long", f"over the {timeout:g} s limit, as `layers check` predicted (about {predicted:.3g} s)"
             outcomes.append(Outcome(verdict, detail, command, secs, err, code))
         else:
             outcomes.append(_special(command, case, work, timeout))
         if outcomes[-1].verdict in ("unsound", "hang", "crash"):
             break  # the worst is known; the next command would only repeat it
     return _worst(outcomes)
+
+
+def _predicted_seconds(work: Path, timeout: float) -> float | None:
+    """How long ``layers check`` said the case's work takes [s] (its ``work`` line), or None."""
+    import re
+
+    code, out, _, _ = _layers(["check", "case.toml"], work, timeout)
+    if code != 0:
+        return None
+    for line in out.splitlines():
+        if line.startswith("work:"):
+            if "under a second" in line:
+                return 0.5
+            m = re.search(r"roughly ([0-9.]+(?:e[+-]?[0-9]+)?) (s|min|h)\b", line)
+            if m:
+                return float(m.group(1)) * {"s": 1.0, "min": 60.0, "h": 3600.0}[m.group(2)]
+    return None
 
 
 def _no_candidate_passes(stdout: str, stderr: str) -> bool:
