@@ -398,8 +398,9 @@ class Exchange:
             span = f"air {np.min(t_air):.4g} to {np.max(t_air):.4g} degC, surface {np.min(t_surface):.4g} to {np.max(t_surface):.4g} degC"
             raise CaseError(
                 self.case.path, f"{self.side}.film_coefficient",
-                f"an auto film needs air and surface temperatures from {low:g} to {high:g} degC (the range of its "
-                f"convection correlations), here {span}; give a fixed film_coefficient",
+                f"an auto film needs the air and the film temperature (the mean of air and surface) within {low:g} to "
+                f"{high:g} degC (the range of the air properties its convection correlations use), here {span}; "
+                "give a fixed film_coefficient",
             ) from None
 
     def _auto(self, forcing, ts, diameter) -> SurfaceFilm:
