@@ -1046,6 +1046,15 @@ def _transposed(t: _Table, ctx: _ForcingContext, args: dict, forcing) -> Forcing
             raise t.error("solar_irradiance", f"cannot be transposed to the surface ({exc})") from None
     for w in caught:
         _warnings.warn(f"{file}: {t.key('solar_irradiance')}: {w.message}", UserWarning, stacklevel=4)
+    from layers.solar import SHIFT_WARNING_HOURS, timing_offset
+
+    late = timing_offset(times, ghi(times), result.solar_zenith)
+    if late is not None and abs(late) > SHIFT_WARNING_HOURS:
+        _warnings.warn(
+            f"{file}: {t.key('solar_irradiance')}: the series' irradiance peaks {abs(late):.1f} h "
+            f"{'after' if late > 0 else 'before'} the sun's highest point on the median day: are its stamps in "
+            "another time zone than they were read in (series.timezone, or offsets in the file)?",
+            UserWarning, stacklevel=4)
     args["surface_azimuth"] = float(azimuth)
     args["albedo"] = float(albedo)
     args["irradiance_stamp"] = stamp

@@ -252,6 +252,46 @@ class SurfaceIrradiance(NamedTuple):
     sun_time: np.ndarray
 
 
+#: The daily peaks of a global-horizontal series and of the sun may differ by
+#: clouds and by a series stamped at the end of its hour; this much more, on
+#: the median day, says the stamps are in another time zone than read [h].
+SHIFT_WARNING_HOURS = 1.5
+
+
+def timing_offset(times_utc: ArrayLike, ghi: ArrayLike, zenith: ArrayLike) -> float | None:
+    """How much later the series' irradiance peaks than the sun, on the median day [h].
+
+    For each day with some sun (a daily maximum above 100 W m-2), the time of
+    the largest global horizontal irradiance minus the time of the smallest
+    zenith; the median over those days (None without three of them).  A
+    series read in the wrong time zone is late or early by about the zones'
+    difference: a check, not a correction.
+
+    Parameters
+    ----------
+    times_utc : array of datetime64
+        The stamps (UTC).
+    ghi : array_like
+        Global horizontal irradiance at the stamps [W m-2].
+    zenith : array_like
+        The sun's zenith at the same instants [deg].
+    """
+    seconds = (np.asarray(times_utc).astype("datetime64[s]") - np.datetime64("1970-01-01T00:00:00")).astype(float)
+    ghi, zenith = np.asarray(ghi, dtype=float), np.asarray(zenith, dtype=float)
+    days = np.floor(seconds / 86400.0).astype(np.int64)
+    offsets = []
+    for day in np.unique(days):
+        here = np.flatnonzero(days == day)
+        if here.size < 6 or not np.isfinite(ghi[here]).any() or np.nanmax(ghi[here]) < 100.0:
+            continue
+        peak = here[int(np.nanargmax(ghi[here]))]
+        sun = here[int(np.nanargmin(zenith[here]))]
+        offsets.append((seconds[peak] - seconds[sun]) / 3600.0)
+    if len(offsets) < 3:
+        return None
+    return float(np.median(offsets))
+
+
 def provenance() -> str:
     """A short text naming the models and the pvlib version, for a result's attributes.
 

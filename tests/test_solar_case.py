@@ -14,6 +14,7 @@ All weather is invented.
 from __future__ import annotations
 
 import math
+from pathlib import Path
 import textwrap
 import tomllib
 
@@ -167,3 +168,30 @@ def test_surface_written_out_is_the_default_and_a_pipe_is_not_transposed(tmp_pat
     with pytest.raises(CaseError) as info:
         parse_case(tomllib.loads(text), text=text, base_dir=tmp_path)
     assert info.value.key == "outside.solar_irradiance_on" and "plane" in info.value.reason
+
+
+def test_a_series_read_in_the_wrong_time_zone_is_warned_about(tmp_path):
+    """The west-wall demo's weather (invented; naive stamps in local standard
+    time, +01:00) read as -05:00: its irradiance then peaks 6 h after the sun
+    on the median day, and the reader says so; read as written, it says
+    nothing of the kind. Reference: the stamps' zone difference, 6 h (clouds
+    and the stamp's place in its interval move a daily peak by well under the
+    1.5 h threshold)."""
+    import shutil
+    import warnings
+
+    from layers.case import load_case
+
+    cases = Path(__file__).resolve().parents[1] / "cases"
+    shutil.copy(cases / "weather-synthetic-site.csv", tmp_path / "weather-synthetic-site.csv")
+    text = (cases / "west-wall-from-horizontal.toml").read_text(encoding="utf-8")
+    right = tmp_path / "right.toml"
+    right.write_text(text, encoding="utf-8")
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        load_case(right)
+    assert not [w for w in caught if "peaks" in str(w.message)]
+    wrong = tmp_path / "wrong.toml"
+    wrong.write_text(text.replace('timezone = "+01:00"', 'timezone = "-05:00"'), encoding="utf-8")
+    with pytest.warns(UserWarning, match=r"irradiance peaks 6\.0 h after the sun's highest point"):
+        load_case(wrong)
