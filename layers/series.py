@@ -683,12 +683,23 @@ def _check_order(t: np.ndarray, raw: _Raw, file: str, time: str) -> None:
     )
 
 
+#: Share of a file's intervals that one interval must make up for the file to be regular.
+REGULAR_SHARE = 0.8
+
+
 def _missing_rows(t: np.ndarray, raw: _Raw, file: str, time: str) -> FilledGaps | None:
     """The intervals between rows longer than :data:`MISSING_ROW_FACTOR` times the
-    median (rows missing from a regular file), or None; call before
-    :func:`_bridge_gaps`, on the file's own rows."""
+    file's usual interval (rows missing from a regular file), or None; call
+    before :func:`_bridge_gaps`, on the file's own rows.  A file is regular
+    when one interval makes up at least :data:`REGULAR_SHARE` of them; a file
+    whose steps vary on purpose has no rows "missing"."""
     step = np.diff(t)
-    median = float(np.median(step))
+    if step.size < 4:
+        return None
+    values, counts = np.unique(step, return_counts=True)
+    if counts.max() < REGULAR_SHARE * step.size:
+        return None
+    median = float(values[int(np.argmax(counts))])  # the usual interval
     long = np.flatnonzero(step > MISSING_ROW_FACTOR * median)
     if not long.size or median <= 0:
         return None
