@@ -36,6 +36,7 @@ from importlib import resources
 from pathlib import Path
 from typing import Any
 
+from layers.constants import ZERO_CELSIUS
 from layers.errors import CaseError
 
 #: The physics paths every run of the checks covers (the table has at least one check for each).
@@ -616,11 +617,11 @@ def _build() -> tuple[Check, ...]:
             id="steady-pipe-surface", path="steady-cylinder",
             what="outer surface temperature of the same pipe",
             source="ht 1.2.0 docstring of ht.conduction.cylindrical_heat_transfer: 306.5785 K = 33.4285 degC",
-            tag="found", expected=306.5785 - 273.15, unit="degC", tolerance=5e-5, relative=False,
+            tag="found", expected=306.5785 - ZERO_CELSIUS, unit="degC", tolerance=5e-5, relative=False,
             case="pipe-two-layers.toml",
             reason="printed to 4 decimals: half a unit of the last one",
             compute=lambda runs: float(runs.dataset("pipe-two-layers.toml")["surface_temperature_outside"].values[-1]),
-            live=lambda: float(_ht_cylinder()["Ts"][-1]) - 273.15, live_library="ht",
+            live=lambda: float(_ht_cylinder()["Ts"][-1]) - ZERO_CELSIUS, live_library="ht",
         ),
         Check(
             id="steady-pipe-iso12241-q", path="steady-cylinder",
