@@ -183,6 +183,37 @@ class Exchange:
             return given
         return iso6946_heat_flow_direction(self.spec.tilt, np.asarray(forcing["air"], dtype=float) - np.asarray(t_surface, dtype=float))
 
+    def model_description(self) -> str:
+        """How this boundary's film is modelled, with the sources of its models, in
+        words for reports (the same decisions :meth:`film` takes); empty for a
+        boundary that is not a film."""
+        spec = self.spec
+        side = self.side.capitalize()
+        if self.kind != "film":
+            return ""
+        if not self.auto:
+            h = 1.0 / spec.surface_resistance if spec.surface_resistance else math.inf
+            return f"{side} film: fixed, as given in the case ({h:.3g} W/(m²·K))."
+        if self.geometry == "planar" and self.side == "inside":
+            if self.derives_direction:
+                direction = "the direction derived at every step from the tilt and the sign of air minus surface"
+            else:
+                direction = f"heat flow {spec.heat_flow_direction if spec.heat_flow_direction != 'auto' else self._tilt_direction()}"
+            convection = ("convection by the heat-flow direction of ISO 6946:2017 Annex C (h_c 5.0 up, 2.5 horizontal, "
+                          f"0.7 down W/(m²·K), from memory), {direction}")
+        elif self.geometry == "planar":
+            convection = "convection h_c = 4 + 4 v from the wind speed (ISO 6946:2017 Annex C, from memory)"
+        else:
+            body = "cylinder" if self.geometry == "cylinder" else "sphere"
+            convection = (f"convection by regime for a {body} (free: Churchill & Chu; forced: Churchill & Bernstein; "
+                          "mixed by their combination; layers method guide, section 7)")
+        radiation = "linearised long-wave radiation to the surroundings at the surface's emissivity"
+        if self._sky:
+            radiation += (" (to the sky and the ground by their view factors; sky temperature "
+                          + ("from the case" if spec.sky_temperature is not None else "by Swinbank (1963), from the air temperature") + ")")
+        sun = "; absorbed sun a·I added at the surface" if spec.solar_irradiance is not None and spec.solar_absorptance else ""
+        return f"{side} film: automatic, {convection}, plus {radiation}{sun}."
+
     def design_direction(self) -> tuple[str, str]:
         """The heat-flow direction that stands for an inside auto film where one
         fixed value is needed (U-value, ISO 13786), and how it was found [-].

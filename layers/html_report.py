@@ -28,7 +28,6 @@ from __future__ import annotations
 
 import base64
 import calendar
-import datetime as dt
 import io
 import math
 import os
@@ -589,32 +588,10 @@ def _nonlinear_because(case: Case | None) -> str:
 
 
 def _film_lines(case: Case) -> list[str]:
-    """How each film of the case was modelled, with its sources (the models of the exchange room)."""
-    lines = []
-    for sp in (case.inside, case.outside):
-        if sp.kind != "film":
-            continue
-        if not sp.auto_film:
-            lines.append(f"{sp.side.capitalize()} film: fixed, as given in the case ("
-                         f"{1.0 / sp.surface_resistance if sp.surface_resistance else float('inf'):.3g} W/(m²·K)).")
-            continue
-        if case.geometry == "planar" and sp.side == "inside":
-            convection = ("convection by the heat-flow direction of ISO 6946:2017 Annex C (h_c 5.0 up, 2.5 horizontal, 0.7 down "
-                          "W/(m²·K), from memory)" + (", the direction derived at every step from the tilt and the sign of air "
-                                                       "minus surface" if sp.heat_flow_direction == "auto" else
-                                                       f", heat flow {sp.heat_flow_direction}"))
-        elif case.geometry == "planar":
-            convection = "convection h_c = 4 + 4 v from the wind speed (ISO 6946:2017 Annex C, from memory)"
-        else:
-            convection = ("convection by regime for a " + ("cylinder" if case.geometry == "cylinder" else "sphere")
-                          + " (free: Churchill & Chu; forced: Churchill & Bernstein; mixed by their combination; layers method guide, section 7)")
-        radiation = "linearised long-wave radiation to the surroundings at the surface's emissivity"
-        if sp.side == "outside" and (sp.sky_temperature is not None or sp.values.get("sky_auto")):
-            radiation += (" (to the sky and the ground by their view factors; sky temperature "
-                          + ("from the case" if sp.sky_temperature is not None else "by Swinbank (1963), from the air temperature") + ")")
-        sun = ("; absorbed sun a·I added at the surface" if sp.solar_irradiance is not None and sp.solar_absorptance else "")
-        lines.append(f"{sp.side.capitalize()} film: automatic, {convection}, plus {radiation}{sun}.")
-    return lines
+    """How each film of the case was modelled, in the exchange room's own words."""
+    from layers.exchange import exchanges
+
+    return [text for ex in exchanges(case) if (text := ex.model_description())]
 
 
 _REFERENCES_RUN = [
@@ -938,10 +915,6 @@ def _condensation_section(result: Result, anchor: str) -> Section:
     a = np.asarray(acc.transpose("month", "interface").values, dtype=float)
     r = np.asarray(rate.transpose("month", "interface").values, dtype=float)
     months = [int(m) for m in (ds["month"].values if "month" in ds.coords else np.arange(1, a.shape[0] + 1))]
-    if "month_length" in ds:
-        days = np.asarray(ds["month_length"].values, dtype=float)
-    else:  # calendar months of a common year
-        days = np.array([calendar.monthrange(2001, m)[1] for m in months], dtype=float)
     names = _interface_names(ds)
     rows = [_cells("verdict", Cell(verdict, _VERDICT_CLASS.get(verdict, "note")))]
     rows.append(_cells("first month of the calculation", _month_name(first) if first else "none (no month condenses)"))

@@ -521,7 +521,22 @@ def assess(case: Case):
             f"{case.path}: the inside air's vapour pressure exceeds saturation at the inside surface in "
             f"{', '.join(MONTH_NAMES[m] for m in np.flatnonzero(surface))}: surface condensation, which the "
             "interstitial method does not assess", UserWarning, stacklevel=2)
+    _check_physical(case, temperature, saturation, year)
     return _dataset(case, stack, s, temperature, saturation, p_in, p_out, year, first, verdict, r_si, r_se, surface)
+
+
+def _check_physical(case: Case, temperature: np.ndarray, saturation: np.ndarray, year: MoistureYear) -> None:
+    """Refuse a result outside physics before it can be archived: every
+    temperature [degC] finite and above absolute zero, pressures [Pa] finite and
+    not negative, rates and amounts finite and amounts not negative."""
+    from layers.constants import ABSOLUTE_ZERO_CELSIUS
+
+    sound = (np.all(np.isfinite(temperature)) and np.all(temperature > ABSOLUTE_ZERO_CELSIUS)
+             and np.all(np.isfinite(saturation)) and np.all(np.isfinite(year.pressure)) and np.all(year.pressure >= 0.0)
+             and np.all(np.isfinite(year.rate)) and np.all(np.isfinite(year.accumulated)) and np.all(year.accumulated >= 0.0))
+    if not sound:
+        raise CaseError(case.path, "condensation", "the monthly calculation gave a result outside physics (not finite, "
+                        "or below absolute zero); check the layers' vapour data and the climate")
 
 
 def _dataset(case, stack, s, temperature, saturation, p_in, p_out, year, first, verdict, r_si, r_se, surface):

@@ -356,15 +356,23 @@ def check_points(case: Case, grid: list[Point], where: str = "sweep") -> str:
     else:
         chosen = grid
         said = f"all {len(grid)} points read"
+    sources, cases = _read_points(case, chosen, len(grid), where)
+    plan_jobs(case, cases, sources, [p.describe() for p in chosen])
+    return said
+
+
+def _read_points(case: Case, chosen: list[Point], n_points: int, where: str) -> tuple[list[dict], list[Case]]:
+    """Each chosen point's case data and case, read by the case reader (the series
+    read once), with the sweep's size and each point's time plan checked (shared
+    by ``check`` and the run)."""
     data = _source(case)
     sources = [with_values(data, p.settings) for p in chosen]
     with reusing_series():
         cases = [variant(case, src, p, where) for src, p in zip(sources, chosen)]
-    _check_size(case, len(grid), cases)
+    _check_size(case, n_points, cases)
     for v in cases:
         _check_plan(case, v)
-    plan_jobs(case, cases, sources, [p.describe() for p in chosen])
-    return said
+    return sources, cases
 
 
 def run_points(
@@ -374,13 +382,7 @@ def run_points(
     each point's case and run record, in the order of ``grid``.  Shared by
     sweeps and uncertainty sampling."""
     _check_size(case, len(grid), [case])  # before reading every point: a grid far too large is refused at once
-    data = _source(case)
-    sources = [with_values(data, p.settings) for p in grid]
-    with reusing_series():
-        cases = [variant(case, src, p, where) for src, p in zip(sources, grid)]
-    _check_size(case, len(grid), cases)
-    for v in cases:
-        _check_plan(case, v)
+    sources, cases = _read_points(case, grid, len(grid), where)
     labels = [p.describe() for p in grid]
     jobs = plan_jobs(case, cases, sources, labels)
     settings = [[grid[i].settings for i in job.points] for job in jobs]

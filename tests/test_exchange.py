@@ -210,3 +210,47 @@ def test_design_resistance_of_an_auto_wall_film_is_the_iso6946_expression():
     assert inside.design_resistance() == pytest.approx(1 / (2.5 + 0.9 * hr0_in), rel=1e-12)
     assert outside.design_resistance() == pytest.approx(1 / (4 + 4 * 4.0 + 0.9 * hr0_out), rel=1e-12)
     assert abs(inside.design_resistance() - 0.13) < 0.005 and abs(outside.design_resistance() - 0.04) < 0.005
+
+
+def test_each_film_says_how_it_is_modelled():
+    """The report's words for a film come from the exchange model's own decisions:
+    a wall's inside auto film uses the horizontal ISO 6946 value, a roof's derives
+    its direction at every step, an outside wall film is 4 + 4 v, a pipe's auto
+    film uses the body correlations (Churchill & Chu / Churchill & Bernstein), and
+    a fixed film states its coefficient."""
+    import textwrap
+
+    from layers.api import parse_case
+    from layers.exchange import exchanges
+
+    def described(inside: str, outside: str, geometry: str = "") -> tuple[str, str]:
+        text = textwrap.dedent(f"""
+            {geometry}
+            [[layers]]
+            material = "eps"
+            thickness = "100 mm"
+            [inside]
+            type = "film"
+            air_temperature = "20 degC"
+            {inside}
+            [outside]
+            type = "film"
+            air_temperature = "0 degC"
+            {outside}
+            [time]
+            duration = "1 h"
+            step = "1 h"
+            """)
+        ex_in, ex_out = exchanges(parse_case(text))
+        return ex_in.model_description(), ex_out.model_description()
+
+    wall_in, wall_out = described('film_coefficient = "auto"', 'film_coefficient = "auto"\nwind_speed = "3 m/s"')
+    assert "heat flow horizontal" in wall_in and "derived at every step" not in wall_in
+    assert "4 + 4 v" in wall_out
+    roof_in, _ = described('film_coefficient = "auto"\ntilt = "0 deg"', 'surface_resistance = "0.04 m2*K/W"')
+    assert "derived at every step" in roof_in
+    _, fixed = described('surface_resistance = "0.13 m2*K/W"', 'surface_resistance = "0.04 m2*K/W"')
+    assert fixed == "Outside film: fixed, as given in the case (25 W/(m²·K))."
+    _, pipe = described('surface_resistance = "0.13 m2*K/W"', 'film_coefficient = "auto"',
+                        '[geometry]\nkind = "cylinder"\ninner_radius = "30 mm"')
+    assert "Churchill & Chu" in pipe and "cylinder" in pipe

@@ -605,3 +605,22 @@ def test_condensation_messages_point_at_the_likely_slip(tmp_path, capsys):
     bare.write_text(base.replace("humidity_class = 3", "inside_relative_humidity = 55"))
     assert main(["condensation", str(bare), "--archive", str(tmp_path / "runs")]) == 2
     assert 'write "55 %"' in capsys.readouterr().err
+
+
+def test_a_result_outside_physics_is_refused_before_it_is_archived():
+    """The last guard before the dataset: a temperature that is not finite or below
+    absolute zero, a negative pressure or amount, is refused as a CaseError
+    (exit 2), so no such file is ever archived; a sound result passes."""
+    import numpy as np
+
+    from layers.errors import CaseError
+    from layers.iso13788 import MoistureYear, _check_physical
+
+    case = layers.load_case(CASES / "timber-frame-wall-vcl.toml")
+    good = MoistureYear(1, np.zeros((12, 3)), np.zeros((12, 3)), np.full((12, 3), 800.0), np.zeros(3))
+    t = np.full((12, 3), 5.0)
+    _check_physical(case, t, np.full((12, 3), 900.0), good)
+    for bad_t, year in ((np.where(np.eye(12, 3) > 0, np.nan, t), good), (t - 300.0, good),
+                        (t, MoistureYear(1, np.zeros((12, 3)), -np.ones((12, 3)), np.full((12, 3), 800.0), np.zeros(3)))):
+        with pytest.raises(CaseError, match="outside physics"):
+            _check_physical(case, bad_t, np.full((12, 3), 900.0), year)
